@@ -1,0 +1,643 @@
+"""Scenario files (TOML) -> a validated :class:`Scenario` in internal units.
+
+A scenario names a mechanism, a start time, a duration, an output interval, a
+place, the environment of the box, initial amounts, solver settings, rate
+scale factors and photolysis options.  Every value with a unit is converted
+here, once, with :mod:`boxchem.units`; everything downstream sees s, m, K,
+Pa, cm-3, cm2 cm-3, DU and degrees only.  The full layout with every key is
+documented in ``docs/scenarios.md``.
+
+All mistakes found in one file are collected and raised together as one
+:class:`~boxchem.errors.ScenarioError`; each line names the file and the key
+path (``stratosphere-box.toml: [environment].temperature: ...``), what was
+found and what would be valid.
+"""
+from __future__ import annotations
+
+import copy
+import datetime as _dt
+import difflib
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Mapping
+
+import numpy as np
+
+from .errors import BoxchemError, ScenarioError, UnitError
+from .units import parse_amount, parse_quantity
+
+__all__ = ["Scenario", "TimeSeriesSpec", "ThresholdRuleSpec", "load_scenario",
+           "SCENARIO_KEYS", "SOLVER_METHODS", "PHOTOLYSIS_METHODS"]
+
+#: solver methods a scenario may name (see boxchem.solver)
+SOLVER_METHODS = ("rosenbrock", "bdf", "radau", "lsoda")
+#: photolysis methods (see boxchem.photolysis.rates.PhotolysisRates)
+PHOTOLYSIS_METHODS = ("spectral", "parametric")
+
+#: every known key per section; [initial] and [scale] take species / reaction ids
+SCENARIO_KEYS: dict[str, tuple[str, ...]] = {
+    "run": ("mechanism", "start", "duration", "output_interval"),
+    "location": ("latitude", "longitude", "altitude", "pressure"),
+    "environment": ("temperature", "pressure", "trajectory", "ozone_column",
+                    "psc_surface_area", "sulfate_surface_area", "albedo"),
+    "solver": ("rtol", "atol", "method", "max_step"),
+    "photolysis": ("method", "ozone_column_follows_box"),
+}
+_FREE_SECTIONS = ("initial", "scale")
+_SERIES_KEYS = ("times", "values", "time_unit", "unit")
+_RULE_KEYS = ("rule", "area", "below")
+
+#: defaults (internal units); documented in docs/scenarios.md
+DEFAULT_OUTPUT_INTERVAL_S = 3600.0
+DEFAULT_LONGITUDE_DEG = 0.0
+DEFAULT_OZONE_COLUMN_DU = 300.0     # a typical mid-latitude total column; common practice, no source
+DEFAULT_ALBEDO = 0.3                # a common global-mean surface/cloud albedo; common practice, no source
+DEFAULT_RTOL = 1.0e-4
+DEFAULT_ATOL_CM3 = 1.0e-2
+DEFAULT_SOLVER_METHOD = "rosenbrock"
+DEFAULT_PHOTOLYSIS_METHOD = "spectral"
+
+# physical ranges for plausibility checks (wide on purpose: reject only nonsense)
+_ALTITUDE_RANGE_M = (-500.0, 120_000.0)
+
+
+@dataclass(frozen=True)
+class TimeSeriesSpec:
+    """A quantity given at times (s since the run start), linearly interpolated."""
+
+    times_s: np.ndarray
+    values: np.ndarray
+
+    def __eq__(self, other: object) -> bool:
+        return (isinstance(other, TimeSeriesSpec)
+                and np.array_equal(self.times_s, other.times_s)
+                and np.array_equal(self.values, other.values))
+
+
+@dataclass(frozen=True)
+class ThresholdRuleSpec:
+    """PSC surface area ``area`` [cm2 cm-3] while temperature < ``below`` [K], else 0."""
+
+    area: float
+    below: float
+
+
+Value = float | TimeSeriesSpec | ThresholdRuleSpec | None
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A validated scenario in internal units.
+
+    Times in s (``start`` a UTC ``numpy.datetime64[ns]``), lengths in m,
+    pressures in Pa, temperatures in K, surface areas in cm2 cm-3, ozone
+    column in DU, angles in degrees, amounts as mole fractions or cm-3.
+    """
+
+    source: str
+    text: str = field(repr=False)
+    data: Mapping[str, Any] = field(repr=False)
+    base_dir: Path
+    mechanism_path: Path
+    start: np.datetime64
+    duration_s: float
+    output_interval_s: float
+    latitude: float | TimeSeriesSpec
+    longitude: float | TimeSeriesSpec
+    altitude_m: float | None
+    location_pressure_pa: float | None
+    temperature: float | TimeSeriesSpec | None
+    pressure: float | TimeSeriesSpec | None
+    trajectory: Path | None
+    ozone_column_du: float | TimeSeriesSpec
+    psc_surface_area: float | TimeSeriesSpec | ThresholdRuleSpec
+    sulfate_surface_area: float | TimeSeriesSpec
+    albedo: float
+    initial: Mapping[str, tuple[float, str]]     # species -> (value, "mole_fraction"|"number_density")
+    rtol: float
+    atol: float
+    solver_method: str
+    max_step_s: float | None
+    scale: Mapping[str, float]
+    photolysis_method: str
+    ozone_column_follows_box: bool
+    overrides: Mapping[str, Any] = field(default_factory=dict)
+    mechanism: Any = field(default=None, repr=False, compare=False)
+
+    # -- construction ----------------------------------------------------------
+    @classmethod
+    def from_text(cls, text: str, base_dir: str | Path = ".", source: str = "<scenario>",
+                  *, mechanism: Any = None) -> "Scenario":
+        """Parse and validate TOML ``text``; relative paths are read against ``base_dir``.
+
+        ``mechanism`` (a :class:`~boxchem.mechanism.model.Mechanism`) skips
+        loading the mechanism named in ``[run].mechanism``.
+        """
+        try:
+            data = tomllib.loads(text)
+        except tomllib.TOMLDecodeError as exc:
+            raise ScenarioError(f"{source}: not valid TOML: {exc}") from None
+        return _build(data, text=text, base_dir=Path(base_dir), source=source,
+                      mechanism=mechanism, overrides={})
+
+    def with_overrides(self, *, scale: Mapping[str, float] | None = None,
+                       **overrides: Any) -> "Scenario":
+        """A new scenario with some values replaced, validated like the file.
+
+        ``overrides`` keys are ``"section.key"`` (``{"run.duration": "2 d"}``)
+        or a bare key that names one key of one section (``duration="2 d"``,
+        ``rtol=1e-6``).  ``scale`` entries multiply onto the file's ``[scale]``.
+        The original text stays in ``text``; the overrides are kept in
+        ``overrides`` for provenance.
+        """
+        data = copy.deepcopy(dict(self.data))
+        record = dict(self.overrides)
+        for key, value in overrides.items():
+            section, name = _override_target(key, self.source)
+            if section == "initial" and isinstance(value, Mapping):
+                data.setdefault("initial", {}).update(value)
+            else:
+                data.setdefault(section, {})[name] = value
+            record[f"{section}.{name}"] = value
+        if scale:
+            table = data.setdefault("scale", {})
+            for rid, factor in scale.items():
+                old = table.get(rid, 1.0)
+                if isinstance(old, (int, float)) and not isinstance(old, bool) \
+                        and isinstance(factor, (int, float)) and not isinstance(factor, bool):
+                    table[rid] = float(old) * float(factor)
+                else:
+                    table[rid] = factor  # let validation report the bad value
+                record[f"scale.{rid}"] = factor
+        return _build(data, text=self.text, base_dir=self.base_dir, source=self.source,
+                      mechanism=self.mechanism, overrides=record)
+
+    # -- derived -----------------------------------------------------------------
+    @property
+    def end(self) -> np.datetime64:
+        return self.start + np.timedelta64(int(round(self.duration_s * 1e9)), "ns")
+
+    def output_times_s(self) -> np.ndarray:
+        """Output times [s since start]: every ``output_interval`` and the end time."""
+        n = int(math.floor(self.duration_s / self.output_interval_s + 1e-9))
+        times = np.arange(n + 1, dtype=float) * self.output_interval_s
+        if self.duration_s - times[-1] > 1e-6 * self.output_interval_s:
+            times = np.append(times, self.duration_s)
+        return times
+
+    def summary_dict(self) -> dict[str, Any]:
+        """Scalar settings worth recording as netCDF attributes."""
+        return {"rtol": self.rtol, "atol": self.atol, "solver_method": self.solver_method,
+                "photolysis_method": self.photolysis_method,
+                "ozone_column_follows_box": int(self.ozone_column_follows_box)}
+
+
+def load_scenario(path_or_name: str | Path, *, mechanism: Any = None) -> Scenario:
+    """Read a scenario file by path or shipped bare name (``"stratosphere-box"``)."""
+    from .resources import resolve
+    try:
+        path = resolve(path_or_name, "scenarios")
+    except BoxchemError as exc:
+        raise ScenarioError(str(exc)) from None
+    text = path.read_text(encoding="utf-8")
+    return Scenario.from_text(text, base_dir=path.parent.resolve(), source=path.name, mechanism=mechanism)
+
+
+# ---------------------------------------------------------------------------
+# validation
+# ---------------------------------------------------------------------------
+class _Errors:
+    """Collects messages ``source: [section].key: message``."""
+
+    def __init__(self, source: str):
+        self.source = source
+        self.messages: list[str] = []
+
+    def add(self, where: str, message: str) -> None:
+        self.messages.append(f"{self.source}: {where}: {message}")
+
+    def add_unit_error(self, exc: UnitError) -> None:
+        self.messages.append(str(exc))
+
+    def raise_if_any(self) -> None:
+        if not self.messages:
+            return
+        if len(self.messages) == 1:
+            raise ScenarioError(self.messages[0])
+        body = "\n".join(f"  {m}" for m in self.messages)
+        raise ScenarioError(f"{len(self.messages)} problems in scenario {self.source}:\n{body}")
+
+
+def _override_target(key: str, source: str) -> tuple[str, str]:
+    if "." in key:
+        section, name = key.split(".", 1)
+        return section, name
+    owners = [s for s, keys in SCENARIO_KEYS.items() if key in keys]
+    if key in ("initial", "scale"):
+        return key, key
+    if len(owners) == 1:
+        return owners[0], key
+    if len(owners) > 1:
+        raise ScenarioError(f"{source}: override {key!r} is ambiguous; write one of "
+                            f"{', '.join(f'{s}.{key}' for s in owners)}")
+    valid = sorted({k for keys in SCENARIO_KEYS.values() for k in keys})
+    raise ScenarioError(f"{source}: unknown override {key!r}; valid keys: {', '.join(valid)} "
+                        f"(or 'section.key')")
+
+
+def _where(section: str, key: str | None = None) -> str:
+    return f"[{section}]" if key is None else f"[{section}].{key}"
+
+
+def _check_keys(table: Mapping[str, Any], section: str, valid: tuple[str, ...], err: _Errors,
+                *, label: str = "key") -> None:
+    for key in table:
+        if key not in valid:
+            hint = difflib.get_close_matches(key, valid, n=1)
+            extra = f" - did you mean {hint[0]!r}?" if hint else ""
+            err.add(_where(section, key), f"unknown {label} {key!r}{extra}; valid: {', '.join(valid)}")
+
+
+def _quantity(value: Any, kind: str, where: str, err: _Errors, *,
+              default_unit: str | None = None) -> float | None:
+    try:
+        return parse_quantity(value, kind, default_unit=default_unit, where=f"{err.source}: {where}")
+    except UnitError as exc:
+        err.add_unit_error(exc)
+        return None
+
+
+def _parse_time(value: Any, start: np.datetime64 | None, where: str, err: _Errors,
+                time_unit: str | None) -> float | None:
+    """A series time: a duration since start ("10 d") or a UTC date-time."""
+    if isinstance(value, (_dt.datetime, _dt.date)) or (
+            isinstance(value, str) and len(value) >= 10 and value[4:5] == "-" and value[7:8] == "-"):
+        if start is None:
+            err.add(where, "date-times need a valid [run].start")
+            return None
+        t = _datetime64(value, where, err)
+        if t is None:
+            return None
+        return float((t - start) / np.timedelta64(1, "ns")) * 1e-9
+    return _quantity(value, "time", where, err, default_unit=time_unit)
+
+
+def _datetime64(value: Any, where: str, err: _Errors) -> np.datetime64 | None:
+    """UTC date-time from a TOML date-time or an ISO 8601 string; naive means UTC."""
+    try:
+        if isinstance(value, str):
+            text = value.strip().replace("Z", "+00:00")
+            value = _dt.datetime.fromisoformat(text)
+        if isinstance(value, _dt.datetime):
+            if value.tzinfo is not None:
+                value = value.astimezone(_dt.timezone.utc).replace(tzinfo=None)
+            return np.datetime64(value, "ns")
+        if isinstance(value, _dt.date):
+            return np.datetime64(value, "ns")
+    except (ValueError, TypeError):
+        pass
+    err.add(where, f"cannot read {value!r} as a UTC date-time; write e.g. \"2026-09-01T00:00:00Z\"")
+    return None
+
+
+def _series_or_value(value: Any, kind: str, where: str, err: _Errors, *,
+                     start: np.datetime64 | None, default_unit: str | None = None,
+                     check=None) -> float | TimeSeriesSpec | None:
+    """A constant with unit, or an inline ``{ times = [...], values = [...] }`` table."""
+    if isinstance(value, Mapping):
+        bad = [k for k in value if k not in _SERIES_KEYS]
+        for k in bad:
+            err.add(f"{where}.{k}", f"unknown key in a time series; valid: {', '.join(_SERIES_KEYS)}")
+        times, values = value.get("times"), value.get("values")
+        if not isinstance(times, list) or not isinstance(values, list) or not times:
+            err.add(where, "a time series needs non-empty lists 'times' and 'values', e.g. "
+                           "{ times = [\"0 d\", \"10 d\"], values = [\"195 K\", \"200 K\"] }")
+            return None
+        if len(times) != len(values):
+            err.add(where, f"'times' has {len(times)} entries but 'values' has {len(values)}; "
+                           "they must have the same length")
+            return None
+        time_unit = value.get("time_unit")
+        unit = value.get("unit", default_unit)
+        ts = [_parse_time(t, start, f"{where}.times[{i}]", err, time_unit) for i, t in enumerate(times)]
+        vs = [_quantity(v, kind, f"{where}.values[{i}]", err, default_unit=unit)
+              for i, v in enumerate(values)]
+        if any(t is None for t in ts) or any(v is None for v in vs):
+            return None
+        t_arr, v_arr = np.asarray(ts, float), np.asarray(vs, float)
+        if np.any(np.diff(t_arr) <= 0):
+            err.add(f"{where}.times", "times must be strictly increasing")
+            return None
+        if check is not None:
+            for i, v in enumerate(v_arr):
+                msg = check(float(v))
+                if msg:
+                    err.add(f"{where}.values[{i}]", msg)
+                    return None
+        return TimeSeriesSpec(t_arr, v_arr)
+    q = _quantity(value, kind, where, err, default_unit=default_unit)
+    if q is not None and check is not None:
+        msg = check(q)
+        if msg:
+            err.add(where, msg)
+            return None
+    return q
+
+
+def _positive(name: str, unit: str):
+    return lambda v: None if v > 0 else f"{name} must be > 0 {unit}, got {v:g} {unit}"
+
+
+def _non_negative(name: str, unit: str):
+    return lambda v: None if v >= 0 else f"{name} must be >= 0 {unit}, got {v:g} {unit}"
+
+
+def _latitude_check(v: float) -> str | None:
+    return None if -90.0 <= v <= 90.0 else f"latitude must lie in [-90, 90] degrees north, got {v:g}"
+
+
+def _longitude_check(v: float) -> str | None:
+    return None if -360.0 <= v <= 360.0 else f"longitude must lie in [-360, 360] degrees east, got {v:g}"
+
+
+def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
+           mechanism: Any, overrides: Mapping[str, Any]) -> Scenario:
+    err = _Errors(source)
+    sections = tuple(SCENARIO_KEYS) + _FREE_SECTIONS
+    for name, value in data.items():
+        if name not in sections:
+            hint = difflib.get_close_matches(name, sections, n=1)
+            extra = f" - did you mean [{hint[0]}]?" if hint else ""
+            err.add(f"[{name}]", f"unknown section{extra}; valid sections: "
+                                 f"{', '.join(f'[{s}]' for s in sections)}")
+        elif not isinstance(value, Mapping):
+            err.add(f"[{name}]", f"expected a table, got {value!r}")
+    tables = {s: data.get(s, {}) if isinstance(data.get(s, {}), Mapping) else {} for s in sections}
+    for section, keys in SCENARIO_KEYS.items():
+        _check_keys(tables[section], section, keys, err)
+
+    run, loc, env = tables["run"], tables["location"], tables["environment"]
+    solver, phot = tables["solver"], tables["photolysis"]
+
+    # [run] ---------------------------------------------------------------------
+    mechanism_path = None
+    if "mechanism" not in run and mechanism is None:
+        err.add("[run].mechanism", "missing; give a shipped mechanism name (e.g. \"stratosphere\") "
+                                   "or a path relative to the scenario file")
+    elif "mechanism" in run:
+        if not isinstance(run["mechanism"], str):
+            err.add("[run].mechanism", f"expected a name or path string, got {run['mechanism']!r}")
+        else:
+            from .resources import resolve
+            try:
+                mechanism_path = resolve(run["mechanism"], "mechanisms", relative_to=base_dir)
+            except BoxchemError as exc:
+                err.add("[run].mechanism", str(exc))
+    start = None
+    if "start" not in run:
+        err.add("[run].start", "missing; give the UTC start, e.g. start = \"2026-09-01T00:00:00Z\"")
+    else:
+        start = _datetime64(run["start"], "[run].start", err)
+    duration = None
+    if "duration" not in run:
+        err.add("[run].duration", "missing; give e.g. duration = \"30 d\" (s, min, h, d)")
+    else:
+        duration = _quantity(run["duration"], "time", "[run].duration", err)
+        if duration is not None and duration <= 0:
+            err.add("[run].duration", f"must be > 0, got {run['duration']!r}")
+            duration = None
+    interval = DEFAULT_OUTPUT_INTERVAL_S
+    if "output_interval" in run:
+        interval = _quantity(run["output_interval"], "time", "[run].output_interval", err)
+        if interval is not None and interval <= 0:
+            err.add("[run].output_interval", f"must be > 0, got {run['output_interval']!r}")
+            interval = None
+        if interval is not None and duration is not None and interval > duration:
+            err.add("[run].output_interval", f"{run['output_interval']!r} is longer than the "
+                                             f"duration {run['duration']!r}; use at most the duration")
+
+    # [location] ------------------------------------------------------------------
+    latitude = None
+    if "latitude" not in loc:
+        err.add("[location].latitude", "missing; give degrees north in [-90, 90], e.g. latitude = -70.0")
+    else:
+        latitude = _series_or_value(loc["latitude"], "angle", "[location].latitude", err,
+                                    start=start, default_unit="deg", check=_latitude_check)
+    longitude = _series_or_value(loc.get("longitude", DEFAULT_LONGITUDE_DEG), "angle",
+                                 "[location].longitude", err, start=start, default_unit="deg",
+                                 check=_longitude_check)
+    altitude = loc_pressure = None
+    if "altitude" in loc:
+        altitude = _quantity(loc["altitude"], "length", "[location].altitude", err)
+        if altitude is not None and not _ALTITUDE_RANGE_M[0] <= altitude <= _ALTITUDE_RANGE_M[1]:
+            err.add("[location].altitude", f"{loc['altitude']!r} is outside "
+                                           f"{_ALTITUDE_RANGE_M[0]:g} to {_ALTITUDE_RANGE_M[1]:g} m")
+            altitude = None
+    if "pressure" in loc:
+        loc_pressure = _quantity(loc["pressure"], "pressure", "[location].pressure", err)
+        if loc_pressure is not None and loc_pressure <= 0:
+            err.add("[location].pressure", f"must be > 0, got {loc['pressure']!r}")
+            loc_pressure = None
+    if "altitude" not in loc and "pressure" not in loc and "trajectory" not in env:
+        err.add("[location]", "give the box's altitude (e.g. altitude = \"18 km\") or its "
+                              "pressure (e.g. pressure = \"60 hPa\")")
+
+    # [environment] -----------------------------------------------------------------
+    trajectory = None
+    if "trajectory" in env:
+        if not isinstance(env["trajectory"], str):
+            err.add("[environment].trajectory", f"expected a file path, got {env['trajectory']!r}")
+        else:
+            trajectory = (base_dir / env["trajectory"]).expanduser()
+            if not trajectory.is_file():
+                err.add("[environment].trajectory", f"no file {str(trajectory)!r} (paths are "
+                                                    "relative to the scenario file)")
+                trajectory = None
+    temperature = pressure = None
+    if "temperature" in env:
+        temperature = _series_or_value(env["temperature"], "temperature", "[environment].temperature",
+                                       err, start=start, check=_positive("temperature", "K"))
+    if "pressure" in env:
+        pressure = _series_or_value(env["pressure"], "pressure", "[environment].pressure",
+                                    err, start=start, check=_positive("pressure", "Pa"))
+    ozone = _series_or_value(env.get("ozone_column", f"{DEFAULT_OZONE_COLUMN_DU} DU"), "column",
+                             "[environment].ozone_column", err, start=start,
+                             check=_non_negative("ozone column", "DU"))
+    psc = _psc_area(env.get("psc_surface_area", "0 um2 cm-3"), err, start)
+    sulfate = _series_or_value(env.get("sulfate_surface_area", "0 um2 cm-3"), "surface_area",
+                               "[environment].sulfate_surface_area", err, start=start,
+                               check=_non_negative("surface area", "cm2 cm-3"))
+    albedo = env.get("albedo", DEFAULT_ALBEDO)
+    if isinstance(albedo, bool) or not isinstance(albedo, (int, float)) or not 0.0 <= albedo <= 1.0:
+        err.add("[environment].albedo", f"expected a number in [0, 1], got {albedo!r}")
+        albedo = None
+
+    # [solver] ------------------------------------------------------------------------
+    rtol = _plain_number(solver, "rtol", DEFAULT_RTOL, "[solver].rtol", err,
+                         lambda v: None if 0 < v < 1 else "must lie in (0, 1), e.g. 1e-4")
+    atol = DEFAULT_ATOL_CM3
+    if "atol" in solver:
+        raw = solver["atol"]
+        if isinstance(raw, str):
+            try:
+                value, kind = parse_amount(raw, where=f"{source}: [solver].atol")
+                if kind != "number_density":
+                    err.add("[solver].atol", f"must be a number density (cm-3), got {raw!r}")
+                else:
+                    atol = value
+            except UnitError as exc:
+                err.add_unit_error(exc)
+        else:
+            atol = _plain_number(solver, "atol", DEFAULT_ATOL_CM3, "[solver].atol", err, None)
+        if atol is not None and atol <= 0:
+            err.add("[solver].atol", f"must be > 0 cm-3, got {raw!r}")
+    method = solver.get("method", DEFAULT_SOLVER_METHOD)
+    if method not in SOLVER_METHODS:
+        err.add("[solver].method", f"unknown method {method!r}; valid: {', '.join(SOLVER_METHODS)}")
+    max_step = None
+    if "max_step" in solver:
+        max_step = _quantity(solver["max_step"], "time", "[solver].max_step", err)
+        if max_step is not None and max_step <= 0:
+            err.add("[solver].max_step", f"must be > 0, got {solver['max_step']!r}")
+
+    # [photolysis] ---------------------------------------------------------------------
+    phot_method = phot.get("method", DEFAULT_PHOTOLYSIS_METHOD)
+    if phot_method not in PHOTOLYSIS_METHODS:
+        err.add("[photolysis].method", f"unknown method {phot_method!r}; valid: "
+                                       f"{', '.join(PHOTOLYSIS_METHODS)}")
+    follows = phot.get("ozone_column_follows_box", False)
+    if not isinstance(follows, bool):
+        err.add("[photolysis].ozone_column_follows_box", f"expected true or false, got {follows!r}")
+
+    # mechanism-dependent sections -----------------------------------------------------------
+    if mechanism is None and mechanism_path is not None:
+        from .errors import MechanismError
+        load_mechanism = _mechanism_loader()
+        try:
+            mechanism = load_mechanism(mechanism_path)
+        except MechanismError as exc:
+            err.add("[run].mechanism", f"the mechanism {str(mechanism_path)!r} has errors:\n{exc}")
+    initial = _initial(tables["initial"], mechanism, err)
+    scale = _scale(tables["scale"], mechanism, err)
+    if follows is True and mechanism is not None and "O3" not in mechanism.species_names:
+        err.add("[photolysis].ozone_column_follows_box", "needs a species O3 in the mechanism")
+
+    err.raise_if_any()
+    return Scenario(
+        source=source, text=text, data=copy.deepcopy(dict(data)), base_dir=base_dir,
+        mechanism_path=mechanism_path if mechanism_path is not None else Path(getattr(mechanism, "source", "") or "."),
+        start=start, duration_s=float(duration), output_interval_s=float(interval),
+        latitude=latitude, longitude=longitude, altitude_m=altitude,
+        location_pressure_pa=loc_pressure, temperature=temperature, pressure=pressure,
+        trajectory=trajectory, ozone_column_du=ozone, psc_surface_area=psc,
+        sulfate_surface_area=sulfate, albedo=float(albedo), initial=initial,
+        rtol=float(rtol), atol=float(atol), solver_method=method, max_step_s=max_step,
+        scale=scale, photolysis_method=phot_method, ozone_column_follows_box=follows,
+        overrides=dict(overrides), mechanism=mechanism)
+
+
+def _mechanism_loader():
+    """``load_mechanism`` from the mechanism package (re-exported) or its parser module."""
+    from . import mechanism as mech_pkg
+    loader = getattr(mech_pkg, "load_mechanism", None)
+    if loader is None:
+        from .mechanism.parser import load_mechanism as loader
+    return loader
+
+
+def _plain_number(table: Mapping[str, Any], key: str, default: float, where: str, err: _Errors,
+                  check) -> float | None:
+    value = table.get(key, default)
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        err.add(where, f"expected a number, got {value!r}")
+        return None
+    if check is not None:
+        msg = check(float(value))
+        if msg:
+            err.add(where, f"{msg}; got {value!r}")
+            return None
+    return float(value)
+
+
+def _psc_area(value: Any, err: _Errors, start) -> Any:
+    where = "[environment].psc_surface_area"
+    if isinstance(value, Mapping) and "rule" in value:
+        for k in value:
+            if k not in _RULE_KEYS:
+                err.add(f"{where}.{k}", f"unknown key in a rule; valid: {', '.join(_RULE_KEYS)}")
+        if value["rule"] != "threshold":
+            err.add(f"{where}.rule", f"unknown rule {value['rule']!r}; valid: \"threshold\"")
+            return None
+        missing = [k for k in ("area", "below") if k not in value]
+        if missing:
+            err.add(where, f"the threshold rule needs {' and '.join(missing)}, e.g. "
+                           "{ rule = \"threshold\", area = \"2 um2 cm-3\", below = \"195 K\" }")
+            return None
+        area = _quantity(value["area"], "surface_area", f"{where}.area", err)
+        below = _quantity(value["below"], "temperature", f"{where}.below", err)
+        if area is not None and area < 0:
+            err.add(f"{where}.area", f"must be >= 0, got {value['area']!r}")
+            return None
+        if below is not None and below <= 0:
+            err.add(f"{where}.below", f"must be > 0 K, got {value['below']!r}")
+            return None
+        if area is None or below is None:
+            return None
+        return ThresholdRuleSpec(area=area, below=below)
+    return _series_or_value(value, "surface_area", where, err, start=start,
+                            check=_non_negative("surface area", "cm2 cm-3"))
+
+
+def _initial(table: Mapping[str, Any], mechanism: Any, err: _Errors) -> dict[str, tuple[float, str]]:
+    out: dict[str, tuple[float, str]] = {}
+    names = tuple(mechanism.species_names) if mechanism is not None else None
+    for name, raw in table.items():
+        where = _where("initial", name)
+        if names is not None and name not in names:
+            hint = difflib.get_close_matches(name, names, n=1)
+            extra = f" - did you mean {hint[0]!r}?" if hint else ""
+            err.add(where, f"unknown species {name!r}{extra}; the mechanism has "
+                           f"{', '.join(names)}")
+            continue
+        if name == "M":
+            err.add(where, "M is the air itself; its number density follows pressure and temperature")
+            continue
+        try:
+            value, kind = parse_amount(raw, where=f"{err.source}: {where}")
+        except UnitError as exc:
+            err.add_unit_error(exc)
+            continue
+        if value < 0:
+            err.add(where, f"must be >= 0, got {raw!r} (a negative amount is not physical)")
+            continue
+        if kind == "mole_fraction" and value > 1:
+            err.add(where, f"a mole fraction must be <= 1 mol/mol, got {raw!r}")
+            continue
+        out[name] = (value, kind)
+    if mechanism is not None:
+        for sp in mechanism.fixed_species:
+            if not sp.is_air and sp.mole_fraction is None and sp.name not in out:
+                err.add(_where("initial", sp.name),
+                        f"missing: the fixed species {sp.name} has no mole fraction in the "
+                        f"mechanism; give one here (e.g. {sp.name} = \"1 ppmv\") or in cm-3")
+    return out
+
+
+def _scale(table: Mapping[str, Any], mechanism: Any, err: _Errors) -> dict[str, float]:
+    out: dict[str, float] = {}
+    ids = tuple(mechanism.reaction_ids) if mechanism is not None else None
+    for rid, factor in table.items():
+        where = _where("scale", rid)
+        if ids is not None and rid not in ids:
+            hint = difflib.get_close_matches(rid, ids, n=1)
+            extra = f" - did you mean {hint[0]!r}?" if hint else ""
+            err.add(where, f"unknown reaction id {rid!r}{extra}")
+            continue
+        if isinstance(factor, bool) or not isinstance(factor, (int, float)) \
+                or not math.isfinite(factor) or factor < 0:
+            err.add(where, f"expected a finite factor >= 0, got {factor!r}")
+            continue
+        out[rid] = float(factor)
+    return out
