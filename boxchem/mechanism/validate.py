@@ -242,7 +242,8 @@ def _check_duplicates(reactions, err) -> None:
     seen: dict[tuple, Reaction] = {}
     for r in reactions:
         key = (frozenset(_stoich(r.reactants).items()), frozenset(_stoich(r.products).items()),
-               r.law, r.third_body, r.photolysis)
+               r.law, r.third_body, r.photolysis,
+               r.parameters.get("on") if r.law == "surface" else None)
         if key in seen:
             first = seen[key]
             err(f"reactions {first.id!r} and {r.id!r} have the same equation and law ({r.law}); "
