@@ -1,0 +1,140 @@
+"""Access to a run's output Dataset for the diagnostics: checks and lookups.
+
+The diagnostics read only what the output contract of ``boxchem.run``
+promises (see DEVELOPERS.md, "Output").  Production and loss need two more
+arrays that the runner writes beside the contract variables:
+
+* ``stoichiometry`` (species, reaction): net coefficient of each species in
+  each reaction, products minus reactants, with M and hv left out;
+* ``family_weight`` (family, species): the weight of each species in each
+  family (e.g. 2 for Cl2O2 in Cly).
+
+When a Dataset lacks them (an older file, a hand-made Dataset), they can be
+built from an explicit :class:`~boxchem.mechanism.model.Mechanism`.
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+
+from ..errors import BoxchemError
+
+__all__ = [
+    "ResultError", "open_result", "require", "stoichiometry", "family_weights",
+    "elapsed_seconds", "is_family", "is_species", "names_or_error",
+]
+
+#: variables without which a Dataset is not a boxchem result
+CORE_VARIABLES = ("number_density", "mole_fraction", "reaction_rate")
+
+
+class ResultError(BoxchemError):
+    """A result file is missing or is not a boxchem result, or lacks what was asked for."""
+
+
+def open_result(path: str | Path) -> xr.Dataset:
+    """Open a netCDF file written by ``boxchem run`` and check it is a boxchem result."""
+    path = Path(path)
+    if not path.exists():
+        raise ResultError(f"{path}: no such file (expected a netCDF file written by 'boxchem run')")
+    try:
+        ds = xr.load_dataset(path)
+    except Exception as exc:  # netCDF4/h5 raise many kinds; the message is what matters
+        raise ResultError(f"{path}: cannot be read as netCDF ({type(exc).__name__}: {exc})") from None
+    missing = [v for v in CORE_VARIABLES if v not in ds.variables]
+    if missing or "time" not in ds.dims:
+        raise ResultError(
+            f"{path}: not a boxchem result: missing {', '.join(missing) or 'the time dimension'} "
+            f"(a result has {', '.join(CORE_VARIABLES)} over time; write one with 'boxchem run')")
+    ds.attrs.setdefault("source_file", str(path))
+    return ds
+
+
+def require(ds: xr.Dataset, names, what: str) -> None:
+    """Raise ResultError naming every variable of ``names`` that ``ds`` lacks."""
+    missing = [n for n in names if n not in ds.variables]
+    if missing:
+        src = ds.attrs.get("source_file", "the Dataset")
+        raise ResultError(f"{src}: {what} needs the variable(s) {', '.join(missing)}, "
+                          f"which this result does not have")
+
+
+def names_or_error(ds: xr.Dataset, dim: str, names, what: str) -> list[str]:
+    """Check that every name is a label of ``dim``; the error lists the valid ones."""
+    valid = [str(v) for v in ds[dim].values] if dim in ds.coords else []
+    names = [names] if isinstance(names, str) else list(names)
+    unknown = [n for n in names if n not in valid]
+    if unknown:
+        raise ResultError(f"unknown {what} {', '.join(repr(u) for u in unknown)}; "
+                          f"this result has: {', '.join(valid) or '(none)'}")
+    return names
+
+
+def is_species(ds: xr.Dataset, name: str) -> bool:
+    return "species" in ds.coords and name in set(ds["species"].values.tolist())
+
+
+def is_family(ds: xr.Dataset, name: str) -> bool:
+    return "family" in ds.coords and name in set(ds["family"].values.tolist())
+
+
+def stoichiometry(ds: xr.Dataset, mechanism=None) -> xr.DataArray:
+    """Net stoichiometric coefficients (species, reaction) [1].
+
+    From ``ds.stoichiometry`` when present, else from ``mechanism``
+    (products minus reactants; M and hv are never terms in the data model).
+    """
+    if mechanism is None and "stoichiometry" in ds.variables:
+        return ds["stoichiometry"]
+    if mechanism is None:
+        raise ResultError("production and loss need the 'stoichiometry' variable of a run "
+                          "or an explicit mechanism= argument; this Dataset has neither")
+    species = [str(s) for s in ds["species"].values]
+    index = {s: i for i, s in enumerate(species)}
+    reactions = {r.id: r for r in mechanism.reactions}
+    ids = [str(r) for r in ds["reaction"].values]
+    missing = [r for r in ids if r not in reactions]
+    if missing:
+        raise ResultError(f"reaction(s) {', '.join(missing)} of the result are not in the "
+                          f"mechanism {mechanism.source or '(given)'}: was the run made with another one?")
+    nu = np.zeros((len(species), len(ids)))
+    for j, rid in enumerate(ids):  # built once per call, not a hot path
+        for term in reactions[rid].reactants:
+            if term.species in index:
+                nu[index[term.species], j] -= term.coefficient
+        for term in reactions[rid].products:
+            if term.species in index:
+                nu[index[term.species], j] += term.coefficient
+    return xr.DataArray(nu, dims=("species", "reaction"),
+                        coords={"species": ds["species"], "reaction": ds["reaction"]},
+                        name="stoichiometry", attrs={"units": "1"})
+
+
+def family_weights(ds: xr.Dataset, mechanism=None) -> xr.DataArray:
+    """Weight of each species in each family (family, species) [1]."""
+    if mechanism is None and "family_weight" in ds.variables:
+        return ds["family_weight"]
+    if mechanism is None:
+        raise ResultError("family budgets need the 'family_weight' variable of a run "
+                          "or an explicit mechanism= argument; this Dataset has neither")
+    species = [str(s) for s in ds["species"].values]
+    index = {s: i for i, s in enumerate(species)}
+    fams = list(mechanism.families)
+    w = np.zeros((len(fams), len(species)))
+    for i, fam in enumerate(fams):
+        for name, weight in fam.members.items():
+            if name in index:
+                w[i, index[name]] = weight
+    return xr.DataArray(w, dims=("family", "species"),
+                        coords={"family": [f.name for f in fams], "species": ds["species"]},
+                        name="family_weight", attrs={"units": "1"})
+
+
+def elapsed_seconds(ds: xr.Dataset) -> np.ndarray:
+    """Seconds since the first output time [s], as float64."""
+    t = ds["time"].values
+    if np.issubdtype(t.dtype, np.datetime64):
+        return (t - t[0]).astype("timedelta64[ns]").astype(np.float64) * 1e-9
+    return np.asarray(t, dtype=np.float64) - float(t[0])
