@@ -117,7 +117,7 @@ def _lex(line: str, start: int = 0, end: int | None = None) -> list[_Token]:
 
 
 def _suggest(word: str, options) -> str:
-    hint = difflib.get_close_matches(word, list(options), n=1)
+    hint = difflib.get_close_matches(word, list(options), n=1, cutoff=0.5)
     return f" - did you mean {hint[0]!r}?" if hint else ""
 
 

@@ -39,7 +39,7 @@ _BOUNDS = {
 
 
 def _suggest(word: str, options: Iterable[str]) -> str:
-    hint = difflib.get_close_matches(word, list(options), n=1)
+    hint = difflib.get_close_matches(word, list(options), n=1, cutoff=0.5)
     return f" - did you mean {hint[0]!r}?" if hint else ""
 
 
@@ -132,7 +132,7 @@ def _check_reaction(r: Reaction, species, known, reactions, ignore_reactions, er
             _at(loc, "photolysis"))
     if r.photolysis and r.law != "photolysis":
         err(f"reaction {r.id!r}: hv on the left needs the photolysis law, found {r.law!r}", _at(loc, r.law))
-    if r.law == "photolysis" and (len(r.reactants) != 1 or r.reactants[0].coefficient != 1):
+    if r.law == "photolysis" and r.photolysis and (len(r.reactants) != 1 or r.reactants[0].coefficient != 1):
         err(f"reaction {r.id!r}: photolysis takes exactly one molecule besides hv", _at(loc, "hv"))
     if r.law == "surface":
         on = r.parameters.get("on")
