@@ -32,7 +32,7 @@ __all__ = ["Scenario", "TimeSeriesSpec", "ThresholdRuleSpec", "load_scenario",
            "SCENARIO_KEYS", "SOLVER_METHODS", "PHOTOLYSIS_METHODS"]
 
 #: solver methods a scenario may name (see boxchem.solver)
-SOLVER_METHODS = ("rosenbrock", "bdf", "radau", "lsoda")
+SOLVER_METHODS = ("ros3",)
 #: photolysis methods (see boxchem.photolysis.rates.PhotolysisRates)
 PHOTOLYSIS_METHODS = ("spectral", "parametric")
 
@@ -43,11 +43,11 @@ SCENARIO_KEYS: dict[str, tuple[str, ...]] = {
     "environment": ("temperature", "pressure", "trajectory", "ozone_column",
                     "psc_surface_area", "sulfate_surface_area", "albedo"),
     "solver": ("rtol", "atol", "method", "max_step"),
-    "photolysis": ("method", "ozone_column_follows_box"),
+    "photolysis": ("method",),
 }
 _FREE_SECTIONS = ("initial", "scale")
 _SERIES_KEYS = ("times", "values", "time_unit", "unit")
-_RULE_KEYS = ("rule", "area", "below")
+_RULE_KEYS = ("rule", "area", "below", "width")
 
 #: defaults (internal units); documented in docs/scenarios.md
 DEFAULT_OUTPUT_INTERVAL_S = 3600.0
@@ -56,7 +56,7 @@ DEFAULT_OZONE_COLUMN_DU = 300.0     # a typical mid-latitude total column; commo
 DEFAULT_ALBEDO = 0.3                # a common global-mean surface/cloud albedo; common practice, no source
 DEFAULT_RTOL = 1.0e-4
 DEFAULT_ATOL_CM3 = 1.0e-2
-DEFAULT_SOLVER_METHOD = "rosenbrock"
+DEFAULT_SOLVER_METHOD = "ros3"
 DEFAULT_PHOTOLYSIS_METHOD = "spectral"
 
 # physical ranges for plausibility checks (wide on purpose: reject only nonsense)
@@ -78,10 +78,15 @@ class TimeSeriesSpec:
 
 @dataclass(frozen=True)
 class ThresholdRuleSpec:
-    """PSC surface area ``area`` [cm2 cm-3] while temperature < ``below`` [K], else 0."""
+    """PSC surface area ``area`` [cm2 cm-3] below ``below`` [K], ramped in over ``width`` [K].
+
+    Evaluated by :class:`boxchem.environment.history.PscThresholdRule`
+    (smoothstep from 0 at ``below`` to ``area`` at ``below - width``).
+    """
 
     area: float
     below: float
+    width: float = 1.0
 
 
 Value = float | TimeSeriesSpec | ThresholdRuleSpec | None
@@ -122,7 +127,6 @@ class Scenario:
     max_step_s: float | None
     scale: Mapping[str, float]
     photolysis_method: str
-    ozone_column_follows_box: bool
     overrides: Mapping[str, Any] = field(default_factory=dict)
     mechanism: Any = field(default=None, repr=False, compare=False)
 
@@ -190,8 +194,7 @@ class Scenario:
     def summary_dict(self) -> dict[str, Any]:
         """Scalar settings worth recording as netCDF attributes."""
         return {"rtol": self.rtol, "atol": self.atol, "solver_method": self.solver_method,
-                "photolysis_method": self.photolysis_method,
-                "ozone_column_follows_box": int(self.ozone_column_follows_box)}
+                "photolysis_method": self.photolysis_method}
 
 
 def load_scenario(path_or_name: str | Path, *, mechanism: Any = None) -> Scenario:
@@ -420,9 +423,9 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
 
     # [location] ------------------------------------------------------------------
     latitude = None
-    if "latitude" not in loc:
+    if "latitude" not in loc and "trajectory" not in env:
         err.add("[location].latitude", "missing; give degrees north in [-90, 90], e.g. latitude = -70.0")
-    else:
+    elif "latitude" in loc:
         latitude = _series_or_value(loc["latitude"], "angle", "[location].latitude", err,
                                     start=start, default_unit="deg", check=_latitude_check)
     longitude = _series_or_value(loc.get("longitude", DEFAULT_LONGITUDE_DEG), "angle",
@@ -455,6 +458,21 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
                 err.add("[environment].trajectory", f"no file {str(trajectory)!r} (paths are "
                                                     "relative to the scenario file)")
                 trajectory = None
+    if trajectory is not None:
+        from .environment.history import load_trajectory_csv
+        from .errors import DataFileError
+        try:
+            columns = load_trajectory_csv(trajectory)
+        except (DataFileError, ScenarioError) as exc:
+            err.add("[environment].trajectory", str(exc))
+        else:
+            for key, section in (("temperature", "environment"), ("pressure", "environment"),
+                                 ("latitude", "location"), ("longitude", "location"),
+                                 ("altitude", "location")):
+                table = env if section == "environment" else loc
+                if key in columns and key in table:
+                    err.add(f"[{section}].{key}", f"given both here and by the trajectory file "
+                                                  f"{str(trajectory)!r}; give it one way only")
     temperature = pressure = None
     if "temperature" in env:
         temperature = _series_or_value(env["temperature"], "temperature", "[environment].temperature",
@@ -507,9 +525,6 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
     if phot_method not in PHOTOLYSIS_METHODS:
         err.add("[photolysis].method", f"unknown method {phot_method!r}; valid: "
                                        f"{', '.join(PHOTOLYSIS_METHODS)}")
-    follows = phot.get("ozone_column_follows_box", False)
-    if not isinstance(follows, bool):
-        err.add("[photolysis].ozone_column_follows_box", f"expected true or false, got {follows!r}")
 
     # mechanism-dependent sections -----------------------------------------------------------
     if mechanism is None and mechanism_path is not None:
@@ -521,8 +536,6 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
             err.add("[run].mechanism", f"the mechanism {str(mechanism_path)!r} has errors:\n{exc}")
     initial = _initial(tables["initial"], mechanism, err)
     scale = _scale(tables["scale"], mechanism, err)
-    if follows is True and mechanism is not None and "O3" not in mechanism.species_names:
-        err.add("[photolysis].ozone_column_follows_box", "needs a species O3 in the mechanism")
 
     err.raise_if_any()
     return Scenario(
@@ -534,7 +547,7 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         trajectory=trajectory, ozone_column_du=ozone, psc_surface_area=psc,
         sulfate_surface_area=sulfate, albedo=float(albedo), initial=initial,
         rtol=float(rtol), atol=float(atol), solver_method=method, max_step_s=max_step,
-        scale=scale, photolysis_method=phot_method, ozone_column_follows_box=follows,
+        scale=scale, photolysis_method=phot_method,
         overrides=dict(overrides), mechanism=mechanism)
 
 
@@ -583,9 +596,15 @@ def _psc_area(value: Any, err: _Errors, start) -> Any:
         if below is not None and below <= 0:
             err.add(f"{where}.below", f"must be > 0 K, got {value['below']!r}")
             return None
-        if area is None or below is None:
+        width = 1.0
+        if "width" in value:
+            width = _quantity(value["width"], "temperature", f"{where}.width", err)
+            if width is not None and width <= 0:
+                err.add(f"{where}.width", f"must be > 0 K, got {value['width']!r}")
+                return None
+        if area is None or below is None or width is None:
             return None
-        return ThresholdRuleSpec(area=area, below=below)
+        return ThresholdRuleSpec(area=area, below=below, width=width)
     return _series_or_value(value, "surface_area", where, err, start=start,
                             check=_non_negative("surface area", "cm2 cm-3"))
 
@@ -614,6 +633,11 @@ def _initial(table: Mapping[str, Any], mechanism: Any, err: _Errors) -> dict[str
             continue
         if kind == "mole_fraction" and value > 1:
             err.add(where, f"a mole fraction must be <= 1 mol/mol, got {raw!r}")
+            continue
+        species = mechanism.species_by_name(name) if mechanism is not None else None
+        if species is not None and species.fixed and kind != "mole_fraction":
+            err.add(where, f"{name} is a fixed species and follows the air: give a mole fraction "
+                           f"(ppmv, ppbv, pptv or mol/mol), not {raw!r}")
             continue
         out[name] = (value, kind)
     if mechanism is not None:

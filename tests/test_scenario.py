@@ -69,7 +69,7 @@ def test_defaults_are_filled_in():
     assert s.ozone_column_du == 300.0
     assert s.psc_surface_area == 0.0 and s.sulfate_surface_area == 0.0
     assert s.rtol == 1e-4 and s.atol == 1e-2
-    assert s.photolysis_method == "spectral" and s.ozone_column_follows_box is False
+    assert s.photolysis_method == "spectral" and s.solver_method == "ros3"
     assert s.scale == {}
 
 
@@ -170,6 +170,7 @@ def test_with_overrides_revalidates_and_records():
     ('A = "2.8 ppmv"', 'A = "2 mol/mol"', r"\[initial\]\.A: a mole fraction must be <= 1"),
     ('A = "2.8 ppmv"', 'Q = "2.8 ppmv"', r"\[initial\]\.Q: unknown species 'Q'"),
     ('A = "2.8 ppmv"', 'M = "1e18 cm-3"', r"\[initial\]\.M: M is the air itself"),
+    ('N2 = "0.7808 mol/mol"', 'N2 = "1e18 cm-3"', r"\[initial\]\.N2: N2 is a fixed species and follows the air: give a mole fraction"),
     ('N2 = "0.7808 mol/mol"', '', r"\[initial\]\.N2: missing: the fixed species N2 has no mole fraction"),
 ])
 def test_each_mistake_names_its_key_path(old, new, expected):
@@ -184,9 +185,9 @@ def test_each_mistake_names_its_key_path(old, new, expected):
     ("[scale]\na_to_b = -1.0", r"\[scale\]\.a_to_b: expected a finite factor >= 0"),
     ("[solver]\nrtol = 2.0", r"\[solver\]\.rtol: must lie in \(0, 1\)"),
     ("[solver]\natol = \"1 ppbv\"", r"\[solver\]\.atol: must be a number density \(cm-3\)"),
-    ("[solver]\nmethod = \"euler\"", r"\[solver\]\.method: unknown method 'euler'; valid: rosenbrock"),
+    ("[solver]\nmethod = \"euler\"", r"\[solver\]\.method: unknown method 'euler'; valid: ros3"),
     ("[photolysis]\nmethod = \"guess\"", r"\[photolysis\]\.method: unknown method 'guess'; valid: spectral, parametric"),
-    ("[photolysis]\nozone_column_follows_box = \"yes\"", r"\[photolysis\]\.ozone_column_follows_box: expected true or false"),
+    ("[photolysis]\nozone_column_follows_box = true", r"\[photolysis\]\.ozone_column_follows_box: unknown key"),
 ])
 def test_mistakes_in_optional_sections(table, expected):
     import re
