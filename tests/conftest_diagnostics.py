@@ -126,7 +126,8 @@ def make_result(days: float = 3.0, step_minutes: float = 15.0, start: str = "202
         },
         coords={"time": time, "species": list(SPECIES), "reaction": rid,
                 "equation": ("reaction", [_equation(*r[1:5]) for r in REACTIONS]),
-                "family": fams, "cycle": cyc},
+                "family": fams, "cycle": cyc,
+                "species_is_fixed": ("species", np.array([int(s in FIXED) for s in SPECIES], dtype=np.int8))},
         attrs={"boxchem_version": "0.1.0", "mechanism_sha256": "0" * 64, "scenario": "synthetic",
                "latitude": -70.0, "longitude": 0.0},
     )

@@ -7,7 +7,7 @@ import pytest
 from boxchem.diagnostics.ozone_loss import (accumulate, accumulated_loss, chain_length, daily_loss,
                                             diurnal_average, ox_loss)
 from boxchem.diagnostics.result import ResultError, elapsed_seconds
-from conftest_diagnostics import AIR, MEAN_DENSITY, daylight, make_result
+from conftest_diagnostics import AIR, MEAN_DENSITY, daylight, make_mechanism, make_result
 
 
 @pytest.fixture(scope="module")
@@ -19,17 +19,32 @@ def r(ds, rid):
     return ds["reaction_rate"].sel(reaction=rid).values
 
 
-def test_closure_sum_of_cycles_plus_remainder_is_total(ds):
-    ox = ox_loss(ds)
+@pytest.mark.parametrize("basis", ["recycled", "gross", "net"])
+def test_closure_sum_of_cycles_plus_remainder_is_total(ds, basis):
+    ox = ox_loss(ds, basis=basis)
     np.testing.assert_allclose((ox["cycle_sum"] + ox["unattributed"]).values, ox["total_loss"].values, rtol=1e-12)
-    # the remainder by hand: total Ox loss minus the four cycles (2*o_o3, 2*j_dimer, 2*clo_o, 2*clo_bro)
-    hand = (r(ds, "cl_o3") - r(ds, "clo_o") + r(ds, "no_o3") + r(ds, "br_o3")
-            - 2 * r(ds, "j_dimer") - 2 * r(ds, "clo_bro"))
-    np.testing.assert_allclose(ox["unattributed"].values, hand, rtol=1e-9, atol=1e-6)
+
+
+def test_remainder_by_hand(ds):
+    # gross Ox loss minus the four cycles (2*o_o3, 2*j_dimer, 2*clo_o, 2*clo_bro), by hand
+    gross = (r(ds, "cl_o3") - r(ds, "clo_o") + r(ds, "no_o3") + r(ds, "br_o3")
+             - 2 * r(ds, "j_dimer") - 2 * r(ds, "clo_bro"))
+    np.testing.assert_allclose(ox_loss(ds, basis="gross")["unattributed"].values, gross, rtol=1e-9, atol=1e-6)
+    # recycled basis: NO2 + hv -> NO + O re-forms Ox (consumes NO2); O2 + hv is primary production
+    ox = ox_loss(ds)
+    np.testing.assert_allclose(ox["recycling_production"].values, r(ds, "j_no2"), rtol=1e-12)
+    np.testing.assert_allclose(ox["unattributed"].values, gross - r(ds, "j_no2"), rtol=1e-9, atol=1e-6)
+    # the same from the mechanism instead of the run's coordinates
+    bare = ds.drop_vars(["stoichiometry", "family_weight", "species_is_fixed"])
+    with pytest.raises(ResultError, match="species_is_fixed"):
+        ox_loss(bare.assign(stoichiometry=ds["stoichiometry"].drop_vars("species_is_fixed"),
+                            family_weight=ds["family_weight"].drop_vars("species_is_fixed")))
+    np.testing.assert_allclose(ox_loss(bare, mechanism=make_mechanism())["total_loss"].values,
+                               ox["total_loss"].values, rtol=1e-12)
 
 
 def test_net_basis_subtracts_production(ds):
-    gross, net = ox_loss(ds), ox_loss(ds, basis="net")
+    gross, net = ox_loss(ds, basis="gross"), ox_loss(ds, basis="net")
     np.testing.assert_allclose(net["total_loss"].values,
                                (gross["total_loss"] - gross["total_production"]).values, rtol=1e-12)
     with pytest.raises(ResultError, match="basis"):

@@ -28,7 +28,7 @@ class BoxchemAccessor:
         """Production and loss of a species or family by reaction [cm-3 s-1]."""
         return budget.production_loss(self._ds, name, mechanism)
 
-    def ox_loss(self, family: str = "Ox", mechanism=None, basis: str = "gross") -> xr.Dataset:
+    def ox_loss(self, family: str = "Ox", mechanism=None, basis: str = "recycled") -> xr.Dataset:
         """Total odd-oxygen loss, by cycle, and the unattributed remainder [cm-3 s-1]."""
         return ozone_loss.ox_loss(self._ds, family, mechanism, basis)
 

@@ -2,10 +2,20 @@
 
 Definitions used here (and in docs/diagnostics.md):
 
-* Total loss L(t) [cm-3 s-1] is the gross chemical loss of the odd-oxygen
-  family from its budget (:func:`boxchem.diagnostics.budget.production_loss`),
-  i.e. the sum over reactions of the family's loss terms, net of reactions
-  internal to the family.  With ``basis="net"`` it is loss minus production.
+* Total loss [cm-3 s-1] comes from the family budget
+  (:func:`boxchem.diagnostics.budget.production_loss`, net of reactions
+  internal to the family), on one of three bases:
+
+  - ``"recycled"`` (default): gross loss minus the production that merely
+    re-forms odd oxygen, i.e. production by reactions that consume a
+    variable species (NO2 + hv -> NO + O re-forms the O3 that NO + O3 -> NO2
+    + O2 destroyed).  What is left is the loss balanced by primary production
+    (reactions of fixed species only, O2 + hv -> O + O): equal to primary
+    production minus the net tendency.  Null cycles cancel, so this is the
+    total the catalytic cycles should add up to when the family is odd
+    oxygen in its narrow sense (O3 + O + O1D).  Common practice, no source.
+  - ``"gross"``: every loss term of the family budget (null cycles included).
+  - ``"net"``: loss minus all production (the negative net tendency).
 * Cycle rates are the run's ``cycle_rate`` (odd oxygen destroyed by each
   cycle of the mechanism).
 * The unattributed remainder is ``L - sum(cycle rates)``.  It is reported,
@@ -27,7 +37,7 @@ import numpy as np
 import xarray as xr
 
 from .budget import production_loss
-from .result import ResultError, elapsed_seconds, names_or_error, require
+from .result import ResultError, elapsed_seconds, names_or_error, require, stoichiometry
 
 __all__ = ["ox_loss", "accumulate", "accumulated_loss", "daily_loss", "local_solar_time",
            "diurnal_average", "chain_length"]
@@ -37,21 +47,55 @@ SECONDS_PER_DAY = 86400.0
 UNATTRIBUTED, TOTAL = "unattributed", "total"
 
 
-def ox_loss(ds: xr.Dataset, family: str = "Ox", mechanism=None, basis: str = "gross") -> xr.Dataset:
+BASES = ("recycled", "gross", "net")
+
+
+def consumes_variable_species(ds: xr.Dataset, mechanism=None) -> xr.DataArray:
+    """True (reaction,) where a reaction consumes at least one variable (integrated) species.
+
+    Reactions of fixed species only (O2 + hv -> O + O) are primary sources.
+    Uses the mechanism when given, else the run's ``species_is_fixed``
+    coordinate and ``stoichiometry``.
+    """
+    if mechanism is not None:
+        fixed = {s.name for s in mechanism.species if s.fixed}
+        by_id = {r.id: r for r in mechanism.reactions}
+        flags = [any(t.species not in fixed for t in by_id[str(r)].reactants)
+                 for r in ds["reaction"].values]
+        return xr.DataArray(flags, dims="reaction", coords={"reaction": ds["reaction"]})
+    if "species_is_fixed" not in ds.coords:
+        raise ResultError("the 'recycled' loss basis needs the species_is_fixed coordinate of a run "
+                          "or an explicit mechanism=; use basis='gross' or 'net' otherwise")
+    nu = stoichiometry(ds)
+    variable = ds["species_is_fixed"] == 0
+    return ((nu < 0) & variable).any("species")
+
+
+def ox_loss(ds: xr.Dataset, family: str = "Ox", mechanism=None, basis: str = "recycled") -> xr.Dataset:
     """Total odd-oxygen loss, loss by cycle and the unattributed remainder [cm-3 s-1].
 
-    Returns a Dataset with ``total_loss``, ``total_production`` (time),
-    ``cycle_rate`` (time, cycle; absent when the result has no cycles),
-    ``cycle_sum`` and ``unattributed`` (time).
+    ``basis`` is one of ``"recycled"`` (default), ``"gross"``, ``"net"``; see
+    the module docstring.  Returns a Dataset with ``total_loss``,
+    ``total_production``, ``recycling_production`` (time), ``cycle_rate``
+    (time, cycle; absent when the result has no cycles), ``cycle_sum`` and
+    ``unattributed`` (time).
     """
-    if basis not in ("gross", "net"):
-        raise ResultError(f"basis must be 'gross' or 'net', got {basis!r}")
+    if basis not in BASES:
+        raise ResultError(f"basis must be one of {', '.join(BASES)}; got {basis!r}")
     budget = production_loss(ds, family, mechanism)
-    total = budget["total_loss"] if basis == "gross" else budget["total_loss"] - budget["total_production"]
+    recycling = budget["production"].where(consumes_variable_species(ds, mechanism), 0.0).sum("reaction")
+    if basis == "gross":
+        total = budget["total_loss"]
+    elif basis == "net":
+        total = budget["total_loss"] - budget["total_production"]
+    else:
+        total = budget["total_loss"] - recycling
     unit = {"units": "cm-3 s-1"}
     out = xr.Dataset({
-        "total_loss": total.assign_attrs(unit, long_name=f"{basis} chemical loss of {family}"),
+        "total_loss": total.assign_attrs(unit, long_name=f"chemical loss of {family} ({basis} basis)"),
         "total_production": budget["total_production"],
+        "recycling_production": recycling.assign_attrs(
+            unit, long_name=f"production of {family} by reactions that consume a variable species"),
     }, attrs={"family": family, "basis": basis})
     if "cycle_rate" in ds.variables and ds.sizes.get("cycle", 0) > 0:
         cycles = ds["cycle_rate"].transpose("time", "cycle")
@@ -92,7 +136,7 @@ def _loss_terms(ds: xr.Dataset, family: str, mechanism, basis: str) -> xr.DataAr
 
 
 def accumulated_loss(ds: xr.Dataset, family: str = "Ox", ozone: str = "O3",
-                     mechanism=None, basis: str = "gross") -> xr.Dataset:
+                     mechanism=None, basis: str = "recycled") -> xr.Dataset:
     """Accumulated odd-oxygen loss by cycle, unattributed and total.
 
     Returns a Dataset over (time, term), ``term`` = the cycles, then
@@ -155,7 +199,7 @@ def _difference_over(values: np.ndarray, t: np.ndarray, lo: np.ndarray, hi: np.n
 
 
 def daily_loss(ds: xr.Dataset, family: str = "Ox", ozone: str = "O3", longitude: float | None = None,
-               mechanism=None, basis: str = "gross") -> xr.Dataset:
+               mechanism=None, basis: str = "recycled") -> xr.Dataset:
     """Ozone loss per day by cycle: amount lost in each day and the day's mean rate.
 
     Days are UTC days, or local mean solar days when ``longitude`` [degrees
