@@ -35,6 +35,12 @@ def netcdf_encoding(ds: xr.Dataset) -> dict[str, dict]:
     return encoding
 
 
+def _current_umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 def write_dataset(ds: xr.Dataset, path: str | Path) -> Path:
     """Write ``ds`` to netCDF4 at ``path`` atomically; returns the path written."""
     path = Path(path)
@@ -45,6 +51,7 @@ def write_dataset(ds: xr.Dataset, path: str | Path) -> Path:
     tmp = Path(tmp_name)
     try:
         ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=netcdf_encoding(ds))
+        os.chmod(tmp, 0o666 & ~_current_umask())  # mkstemp creates 0600; use the usual mode
         os.replace(tmp, path)
     except BaseException:
         tmp.unlink(missing_ok=True)
