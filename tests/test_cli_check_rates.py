@@ -1,0 +1,124 @@
+"""`boxchem check` and `boxchem rates` on good and bad files: output, exit status, no traceback."""
+import csv
+import io
+import math
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from boxchem.cli import main
+
+DATA = Path(__file__).parent / "data" / "mech"
+SMALL = str(DATA / "small.mech")
+BOLTZMANN = 1.380649e-23  # J K-1, exact in the 2019 SI
+
+
+@pytest.fixture
+def bad_file(tmp_path):
+    path = tmp_path / "bad.mech"
+    path.write_text("[species]\nO3\nO\nO2 fixed 0.21\n[reactions]\n"
+                    "r1 O + O3 -> O2 + O2 arhenius A=8e-12\n"
+                    "r2 O + O3 -> O2 + Oo arrhenius A=8e-12\n")
+    return str(path)
+
+
+def test_check_good(capsys):
+    assert main(["check", SMALL]) == 0
+    out, err = capsys.readouterr()
+    assert "OK" in out
+    assert "species:   11 (9 variable, 2 fixed, 1 lumped)" in out
+    assert "reactions: 12 (2 constant, 4 arrhenius, 1 falloff, 1 reverse, 2 photolysis, 2 surface)" in out
+    assert "families:  3" in out and "cycles:    2" in out
+    assert "warning: species 'Clx_aer' is never lost" in err
+
+
+def test_check_strict_fails_on_warning(capsys):
+    assert main(["check", SMALL, "--strict"]) == 2
+    err = capsys.readouterr().err
+    assert "never lost" in err and "Traceback" not in err
+
+
+def test_check_bad(capsys, bad_file):
+    assert main(["check", bad_file]) == 2
+    err = capsys.readouterr().err
+    assert f"{bad_file}:6:22: error: unknown rate law 'arhenius'" in err
+    assert f"{bad_file}:7:19: error: reaction 'r2': unknown species 'Oo'" in err
+    assert "2 problems in mechanism" in err
+
+
+def test_check_missing_file(capsys):
+    assert main(["check", "no_such_mechanism"]) == 2
+    assert "no mechanism file" in capsys.readouterr().err
+
+
+def _csv(out: str):
+    return list(csv.DictReader(io.StringIO(out)))
+
+
+def test_rates_csv(capsys):
+    assert main(["rates", SMALL, "--temperature", "195", "298K", "--pressure", "50hPa", "--format", "csv"]) == 0
+    rows = _csv(capsys.readouterr().out)
+    assert list(rows[0]) == ["id", "equation", "law", "temperature", "pressure", "air_density", "k", "units", "note"]
+    assert len(rows) == 12 * 2
+    by = {(r["id"], float(r["temperature"])): r for r in rows}
+    r = by[("cl_o3", 195.0)]
+    # Arrhenius hand calculation k = A exp(-(E/R)/T) with the file's A and E/R (JPL form)
+    assert math.isclose(float(r["k"]), 2.3e-11 * math.exp(-200 / 195), rel_tol=1e-4)
+    assert r["units"] == "cm3 s-1" and r["equation"] == "Cl + O3 -> ClO + O2"
+    # ideal gas: [M] = p / (kB T) (exact SI constants; common practice)
+    assert math.isclose(float(r["air_density"]), 5000 / (BOLTZMANN * 195) * 1e-6, rel_tol=1e-4)
+    assert float(r["pressure"]) == 5000.0
+    j = by[("j_dimer", 298.0)]
+    assert j["k"] == "" and "sun" in j["note"]
+    s = by[("oclo_loss", 298.0)]
+    assert s["k"] == "" and "surface area" in s["note"]
+    o = by[("o_o2", 298.0)]
+    assert o["units"] == "cm6 s-1"
+
+
+@pytest.mark.parametrize("pressure, pascal", [("50hPa", 5000.0), ("5000Pa", 5000.0), ("50mbar", 5000.0),
+                                              ("1atm", 101325.0)])
+def test_rates_pressure_units(capsys, pressure, pascal):
+    assert main(["rates", SMALL, "-T", "220", "-p", pressure, "--format", "csv"]) == 0
+    rows = _csv(capsys.readouterr().out)
+    assert float(rows[0]["pressure"]) == pascal  # unit definitions (1 atm = 101325 Pa exactly)
+
+
+def test_rates_text(capsys):
+    assert main(["rates", SMALL, "-T", "195", "-p", "50hPa"]) == 0
+    out = capsys.readouterr().out
+    assert "cl_o3" in out and "J depends on the sun" in out and "cm3 s-1" in out
+
+
+@pytest.mark.parametrize("argv, words", [
+    (["-T", "195", "-p", "50"], "has no unit"),
+    (["-T", "195", "-p", "50 furlongs"], "unknown pressure unit"),
+    (["-T", "-5", "-p", "50hPa"], "not a positive absolute temperature"),
+    (["-T", "hot", "-p", "50hPa"], "--temperature"),
+])
+def test_rates_bad_arguments(capsys, argv, words):
+    assert main(["rates", SMALL, *argv]) == 2
+    assert words in capsys.readouterr().err
+
+
+def test_rates_bad_mechanism(capsys, bad_file):
+    assert main(["rates", bad_file, "-T", "195", "-p", "50hPa"]) == 2
+    assert "arhenius" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("sub", [["check"], ["rates", "-T", "200", "-p", "50hPa"]])
+def test_no_traceback_in_a_real_process(bad_file, sub):
+    cmd = [sys.executable, "-m", "boxchem.cli", sub[0], bad_file, *sub[1:]]
+    proc = subprocess.run(cmd, capture_output=True, text=True, timeout=60)
+    assert proc.returncode == 2
+    assert "Traceback" not in proc.stderr and "unknown rate law" in proc.stderr
+
+
+@pytest.mark.parametrize("sub", ["check", "rates"])
+def test_help_has_example(capsys, sub):
+    with pytest.raises(SystemExit) as info:
+        main([sub, "--help"])
+    assert info.value.code == 0
+    assert f"boxchem {sub} stratosphere" in capsys.readouterr().out
