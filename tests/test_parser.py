@@ -157,3 +157,26 @@ def test_parse_is_deterministic_and_frozen():
     assert a.reactions == b.reactions and a.species == b.species
     with pytest.raises(TypeError):
         a.reactions[0].parameters["A"] = 1.0
+
+
+def _doc_examples():
+    doc = (Path(__file__).parents[1] / "docs" / "mechanism-language.md").read_text()
+    tail = doc.split("## A complete example", 1)[1]
+    blocks, current = [], None
+    for line in tail.splitlines():
+        if line.startswith("    "):
+            current = (current or []) + [line[4:]]
+        elif current is not None and line.strip():
+            blocks.append("\n".join(current) + "\n")
+            current = None
+    return blocks
+
+
+def test_documented_example_parses(tmp_path):
+    base, override = _doc_examples()[:2]
+    (tmp_path / "chlorine.mech").write_text(base)
+    mech = parse_mechanism(base, source="chlorine.mech")
+    assert len(mech.reactions) == 14 and [c.name for c in mech.cycles] == ["dimer", "clo_o"]
+    changed = parse_mechanism(override, base_dir=tmp_path)
+    assert "het_sulf" not in changed.reaction_ids
+    assert changed.reaction("clo_dimer").parameters["Tref"] == 298.0
