@@ -213,13 +213,23 @@ class PhotolysisRates:
         return np.where(lit[..., None] | np.isnan(sza)[..., None], j, 0.0)
 
     def __call__(self, sza_deg, ozone_column_DU=300.0, temperature_K=220.0, distance_factor=1.0):
-        sza, ozone, temp, dist = np.broadcast_arrays(
-            np.asarray(sza_deg, dtype=float), np.asarray(ozone_column_DU, dtype=float),
-            np.asarray(temperature_K, dtype=float), np.asarray(distance_factor, dtype=float))
+        """J [s-1] of every reaction: shape broadcast(inputs).shape + (n_reactions,).
+
+        ``sza_deg`` [deg], ``ozone_column_DU`` [DU], ``temperature_K`` [K],
+        ``distance_factor`` (1 AU / r)^2 [1]; arrays broadcast together.
+        """
+        sza = np.asarray(sza_deg, dtype=float)
+        if sza.ndim or np.ndim(ozone_column_DU) or np.ndim(temperature_K) or np.ndim(distance_factor):
+            sza, ozone, temp, dist = np.broadcast_arrays(
+                sza, np.asarray(ozone_column_DU, dtype=float),
+                np.asarray(temperature_K, dtype=float), np.asarray(distance_factor, dtype=float))
+            dist = dist[..., None]
+        else:
+            ozone, temp, dist = float(ozone_column_DU), float(temperature_K), float(distance_factor)
         out = np.zeros(sza.shape + (self.n_reactions,))
         if self._param_cols.size:
             out[..., self._param_cols] = self.parametric(sza)
         if self._spectral_cols.size:
             out[..., self._spectral_cols] = self.table(sza, ozone, temp) * self._spectral_scale
-        out *= dist[..., None]
+        out *= dist
         return out
