@@ -372,6 +372,10 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
                                max_step=scenario.max_step_s if scenario.max_step_s else np.inf,
                                progress=callback, method=method)
     except IntegrationError as exc:
+        if isinstance(exc.time, (int, float, np.floating)):
+            seconds = float(exc.time)
+            exc.time = (f"{np.datetime_as_string(scenario.start + np.timedelta64(int(round(seconds * 1e9)), 'ns'), unit='s')}Z"
+                        f" ({seconds:.6g} s after the start)")
         partial = exc.partial_result
         if partial is not None and not isinstance(partial, xr.Dataset):
             exc.partial_result = _dataset_from_result(setup, partial, status="failed",
