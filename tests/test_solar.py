@@ -261,6 +261,25 @@ def test_polar_night_and_midnight_sun():
     assert daylight_hours(june, 70.0, 0.0, 0.0) == 24.0
 
 
+def test_day_when_midnight_sun_begins():
+    # At 65 N, 150 W, 15 km the sun stops setting in late May 2026: the last
+    # days have a sunrise whose sunset comes ever later, then one day with a
+    # sunrise only, then neither; the day length grows smoothly to 24 h.
+    dates = np.arange(np.datetime64("2026-05-18"), np.datetime64("2026-06-01"))
+    rise, sets = sun_events(dates, 65.0, -150.0, 15000.0)
+    hours = daylight_hours(dates, 65.0, -150.0, 15000.0)
+    assert np.all(np.diff(hours) >= 0) and hours[-1] == 24.0 and hours[0] < 23.0
+    only_rise = ~np.isnat(rise) & np.isnat(sets)
+    assert only_rise.sum() == 1
+    # SPA (Reda & Andreas 2004, via pvlib) never reaches the horizon in the 12 h after that day's transit
+    i = int(np.nonzero(only_rise)[0][0])
+    noon = dates[i].astype("datetime64[ns]") + np.timedelta64(22, "h")
+    after = noon + np.arange(0, 12 * 3600, 120).astype("timedelta64[s]")
+    assert spa_reference(after, 65.0, -150.0)[0].max() < horizon_zenith_angle(15000.0)
+    z = _spa_zenith_at(rise[i:i + 1], 65.0, -150.0)
+    assert abs(z[0] - horizon_zenith_angle(15000.0)) < 0.02
+
+
 def test_horizon_crossings_of_a_known_function():
     # sza = 90 + 10 sin(2 pi t / 1 d) crosses 90 at multiples of half a day (closed form)
     def sza(t):

@@ -233,7 +233,7 @@ def _check_quantity(name, value, *, low=None, high=None, low_inclusive=True, val
         bad |= values > high
     if np.any(bad):
         where = "" if not isinstance(value, TimeSeries) else f" (series {value.name!r}, index {np.nonzero(bad)[0][0]})"
-        raise ScenarioError(f"{name}: got {values[bad][0]!r}{where}; expected {valid}")
+        raise ScenarioError(f"{name}: got {float(values[bad][0])!r}{where}; expected {valid}")
     return value
 
 
