@@ -98,9 +98,7 @@ def _lex(line: str, start: int = 0, end: int | None = None) -> list[_Token]:
                 raise _LineError('unterminated or misplaced quoted string: quotes belong to '
                                  'values such as ref="JPL 19-5"', pos + 1)
             raise _LineError(f"unexpected character {ch!r}", pos + 1)
-        kind = m.lastgroup if m.lastgroup not in ("key", "val") else "keyval"
-        if m.group("keyval") is not None:
-            kind = "keyval"
+        kind = "keyval" if m.group("keyval") is not None else m.lastgroup
         if kind == "keyval":
             val = m.group("val")
             vcol = m.start("val") + 1
@@ -183,8 +181,7 @@ class _Side:
 class _Reader:
     """Accumulates the contents of a mechanism and of every file it includes."""
 
-    def __init__(self, strict: bool):
-        self.strict = strict
+    def __init__(self):
         self.problems: list[Problem] = []
         self.species: dict[str, Species] = {}
         self.families: dict[str, tuple[Family, str | None]] = {}
@@ -334,7 +331,7 @@ class _Reader:
         word, col = m.group(1), m.start(1) + 1
         # a name ends at the first character that is not a letter, digit or '_'
         nm = re.match(r"[A-Za-z][A-Za-z0-9_]*", word)
-        if nm is None or nm.end() != len(word) and line[col - 1 + nm.end()] not in " ":
+        if nm is None or nm.end() != len(word):
             bad = col + (nm.end() if nm else 0)
             raise _LineError(f"a {what} name starts with a letter and holds only letters, digits "
                              f"and '_', found {word!r}", bad)
@@ -595,7 +592,7 @@ def parse_mechanism(text: str, source: str = "<string>", *, base_dir: str | Path
 
     Raises MechanismError with every problem found (warnings too when ``strict``).
     """
-    reader = _Reader(strict)
+    reader = _Reader()
     reader.read_text(text, source, Path(base_dir) if base_dir is not None else Path.cwd())
     return _finish(reader, source, strict)
 
@@ -607,6 +604,6 @@ def load_mechanism(name_or_path: str | Path, *, strict: bool = False) -> Mechani
         path = resolve(name_or_path, "mechanisms")
     except BoxchemError as exc:
         raise MechanismError(str(exc)) from None
-    reader = _Reader(strict)
+    reader = _Reader()
     reader.read_file(path, None)
     return _finish(reader, str(path), strict)
