@@ -122,3 +122,14 @@ def test_help_has_example(capsys, sub):
         main([sub, "--help"])
     assert info.value.code == 0
     assert f"boxchem {sub} stratosphere" in capsys.readouterr().out
+
+
+def test_check_unreadable_and_non_finite(capsys, tmp_path):
+    binary = tmp_path / "binary.mech"
+    binary.write_bytes(b"[species]\nO3\xff\n")
+    assert main(["check", str(binary)]) == 2
+    assert "cannot read mechanism file" in capsys.readouterr().err
+    huge = tmp_path / "huge.mech"
+    huge.write_text("[species]\nO3\n[reactions]\nr O3 -> O3 constant k=1e999 unbalanced\n")
+    assert main(["check", str(huge)]) == 2
+    assert f"{huge}:4:21: error: reaction 'r': k=inf is not a finite number" in capsys.readouterr().err
