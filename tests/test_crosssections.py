@@ -400,6 +400,31 @@ def test_shipped_quantum_yield_is_sound(name):
     assert np.all(v >= 0.0) and np.all(v <= 1.0)
 
 
+# The data-set names the shipped stratospheric mechanism uses (the shared name list of the
+# photolysis issue): every one must be shipped.
+MECHANISM_CROSS_SECTIONS = [
+    "O2", "O3", "NO2", "NO3", "N2O5", "HNO3", "HO2NO2", "N2O", "H2O2", "H2O", "HOCl", "ClONO2",
+    "Cl2", "Cl2O2", "OClO", "ClNO2", "BrCl", "BrO", "HOBr", "BrONO2", "CFCl3", "CF2Cl2", "CH3Cl",
+    "CH3Br", "CH2O", "HCl", "CH3OOH",
+]
+MECHANISM_QUANTUM_YIELDS = ["O3_O1D", "O3_O3P", "NO2", "NO3_NO2_O", "NO3_NO_O2", "CH2O_H_HCO",
+                            "CH2O_H2_CO"]
+
+
+def test_every_data_set_of_the_mechanism_is_shipped():
+    assert sorted(MECHANISM_CROSS_SECTIONS) == shipped_cross_sections()
+    assert sorted(MECHANISM_QUANTUM_YIELDS) == shipped_quantum_yields()
+    for name in MECHANISM_CROSS_SECTIONS:
+        assert cross_section_data(name).species.split()[0] == name
+
+
+def test_yields_of_competing_channels_sum_to_at_most_one():
+    wl = np.arange(170.0, 760.0, 0.5)
+    for a, b in (("O3_O1D", "O3_O3P"), ("NO3_NO2_O", "NO3_NO_O2"), ("CH2O_H_HCO", "CH2O_H2_CO")):
+        total = quantum_yield_data(a)(wl, 250.0) + quantum_yield_data(b)(wl, 250.0)
+        assert total.max() <= 1.0 + 1e-12, (a, b)
+
+
 # Anchor values.  Each line: (data set, wavelength nm, temperature K, value, allowed factor, source)
 ANCHORS = [
     # O3 Hartley peak ~1.15e-17 cm2 near 254-255 nm: Molina & Molina (1986), JGR 91, 14501; and
@@ -419,6 +444,27 @@ ANCHORS = [
     # O2 Herzberg continuum ~7e-24 cm2 near 205 nm (Yoshino et al. 1988, PSS 36, 1469) - recalled
     # from memory
     ("O2", 205.0, 298.0, 7.0e-24, 1.5),
+    # Cl2 ~2.6e-19 cm2 near 330 nm at room temperature (Maric et al. 1993; JPL evaluation No. 19)
+    # - recalled from memory
+    ("Cl2", 330.0, 298.0, 2.6e-19, 1.15),
+    # NO3 0-0 band at 662 nm, ~2e-17 cm2 at 298 K (Orphal et al. 2003) - recalled from memory
+    ("NO3", 662.0, 298.0, 2.1e-17, 1.5),
+    # H2O at the 184.9 nm mercury line ~7.1e-20 cm2 (Cantrell et al. 1997, GRL 24, 2195)
+    # - recalled from memory
+    ("H2O", 184.9, 298.0, 7.1e-20, 1.3),
+    # N2O maximum ~1.4e-19 cm2 near 182 nm (Selwyn et al. 1977) - recalled from memory
+    ("N2O", 182.0, 298.0, 1.4e-19, 1.3),
+    # HNO3 plateau ~2e-20 cm2 at 250-260 nm (Burkholder et al. 1993) - recalled from memory
+    ("HNO3", 255.0, 298.0, 2.0e-20, 1.3),
+    # ClONO2 ~1.1e-18 cm2 near 240 nm, 296 K (Burkholder et al. 1994) - recalled from memory
+    ("ClONO2", 240.0, 296.0, 1.1e-18, 1.5),
+    # BrO 5 nm band means peak ~5e-18 cm2 near 335-340 nm (Wilmouth et al. 1999) - recalled
+    # from memory; band-mean level uncertain, hence factor 2
+    ("BrO", 338.0, 298.0, 5.0e-18, 2.0),
+    # HCl ~6e-20 cm2 near 185 nm (JPL evaluation No. 19) - recalled from memory
+    ("HCl", 185.0, 298.0, 6.0e-20, 1.5),
+    # H2O2 ~4.75e-19 cm2 at 200 nm (Vaghjiani & Ravishankara 1989) - recalled from memory
+    ("H2O2", 200.0, 298.0, 4.75e-19, 1.3),
 ]
 
 
@@ -436,6 +482,36 @@ def test_o3_huggins_bands_weaken_at_low_temperature():
     ratio = o3([330.0, 340.0], 218.0) / o3([330.0, 340.0], 298.0)
     assert np.all((ratio > 0.45) & (ratio < 0.85))
     assert o3(255.0, 218.0) == pytest.approx(o3(255.0, 298.0), rel=0.05)  # Hartley: weak
+
+
+def test_cl2_table_follows_maric_expression():
+    # Maric et al. (1993), J. Photochem. Photobiol. A 70, 205, as given in the JPL evaluation
+    # No. 19 (coefficients recalled from memory): sigma = 1e-20 a^0.5 {27.3 exp[-99.0 a ln^2(329.5/l)]
+    # + 0.932 exp[-91.5 a ln^2(406.5/l)]}, a = tanh(402.7/T); evaluated here independently
+    def maric(lam, t):
+        a = math.tanh(402.7 / t)
+        return 1e-20 * math.sqrt(a) * (27.3 * math.exp(-99.0 * a * math.log(329.5 / lam) ** 2)
+                                       + 0.932 * math.exp(-91.5 * a * math.log(406.5 / lam) ** 2))
+    cl2 = cross_section_data("Cl2")
+    for lam, t in ((300.0, 200.0), (330.0, 250.0), (400.0, 300.0), (450.0, 225.0)):
+        assert float(cl2(lam, t)) == pytest.approx(maric(lam, t), rel=1e-3)
+
+
+def test_log10_linear_sets_weaken_when_cold():
+    # N2O, HNO3, CFCs: cross sections in the stratospheric window fall at low temperature
+    # (JPL evaluation No. 19; Selwyn et al. 1977; Burkholder et al. 1993) - recalled from memory.
+    # N2O at 210 nm: sigma(210 K)/sigma(298 K) roughly 0.5-0.8
+    n2o = cross_section_data("N2O")
+    assert 0.5 < float(n2o(210.0, 210.0) / n2o(210.0, 298.0)) < 0.8
+    # HNO3 near 250 nm: the evaluation's B ~ 1e-3 K-1 in sigma(T) = sigma(298) exp(B (T - 298))
+    hno3 = cross_section_data("HNO3")
+    assert float(hno3(250.0, 220.0) / hno3(250.0, 298.0)) == pytest.approx(
+        math.exp(0.9e-3 * (220.0 - 298.0)), rel=0.03)
+    for name in ("CFCl3", "CF2Cl2", "CH3Cl", "CH3Br", "N2O5"):
+        d = cross_section_data(name)
+        assert d.temperature_dependence == "log10_linear"
+        wl = d.wavelength_nm
+        assert np.all(d(wl, 220.0) <= d(wl, 298.0)), name
 
 
 def test_o3_o1d_yield_follows_matsumi_formula():

@@ -57,6 +57,8 @@ except ImportError:  # pragma: no cover - rate-law module not yet installed
 
 __all__ = ["CompiledKinetics", "SURFACE_COREACTANT_HALF"]
 
+_ONE = np.ones(1)
+
 
 class CompiledKinetics:
     """Index/stoichiometry arrays of a mechanism and the kernels that use them.
@@ -172,6 +174,7 @@ class CompiledKinetics:
             rows_a = cols_a = np.zeros(0, dtype=np.intp)
             vals_a = np.zeros(0)
         self.jacobian_nonzeros = len(np.unique(rows_a))
+        self._jac_rows, self._jac_cols, self._jac_vals = rows_a.astype(np.intp), cols_a.astype(np.intp), vals_a
         return sp.csr_matrix((vals_a, (rows_a, cols_a)), shape=(nv * nv, nr * nslot))
 
     # -- helpers ----------------------------------------------------------------
@@ -202,6 +205,8 @@ class CompiledKinetics:
     def _extended(self, y, fixed) -> np.ndarray:
         y = np.asarray(y, dtype=float)
         fixed = np.asarray(fixed, dtype=float)
+        if y.ndim == 1 and fixed.ndim == 1:  # the single-box hot path
+            return np.concatenate((y, fixed, _ONE))
         shape = np.broadcast_shapes(y.shape[:-1], fixed.shape[:-1])
         one = np.ones(shape + (1,))
         return np.concatenate([np.broadcast_to(y, shape + y.shape[-1:]),
@@ -219,6 +224,8 @@ class CompiledKinetics:
     def rhs(self, y, k, fixed) -> np.ndarray:
         """d y / d t [cm-3 s-1] = stoichiometry @ rates (production minus loss)."""
         rate = self.rates(y, k, fixed)
+        if rate.ndim == 1:  # single box: a small dense mat-vec beats the sparse call overhead
+            return self._stoich_dense @ rate
         flat = rate.reshape(-1, self.n_reactions)
         out = (self.stoichiometry @ flat.T).T
         return out.reshape(rate.shape[:-1] + (self.n_variable,))
@@ -254,6 +261,10 @@ class CompiledKinetics:
             d_sat = d_sat * (k * mass_prod)[..., None]
             parts.append(np.broadcast_to(d_sat, lead + d_sat.shape[-2:]))
         d = np.concatenate(parts, axis=-1).reshape(-1, self._jac_scatter.shape[1])
+        if d.shape[0] == 1 and not lead:  # single box: scatter-add with bincount
+            flat = np.bincount(self._jac_rows, weights=self._jac_vals * d[0, self._jac_cols],
+                               minlength=self.n_variable ** 2)
+            return flat.reshape(self.n_variable, self.n_variable)
         flat = (self._jac_scatter @ d.T).T
         return flat.reshape(lead + (self.n_variable, self.n_variable))
 

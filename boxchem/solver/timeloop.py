@@ -1,0 +1,250 @@
+"""The time loop: Rosenbrock steps between output times and day/night breakpoints.
+
+``integrate_box`` advances one box from ``output_times_s[0]`` through every
+output time.  Steps end exactly on output times and on breakpoints (sunrise
+and sunset at the box, where photolysis switches on or off), so the values
+reported are the solution at those times, not interpolated or taken from the
+nearest step, and no step straddles a discontinuity of J.  When a step is cut
+short to land on such a time, the step size the controller had proposed is
+kept for the following step: stopping does not reset the step-size history.
+
+Time dependence of the rate coefficients: within one step k and the fixed
+species densities are interpolated linearly between their values at the step
+ends (one coefficient evaluation per attempted step; the end value is reused
+as the start of the next step), and df/dt for the Rosenbrock stages is the
+difference of f across the step at fixed y.  The interpolation error is
+O(h^2 k''), second order, below the method's own order 3; step sizes are
+limited by the chemistry, which the error estimate controls, and a test
+compares with a tight-tolerance solution.
+
+Non-negativity: after a step, components below zero are set to zero when
+they are within their error scale (``atol_i + rtol |y_i|``), i.e. when the
+negative value is indistinguishable from zero at the requested accuracy.
+A step that produces a negative value beyond its error scale is rejected
+like a step with too large an error (its negative part counts as error),
+so clipping never hides a real loss of accuracy.
+
+Default tolerances: number densities span 1e0-1e18 cm-3 in a stratospheric
+box.  rtol = 1e-4 keeps each species to 0.01 % per step, which keeps O3 to
+well within 0.5 % over 60 days (measured, benchmarks/bench_polar_run.py);
+atol = 1e-2 cm-3 is far below any concentration that matters chemically (a
+pptv at 50 hPa is ~1e7 cm-3) yet large enough that radicals at night (O,
+O1D, Cl falling to 1e-5-1e0 cm-3) do not force tiny steps to track values of
+no consequence.
+"""
+from __future__ import annotations
+
+import time as _time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..errors import IntegrationError
+from .rosenbrock import RODAS3, RosenbrockMethod, error_norm, next_step_factor, rosenbrock_step
+
+__all__ = ["integrate_box", "TimeLoopResult", "DEFAULT_RTOL", "DEFAULT_ATOL",
+           "MIN_STEP_RELATIVE", "MIN_STEP_ABSOLUTE"]
+
+DEFAULT_RTOL = 1e-4
+DEFAULT_ATOL = 1e-2        # cm-3
+#: a step below max(MIN_STEP_ABSOLUTE, MIN_STEP_RELATIVE * |t|) is a failure
+MIN_STEP_RELATIVE = 1e-12
+MIN_STEP_ABSOLUTE = 1e-10  # s
+#: first step when none is given and the RHS-based estimate is not usable [s]
+FALLBACK_FIRST_STEP = 1e-3
+#: fraction of y/f used for the automatic first step (Hairer & Wanner 1996, II.4)
+FIRST_STEP_FRACTION = 0.01
+
+
+@dataclass
+class TimeLoopResult:
+    """Solution of one box at its output times, with work counters."""
+
+    times: np.ndarray                    # s since the start, (n_out,)
+    y: np.ndarray                        # number densities [cm-3], (n_out, n_variable)
+    k: np.ndarray                        # rate coefficients at output times, (n_out, n_reactions)
+    fixed: np.ndarray                    # fixed-species densities, (n_out, n_fixed)
+    species: tuple
+    status: int = 0                      # 0 success, -1 failure
+    message: str = "integration reached the last output time"
+    steps: int = 0
+    rejected_steps: int = 0
+    rhs_evaluations: int = 0
+    jacobian_evaluations: int = 0
+    lu_decompositions: int = 0
+    coefficient_evaluations: int = 0
+    wall_time_s: float = 0.0
+    settings: dict = field(default_factory=dict)
+
+    @property
+    def success(self) -> bool:
+        return self.status == 0
+
+    def counters(self) -> dict:
+        return {name: getattr(self, name) for name in (
+            "steps", "rejected_steps", "rhs_evaluations", "jacobian_evaluations",
+            "lu_decompositions", "coefficient_evaluations")}
+
+
+def _validated_times(output_times_s, breakpoints_s):
+    out = np.asarray(output_times_s, dtype=float).ravel()
+    if out.size < 1 or not np.all(np.isfinite(out)):
+        raise ValueError(f"output_times_s: expected one or more finite times [s], got {out!r}")
+    if np.any(np.diff(out) <= 0):
+        raise ValueError("output_times_s: times must increase strictly")
+    bp = np.asarray(breakpoints_s, dtype=float).ravel()
+    bp = np.unique(bp[(bp > out[0]) & (bp < out[-1])])
+    return out, bp
+
+
+def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(),
+                  rtol: float = DEFAULT_RTOL, atol=DEFAULT_ATOL, first_step: float | None = None,
+                  max_step: float = np.inf, progress=None, raise_on_failure: bool = True,
+                  method: RosenbrockMethod = RODAS3) -> TimeLoopResult:
+    """Integrate one box through ``output_times_s``.
+
+    Parameters
+    ----------
+    kinetics : CompiledKinetics
+    coefficients : callable(t_s) -> (k [n_reactions], fixed [n_fixed]); e.g.
+        :class:`boxchem.solver.coefficients.RateCoefficientModel`
+    y0 : initial variable-species number densities [cm-3] at ``output_times_s[0]``
+    output_times_s : increasing times [s since the run start]; the first is the start
+    breakpoints_s : times [s] where k may jump (sunrise/sunset): steps end there
+    rtol : relative tolerance [1]; atol : absolute tolerance [cm-3], scalar or per species
+    first_step : first step [s]; estimated from y0 and f(y0) when None
+    max_step : longest step [s]
+    progress : callable(t_s) called after each output time (e.g. a progress bar)
+    raise_on_failure : raise IntegrationError (with the partial result attached
+        as ``partial_result``) when True, else return the partial result with status -1
+
+    Returns
+    -------
+    TimeLoopResult; ``y[0]`` is ``y0`` clipped to non-negative values.
+    """
+    wall0 = _time.perf_counter()
+    out, breaks = _validated_times(output_times_s, breakpoints_s)
+    if not (0 < rtol < 1):
+        raise ValueError(f"rtol: expected 0 < rtol < 1, got {rtol!r}")
+    atol = np.broadcast_to(np.asarray(atol, dtype=float), (kinetics.n_variable,)).copy()
+    if np.any(atol <= 0):
+        raise ValueError(f"atol: expected positive values [cm-3], got {atol.min()!r}")
+    y = np.asarray(y0, dtype=float).copy()
+    if y.shape != (kinetics.n_variable,):
+        raise ValueError(f"y0: expected shape ({kinetics.n_variable},) in the order of "
+                         f"kinetics.variable_species, got {y.shape}")
+    if not np.all(np.isfinite(y)) or np.any(y < 0):
+        raise ValueError("y0: number densities must be finite and non-negative")
+
+    stops = np.union1d(out[1:], breaks)  # every time a step must end on
+    n_out = out.size
+    ys = np.full((n_out, kinetics.n_variable), np.nan)
+    ks = np.full((n_out, kinetics.n_reactions), np.nan)
+    fxs = np.full((n_out, kinetics.n_fixed), np.nan)
+    res = TimeLoopResult(out, ys, ks, fxs, kinetics.variable_species,
+                         settings={"method": method.name, "rtol": rtol,
+                                   "atol": float(atol.max()) if np.all(atol == atol[0]) else atol.tolist()})
+
+    t = out[0]
+    k0, fx0 = coefficients(t)
+    res.coefficient_evaluations += 1
+    ys[0], ks[0], fxs[0] = y, k0, fx0
+    next_out = 1
+    f0 = kinetics.rhs(y, k0, fx0)
+    res.rhs_evaluations += 1
+
+    if first_step is None:
+        scale = atol + rtol * np.abs(y)
+        d0 = np.sqrt(np.mean((y / scale) ** 2))
+        d1 = np.sqrt(np.mean((f0 / scale) ** 2))
+        h = FIRST_STEP_FRACTION * d0 / d1 if d0 > 1e-5 and d1 > 1e-5 else FALLBACK_FIRST_STEP
+    else:
+        h = float(first_step)
+    h = min(h, max_step)
+
+    stop_index = 0
+    rejected_last = False
+    t_end = out[-1]
+
+    def fail(message, h_now, worst):
+        res.status = -1
+        res.message = message
+        res.y, res.k, res.fixed, res.times = ys[:next_out], ks[:next_out], fxs[:next_out], out[:next_out]
+        res.wall_time_s = _time.perf_counter() - wall0
+        if raise_on_failure:
+            raise IntegrationError(message, time=t, step_size=h_now,
+                                   worst_species=kinetics.variable_species[worst]
+                                   if worst is not None else None, partial_result=res)
+        return res
+
+    while t < t_end:
+        while stops[stop_index] <= t:
+            stop_index += 1
+        t_stop = stops[stop_index]
+        h_proposed = h
+        h = min(h, t_stop - t)
+        clipped = h < h_proposed
+        # land exactly on the stop instead of leaving a sliver step behind
+        if t_stop - (t + h) < 1e-9 * max(abs(t_stop), 1.0):
+            h = t_stop - t
+        t_new = t_stop if h == t_stop - t else t + h
+
+        jac = kinetics.jacobian(y, k0, fx0)
+        res.jacobian_evaluations += 1
+        worst = None
+        rejected_here = False
+        while True:
+            k1, fx1 = coefficients(t_new)
+            res.coefficient_evaluations += 1
+            dk, dfx = (k1 - k0) / h, (fx1 - fx0) / h
+
+            def fun(tt, yy, _t0=t, _k0=k0, _fx0=fx0, _dk=dk, _dfx=dfx):
+                s = tt - _t0
+                return kinetics.rhs(yy, _k0 + s * _dk, _fx0 + s * _dfx)
+
+            f_end = kinetics.rhs(y, k1, fx1)
+            dfdt = (f_end - f0) / h
+            res.rhs_evaluations += 1
+            y_new, err_vec, n_rhs = rosenbrock_step(fun, jac.copy(), f0, dfdt, t, y, h, method)
+            res.rhs_evaluations += n_rhs
+            res.lu_decompositions += 1
+            if np.all(np.isfinite(y_new)):
+                err, worst, scale = error_norm(err_vec, y, y_new, rtol, atol)
+                negative = np.maximum(-y_new, 0.0) / scale
+                if negative.max() > 1.0:
+                    err = max(err, float(negative.max()))
+                    worst = int(np.argmax(negative))
+            else:
+                err, worst = np.inf, int(np.argmax(~np.isfinite(y_new)))
+            if err <= 1.0:
+                break
+            res.rejected_steps += 1
+            h = h * next_step_factor(err, method, after_reject=True)
+            rejected_last = rejected_here = True
+            clipped = False
+            if h < max(MIN_STEP_ABSOLUTE, MIN_STEP_RELATIVE * abs(t)):
+                what = "non-finite values" if not np.isfinite(err) else "error test failed"
+                return fail(f"step size fell below the minimum ({what})", h, worst)
+            t_new = t + h
+
+        # accepted
+        res.steps += 1
+        np.maximum(y_new, 0.0, out=y_new)
+        factor = next_step_factor(err, method, after_reject=rejected_last)
+        rejected_last = False
+        h_next = h * factor
+        if clipped and not rejected_here:
+            # the step was shortened only to land on a stop: resume the proposal
+            h_next = max(h_next, h_proposed)
+        h = min(h_next, max_step)
+        t, y, k0, fx0 = t_new, y_new, k1, fx1
+        f0 = kinetics.rhs(y, k0, fx0)
+        res.rhs_evaluations += 1
+        while next_out < n_out and out[next_out] <= t:
+            ys[next_out], ks[next_out], fxs[next_out] = y, k0, fx0
+            next_out += 1
+            if progress is not None:
+                progress(t)
+
+    res.wall_time_s = _time.perf_counter() - wall0
+    return res

@@ -1,0 +1,263 @@
+"""The Rosenbrock integrator and the time loop against closed forms and published references."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from boxchem.errors import IntegrationError
+from boxchem.mechanism import parse_mechanism
+from boxchem.mechanism.ratelaws import RateEvaluator
+from boxchem.solver import (RODAS3, ROS3, CompiledKinetics, RateCoefficientModel,
+                            integrate_box)
+from boxchem.solver.rosenbrock import rosenbrock_step
+
+DATA = Path(__file__).resolve().parent / "data" / "mech"
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def _constant_rates(text: str):
+    """Kinetics and a constant k(t) for a mechanism of constant-law reactions."""
+    mech = parse_mechanism(text)
+    kin = CompiledKinetics(mech)
+    k = RateEvaluator(mech).thermal(250.0, 1.0)
+    fixed = kin.fixed_number_densities(1.0)
+    return kin, (lambda t: (k, fixed))
+
+
+CHAIN = """
+[species]
+A  lumped
+B  lumped
+C  lumped
+[reactions]
+a_b   A -> B   constant  k=1e-3  ref="invented test value"
+b_c   B -> C   constant  k=2.5e-4  ref="invented test value"
+"""
+
+
+# -- the methods' coefficients -------------------------------------------------
+@pytest.mark.parametrize("method", [ROS3, RODAS3])
+def test_methods_converge_with_their_stated_orders(method):
+    # y' = cos(t) y, y(0) = 1 has y = exp(sin t) (closed form, common practice).
+    # Fixed steps: the global error must fall as h^3 (main) and h^2 (embedded);
+    # a mistyped coefficient breaks an order condition and lowers the observed order.
+    def run(n, embedded):
+        y, t, h = np.ones(1), 0.0, 2.0 / n
+        for _ in range(n):
+            f = np.cos(t) * y
+            y_new, err, _ = rosenbrock_step(lambda tt, yy: np.cos(tt) * yy, np.array([[np.cos(t)]]),
+                                            f, -np.sin(t) * y, t, y, h, method)
+            y = y_new - err if embedded else y_new
+            t += h
+        return abs(y[0] - np.exp(np.sin(2.0)))
+
+    main = np.log2(run(40, False) / run(80, False))
+    low = np.log2(run(40, True) / run(80, True))
+    assert 2.8 < main < 3.4
+    assert 1.8 < low < 2.3
+
+
+# -- closed forms --------------------------------------------------------------
+def test_first_order_decay_matches_exponential():
+    # A(t) = A0 exp(-k t): first-order kinetics (e.g. Atkins' Physical Chemistry, ch. on rate laws).
+    kin, coef = _constant_rates(CHAIN)
+    t = np.linspace(0.0, 5000.0, 11)
+    res = integrate_box(kin, coef, [1e12, 0.0, 0.0], t, rtol=1e-7, atol=1e-2)
+    a = res.y[:, kin.variable_species.index("A")]
+    np.testing.assert_allclose(a, 1e12 * np.exp(-1e-3 * t), rtol=2e-6)
+    # an order-3 method at rtol 1e-7 needs (k h)^3 ~ 1e-7, k h ~ 5e-3: ~1000 steps over k t = 5
+    # at most (estimate, common practice)
+    assert res.success and res.steps < 1000
+
+
+def test_consecutive_first_order_reactions_match_bateman_solution():
+    # A -> B -> C: B(t) = A0 k1/(k2 - k1) (exp(-k1 t) - exp(-k2 t))
+    # (Bateman 1910, Proc. Camb. Phil. Soc. 15, 423; consecutive reactions in Atkins' Physical Chemistry).
+    kin, coef = _constant_rates(CHAIN)
+    k1, k2, a0 = 1e-3, 2.5e-4, 1e12
+    t = np.linspace(0.0, 20000.0, 41)
+    res = integrate_box(kin, coef, [a0, 0.0, 0.0], t, rtol=1e-7, atol=1e-2)
+    b_exact = a0 * k1 / (k2 - k1) * (np.exp(-k1 * t) - np.exp(-k2 * t))
+    c_exact = a0 - a0 * np.exp(-k1 * t) - b_exact
+    b = res.y[:, kin.variable_species.index("B")]
+    c = res.y[:, kin.variable_species.index("C")]
+    np.testing.assert_allclose(b, b_exact, rtol=1e-5, atol=1e-6 * a0)
+    np.testing.assert_allclose(c, c_exact, rtol=1e-5, atol=1e-6 * a0)
+    # mass conservation of the closed chain (common practice, no source)
+    np.testing.assert_allclose(res.y.sum(axis=1), a0, rtol=1e-12)
+
+
+# -- the classic stiff problem ---------------------------------------------------
+def test_robertson_problem_matches_published_reference_with_bounded_work():
+    kin, coef = _constant_rates((DATA / "robertson.mech").read_text())
+    res = integrate_box(kin, coef, [1.0, 0.0, 0.0], [0.0, 40.0], rtol=1e-6, atol=1e-12)
+    a, b, c = res.y[-1]
+    # Hairer & Wanner (1996), Solving ODEs II, section IV.10, reference solution at t = 40
+    # (y1 = 0.7158270687, y2 = 9.185534764e-6, y3 = 0.2841637457; recalled from memory).
+    assert a == pytest.approx(0.7158270687, rel=1e-5)
+    assert b == pytest.approx(9.185534764e-6, rel=1e-4)
+    assert c == pytest.approx(0.2841637457, rel=1e-5)
+    # An explicit method would need ~1e5+ steps here (stiffness ratio ~1e4 / step limit
+    # ~1e-3 s); these bounds fail as soon as the stiff handling is lost.
+    assert res.steps < 600, res.counters()
+    assert res.rhs_evaluations < 4 * 600 and res.lu_decompositions < 700
+
+
+def test_robertson_problem_long_time_reference():
+    kin, coef = _constant_rates((DATA / "robertson.mech").read_text())
+    res = integrate_box(kin, coef, [1.0, 0.0, 0.0], [0.0, 1e11], rtol=1e-5, atol=1e-20)
+    # Test Set for IVP Solvers (Mazzia & Magherini, Univ. of Bari), problem ROBER, reference
+    # at t = 1e11: y1 = 2.083340149701255e-08, y2 = 8.333360770334713e-14,
+    # y3 = 0.9999999791665050 (recalled from memory).
+    a, b, c = res.y[-1]
+    assert a == pytest.approx(2.083340149701255e-08, rel=1e-3)
+    assert b == pytest.approx(8.333360770334713e-14, rel=1e-3)
+    assert c == pytest.approx(0.9999999791665050, rel=1e-9)
+    assert res.steps < 2000, res.counters()
+
+
+# -- non-negativity, outputs, breakpoints ----------------------------------------
+def test_fast_titration_stays_non_negative():
+    # A + B -> C with A0 > B0: B is used up within ~1e-3 s; it must never go negative.
+    kin, coef = _constant_rates("""
+[species]
+A  lumped
+B  lumped
+C  lumped
+[reactions]
+ab  A + B -> C   constant  k=1e-6  ref="invented test value"
+""")
+    t = np.concatenate([np.linspace(0.0, 0.005, 11), np.linspace(0.01, 100.0, 50)])
+    res = integrate_box(kin, coef, [2e9, 1e9, 0.0], t)
+    assert np.all(res.y >= 0.0)
+    b = res.y[:, kin.variable_species.index("B")]
+    # closed form for A + B -> C: B = B0 (A0 - B0) / (A0 exp((A0 - B0) k t) - B0) (common practice)
+    early = t <= 0.005
+    exact = 1e9 * 1e9 / (2e9 * np.exp(1e9 * 1e-6 * t[early]) - 1e9)
+    np.testing.assert_allclose(b[early], exact, rtol=1e-3)
+    assert b[-1] < 1.0
+
+
+def test_output_times_are_solution_values_and_do_not_reset_steps():
+    kin, coef = _constant_rates(CHAIN)
+    few = integrate_box(kin, coef, [1e12, 0, 0], [0.0, 20000.0])
+    t_many = np.sort(np.concatenate([[0.0, 20000.0], np.random.default_rng(0).uniform(1, 19999, 300)]))
+    many = integrate_box(kin, coef, [1e12, 0, 0], t_many)
+    # values at arbitrary output times: the closed form (see the Bateman test above)
+    np.testing.assert_allclose(many.y[:, 0], 1e12 * np.exp(-1e-3 * t_many), rtol=1e-3)
+    # stopping on 300 outputs costs about one extra step each, not a restart of the step history
+    assert many.steps <= few.steps + 301 + 20
+    np.testing.assert_allclose(many.y[-1], few.y[-1], rtol=1e-3)
+
+
+def test_steps_end_on_breakpoints_where_k_jumps():
+    # k switches on at t_b = 1234.5 s (sunrise-like): A = A0 for t < t_b,
+    # A0 exp(-k (t - t_b)) after (closed form, common practice).
+    kin, _ = _constant_rates(CHAIN)
+    t_b, kon = 1234.5, 1e-2
+    fixed = kin.fixed_number_densities(1.0)
+
+    def coef(t):
+        return np.array([kon if t > t_b else 0.0, 0.0]), fixed
+
+    t = np.linspace(0.0, 3000.0, 7)
+    res = integrate_box(kin, coef, [1e12, 0, 0], t, breakpoints_s=[t_b], rtol=1e-6)
+    exact = 1e12 * np.exp(-kon * np.clip(t - t_b, 0, None))
+    np.testing.assert_allclose(res.y[:, 0], exact, rtol=1e-4, atol=1e3)
+
+
+def test_failure_names_time_step_species_and_keeps_partial_results():
+    # The rate coefficient of A -> B turns non-finite after t = 55 s (a broken input, e.g. a
+    # temperature series with a hole): the loop must stop there, name A, and keep what it had.
+    kin, _ = _constant_rates(CHAIN)
+    fixed = kin.fixed_number_densities(1.0)
+
+    def coef(t):
+        return np.array([1e-3 if t <= 55.0 else np.nan, 2.5e-4]), fixed
+
+    t = np.arange(0.0, 201.0, 10.0)
+    with pytest.raises(IntegrationError) as info:
+        integrate_box(kin, coef, [1e12, 0.0, 0.0], t)
+    err = info.value
+    assert err.worst_species == "A"
+    assert 54.0 < float(err.time) <= 55.0
+    assert err.step_size is not None and err.step_size < 1e-6
+    assert "A" in str(err) and "step size" in str(err) and "non-finite" in str(err)
+    part = err.partial_result
+    assert part.status == -1 and list(part.times) == [0.0, 10.0, 20.0, 30.0, 40.0, 50.0]
+    # the partial values are the solution up to the failure (first-order decay, closed form)
+    np.testing.assert_allclose(part.y[:, 0], 1e12 * np.exp(-1e-3 * part.times), rtol=1e-4)
+    # without raising, the same partial result comes back
+    res = integrate_box(kin, coef, [1e12, 0.0, 0.0], t, raise_on_failure=False)
+    assert not res.success and "minimum" in res.message and len(res.times) == 6
+
+
+def test_bad_arguments_name_the_argument():
+    kin, coef = _constant_rates(CHAIN)
+    with pytest.raises(ValueError, match="output_times_s"):
+        integrate_box(kin, coef, [1, 0, 0], [0.0, 0.0])
+    with pytest.raises(ValueError, match="y0"):
+        integrate_box(kin, coef, [1, 0], [0.0, 1.0])
+    with pytest.raises(ValueError, match="rtol"):
+        integrate_box(kin, coef, [1, 0, 0], [0.0, 1.0], rtol=0)
+
+
+# -- the shipped mechanism under the real sun -----------------------------------
+def _polar_setup(scale=None):
+    from boxchem.environment.history import Environment
+    from boxchem.mechanism import load_mechanism
+    from boxchem.photolysis.rates import PhotolysisRates
+
+    mech = load_mechanism(str(ROOT / "mechanisms" / "stratosphere.mech"))
+    kin = CompiledKinetics(mech)
+    # invented demo conditions: 70 S, 60 hPa, 195 K, late August
+    env = Environment("2026-08-20T00:00:00Z", temperature=195.0, latitude=-70.0, longitude=0.0,
+                      ozone_column=250.0, pressure=6000.0, altitude=18500.0,
+                      psc_area=2e-8, sulfate_area=5e-9)
+    phot = PhotolysisRates(mech, altitude_m=18500.0, method="parametric")
+    coef = RateCoefficientModel(mech, None, phot, env, scale=scale, kinetics=kin)
+    air = float(env.at(0.0).air_density)
+    mixing = {"O3": 2.6e-6, "H2O": 4e-6, "CH4": 1.3e-6, "N2O": 120e-9, "HNO3": 3e-9, "NO2": 20e-12,
+              "HCl": 0.6e-9, "ClONO2": 0.2e-9, "ClO": 0.3e-9, "Cl2O2": 0.9e-9, "CFCl3": 30e-12,
+              "CH3Cl": 50e-12, "BrO": 10e-12, "BrONO2": 3e-12, "HBr": 1e-12, "CH3Br": 1e-12, "CO": 15e-9}
+    y0 = np.array([mixing.get(s, 0.0) * air for s in kin.variable_species])
+    return mech, kin, env, coef, y0
+
+
+@pytest.mark.skipif(not (ROOT / "mechanisms" / "stratosphere.mech").exists(), reason="no shipped mechanism")
+def test_multi_day_polar_run_conserves_cl_br_n_atoms():
+    # Balanced chemistry conserves each element (common practice, no source).  N moves into
+    # the fixed N2 through O1D + N2O -> N2 + O2 and N2O photolysis; both are switched off
+    # here so that the N atoms stay among the integrated species.
+    mech, kin, env, coef, y0 = _polar_setup(scale={"o1d_n2o_b": 0.0, "j_n2o": 0.0})
+    t = np.arange(0.0, 3 * 86400.0 + 1, 3600.0)
+    res = integrate_box(kin, coef, y0, t, breakpoints_s=env.horizon_crossings(0.0, t[-1]))
+    assert res.success
+    for element in ("Cl", "Br", "N"):
+        w = np.array([mech.species_by_name(s).atoms(element) for s in kin.variable_species], float)
+        total = res.y @ w
+        assert np.max(np.abs(total / total[0] - 1)) < 1e-6, element
+    assert np.all(res.y >= 0)
+
+
+@pytest.mark.skipif(not (ROOT / "mechanisms" / "stratosphere.mech").exists(), reason="no shipped mechanism")
+def test_rate_coefficient_model_caches_thermal_k_and_applies_scale():
+    mech, kin, env, coef, y0 = _polar_setup()
+    k_night, fixed = coef(0.0)
+    for t in np.linspace(0, 86400, 50):
+        coef(t)
+    assert coef.thermal_evaluations == 1  # constant T and [M]: computed once
+    air = float(env.at(0.0).air_density)
+    assert fixed[kin.fixed_species.index("M")] == pytest.approx(air, rel=1e-14)
+    assert fixed[kin.fixed_species.index("O2")] == pytest.approx(0.2095 * air, rel=1e-14)
+    ev = RateEvaluator(mech)
+    np.testing.assert_allclose(coef(0.0)[0][ev.thermal_index],
+                               ev.thermal(195.0, air)[ev.thermal_index], rtol=1e-14)
+    scaled = RateCoefficientModel(mech, ev, coef.photolysis_rates, env, scale={"clo_clo_m": 1.5},
+                                  kinetics=kin)
+    i = kin.reaction_ids.index("clo_clo_m")
+    assert scaled(0.0)[0][i] == pytest.approx(1.5 * k_night[i], rel=1e-14)
+    with pytest.raises(Exception, match="scale.clo_clo_n: .*did you mean 'clo_clo_m'"):
+        RateCoefficientModel(mech, ev, coef.photolysis_rates, env, scale={"clo_clo_n": 2.0})
