@@ -130,6 +130,18 @@ def build_environment(scenario: Scenario):
 # ---------------------------------------------------------------------------
 # the Dataset of the output contract
 # ---------------------------------------------------------------------------
+def _net_stoichiometry(mechanism) -> np.ndarray:
+    """(species, reaction) products minus reactants over all species (built once per run)."""
+    index = {name: i for i, name in enumerate(mechanism.species_names)}
+    nu = np.zeros((len(index), len(mechanism.reactions)))
+    for j, reaction in enumerate(mechanism.reactions):
+        for term in reaction.reactants:
+            nu[index[term.species], j] -= term.coefficient
+        for term in reaction.products:
+            nu[index[term.species], j] += term.coefficient
+    return nu
+
+
 def _species_attrs(mechanism) -> dict[str, np.ndarray]:
     names = mechanism.species_names
     return {
@@ -203,7 +215,16 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         return ("time", np.asarray(values, dtype=float), attrs)
 
     st = environment_state
+    weights = family_weight_matrix(mechanism)
     data_vars = {
+        "stoichiometry": (("species", "reaction"), _net_stoichiometry(mechanism),
+                          {"units": "1", "long_name": "net stoichiometric coefficient of each "
+                           "species in each reaction (products minus reactants; M, hv left out)"}),
+        "family_weight": (("family", "species"), weights.T,
+                          {"units": "1", "long_name": "weight of each species in each family"}),
+        "cycle_coefficient": (("cycle", "reaction"), cycle_coefficient_matrix(mechanism).T,
+                              {"units": "1", "long_name": "coefficient of each reaction rate in "
+                               "the rate of each catalytic cycle"}),
         "number_density": (("time", "species"), number_density,
                            {"units": "cm-3", "long_name": "number density of each species"}),
         "mole_fraction": (("time", "species"), mole_fraction,

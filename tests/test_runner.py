@@ -88,6 +88,11 @@ def test_dataset_contract(chain):
     assert list(chain.equation.values) == ["A -> B", "B -> C", "D + O2 -> C + O2"]
     assert list(chain.rate_coefficient_units.values) == ["s-1", "s-1", "cm3 s-1"]
     assert list(chain.family.values) == ["AB"] and list(chain.cycle.values) == ["chain"]
+    # arrays the budget diagnostics read (products minus reactants; family weights)
+    np.testing.assert_array_equal(chain.stoichiometry.sel(reaction="a_to_b"), [-1, 1, 0, 0, 0, 0, 0])
+    np.testing.assert_array_equal(chain.stoichiometry.sel(reaction="d_loss"), [0, 0, 1, -1, 0, 0, 0])
+    np.testing.assert_array_equal(chain.family_weight.sel(family="AB"), [1, 1, 0, 0, 0, 0, 0])
+    np.testing.assert_array_equal(chain.cycle_coefficient.sel(cycle="chain"), [0, 1, 0])
     attrs = chain.attrs
     assert attrs["Conventions"] == "CF-1.10"
     assert attrs["boxchem_version"] == boxchem.__version__
