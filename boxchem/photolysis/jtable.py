@@ -32,11 +32,15 @@ _LOG_FLOOR = -700.0
 
 
 def default_sza_grid(horizon_deg: float) -> np.ndarray:
-    """SZA grid [deg]: 10 deg steps to 60, 4 deg to 80, then dense up to the horizon."""
-    coarse = np.concatenate([np.arange(0.0, 60.0, 10.0), np.arange(60.0, 80.0, 4.0)])
-    near = 80.0 + (horizon_deg - 0.01 - 80.0) * (1.0 - np.cos(np.linspace(0.0, np.pi / 2, 17)))
-    near = np.concatenate([np.linspace(80.0, 88.0, 5)[:-1], np.linspace(88.0, horizon_deg - 0.01, 13)])
-    return np.concatenate([coarse, near])
+    """SZA grid [deg]: 15 deg steps to 60, 4 deg to 80, 2 deg to 88, then about 0.25 deg to the horizon.
+
+    log J is nearly linear in SZA at high sun but curves strongly once the ray
+    to the box grazes the dense air below it (beyond 90 deg), hence the
+    dense end; the last point lies 0.01 deg before the horizon.
+    """
+    n_dense = max(int(np.ceil((horizon_deg - 0.01 - 88.0) / 0.25)), 2) + 1
+    return np.concatenate([np.arange(0.0, 60.0, 15.0), np.arange(60.0, 80.0, 4.0),
+                           np.arange(80.0, 88.0, 2.0), np.linspace(88.0, horizon_deg - 0.01, n_dense)])
 
 
 def spectral_product(reaction_data, edges_nm, temperatures_K):
