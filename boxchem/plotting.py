@@ -24,7 +24,8 @@ from .diagnostics.partitioning import chlorine_partitioning  # noqa: E402
 from .diagnostics.result import ResultError, is_species  # noqa: E402
 
 __all__ = ["OKABE_ITO", "plot_mixing_ratios", "plot_diurnal", "plot_ozone_loss",
-           "plot_chlorine_partitioning", "plot_solar_zenith", "plot_all", "DEFAULT_SPECIES"]
+           "plot_chlorine_partitioning", "plot_solar_zenith", "plot_all", "plot_comparison",
+           "save_comparison", "DEFAULT_SPECIES"]
 
 #: Okabe & Ito (2008) colour-blind-safe palette (black first is kept for totals)
 OKABE_ITO = {
@@ -312,3 +313,65 @@ def plot_all(ds: xr.Dataset, outdir: str | Path, species=None, log: bool = False
         plt.close(fig)
         written.append(path)
     return written, skipped
+
+
+def plot_comparison(base: xr.Dataset, other: xr.Dataset, family: str = "Ox",
+                    labels: tuple[str, str] = ("BASE", "OTHER"), top: int = 10):
+    """Two runs side by side: O3, accumulated loss by cycle, largest reaction-rate changes."""
+    from .commands.compare import rate_changes
+    fig = plt.figure(figsize=(11, 8), constrained_layout=True)
+    grid = fig.add_gridspec(2, 2, width_ratios=(1.3, 1))
+    ax1, ax2, ax3 = fig.add_subplot(grid[0, 0]), fig.add_subplot(grid[1, 0]), fig.add_subplot(grid[:, 1])
+    styles = ({"linestyle": "-", "linewidth": 1.8}, {"linestyle": "--", "linewidth": 1.8})
+    for ds, style, label in zip((base, other), styles, labels):
+        if is_species(ds, "O3"):
+            x = ds["mole_fraction"].sel(species="O3").values
+            ax1.plot(ds["time"].values, x / 1e-6, color=OKABE_ITO["blue"], label=label, **style)
+    ax1.set_ylabel("O$_3$ [ppmv]")
+    ax1.set_title("Ozone", loc="left")
+    ax1.legend(frameon=False, fontsize=8)
+    _style(ax1)
+    _time_axis(ax1)
+
+    if "cycle_rate" in base and "cycle_rate" in other:
+        ab, ao = accumulated_loss(base, family), accumulated_loss(other, family)
+        shown = _ranked_cycles(ab)[:4] + ["total"]
+        for k, term in enumerate(shown):
+            colour = "black" if term == "total" else CYCLE_COLOURS[k]
+            for acc, ds, style in zip((ab, ao), (base, other), styles):
+                if term in set(acc["term"].values.tolist()):
+                    ax2.plot(ds["time"].values, acc["loss_percent"].sel(term=term).values, color=colour,
+                             label=term if style is styles[0] else None, **style)
+        ax2.set_ylabel("accumulated loss [% of initial O$_3$]")
+        ax2.set_title(f"Accumulated loss by cycle (solid {labels[0]}, dashed {labels[1]})", loc="left",
+                      fontsize=9)
+        ax2.legend(frameon=False, fontsize=8)
+    _style(ax2)
+    _time_axis(ax2)
+
+    rows = rate_changes(base, other, top)
+    names = [r["term"] for r in rows][::-1]
+    change = np.clip([r["change_percent"] for r in rows][::-1], -1e3, 1e3) if rows else []
+    colours = [OKABE_ITO["vermillion"] if c > 0 else OKABE_ITO["blue"] for c in change]
+    ax3.barh(names, change, color=colours, height=0.6)
+    ax3.set_ylim(-0.5, max(len(names), 8) - 0.5)
+    ax3.axvline(0, color="black", linewidth=0.8)
+    ax3.set_xlabel("change of time-mean rate [%]")
+    ax3.set_title("Largest reaction-rate changes", loc="left")
+    _style(ax3)
+    if not rows:
+        ax3.text(0.5, 0.5, "no reaction rate changed", transform=ax3.transAxes, ha="center")
+    return fig
+
+
+def save_comparison(base: xr.Dataset, other: xr.Dataset, path: str | Path, family: str = "Ox",
+                    labels: tuple[str, str] = ("BASE", "OTHER"), dpi: int = 130) -> Path:
+    """Write :func:`plot_comparison` to ``path`` (.png or .pdf)."""
+    path = Path(path)
+    if path.suffix.lower() not in (".png", ".pdf"):
+        raise ResultError(f"--plot {path}: the file name must end in .png or .pdf")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fig = plot_comparison(base, other, family, labels)
+    fig.savefig(path, dpi=dpi)
+    plt.close(fig)
+    return path

@@ -24,7 +24,7 @@ import xarray as xr
 from .result import (ResultError, elapsed_seconds, family_weights, is_family, is_species,
                      require, stoichiometry)
 
-__all__ = ["net_coefficients", "production_loss", "largest_terms", "BUDGET_UNITS"]
+__all__ = ["net_coefficients", "production_loss", "largest_terms", "time_mean", "BUDGET_UNITS"]
 
 BUDGET_UNITS = "cm-3 s-1"
 
@@ -82,7 +82,7 @@ def production_loss(ds: xr.Dataset, name: str, mechanism=None) -> xr.Dataset:
     return out
 
 
-def _time_mean(da: xr.DataArray) -> xr.DataArray:
+def time_mean(da: xr.DataArray) -> xr.DataArray:
     """Time-weighted mean over the run (trapezoid rule) [same units]."""
     t = elapsed_seconds(da)
     if t.size < 2 or t[-1] <= 0:
@@ -102,7 +102,7 @@ def largest_terms(budget: xr.Dataset, top: int = 10, kind: str = "loss") -> list
     """
     if kind not in ("production", "loss"):
         raise ValueError(f"kind must be 'production' or 'loss', got {kind!r}")
-    mean = _time_mean(budget[kind])
+    mean = time_mean(budget[kind])
     total = float(mean.sum())
     order = np.argsort(-mean.values, kind="stable")
     eq = budget["equation"].values if "equation" in budget.coords else None

@@ -42,7 +42,9 @@ def open_result(path: str | Path) -> xr.Dataset:
     try:
         ds = xr.load_dataset(path)
     except Exception as exc:  # netCDF4/h5 raise many kinds; the message is what matters
-        raise ResultError(f"{path}: cannot be read as netCDF ({type(exc).__name__}: {exc})") from None
+        first = (str(exc).splitlines() or [""])[0].split(". ")[0][:160]
+        raise ResultError(f"{path}: cannot be read as netCDF ({first}); "
+                          f"expected a file written by 'boxchem run'") from None
     missing = [v for v in CORE_VARIABLES if v not in ds.variables]
     if missing or "time" not in ds.dims:
         raise ResultError(
