@@ -203,6 +203,26 @@ def test_moving_parcel_horizon_crossings():
     assert not env.at(np.linspace(tc[-1] + 60.0, 10 * 86400.0, 500)).sunlit.any()
 
 
+def test_scalar_and_array_paths_agree_for_a_moving_parcel():
+    day = 86400.0
+    env = Environment("2026-08-15T00:00Z",
+                      temperature=TimeSeries([0.0, 3 * day], [200.0, 188.0], name="T"),
+                      latitude=TimeSeries([0.0, 3 * day], [-60.0, -75.0], name="lat"),
+                      longitude=TimeSeries([0.0, 3 * day], [170.0, 200.0], name="lon"),
+                      altitude=TimeSeries([0.0, 3 * day], [17000.0, 21000.0], name="z"),
+                      ozone_column=TimeSeries([0.0, 3 * day], [300.0, 200.0], name="o3"),
+                      psc_area=PscThresholdRule(2e-8), sulfate_area=TimeSeries([0.0, day], [1e-8, 5e-9]))
+    t = np.linspace(-100.0, 4 * day, 41)
+    arrays = env.at(t)
+    for i, ti in enumerate(t):
+        one = env.at(float(ti))
+        for field in arrays.__dataclass_fields__:
+            a = getattr(arrays, field)[i]
+            b = getattr(one, field)
+            assert np.ndim(b) == 0
+            assert float(b) == pytest.approx(float(a), rel=1e-12, abs=1e-20), field
+
+
 def test_environment_at_is_fast_for_scalars():
     env = _env(temperature=TimeSeries([0.0, 1e6], [200.0, 190.0], name="T"),
                psc_area=PscThresholdRule(1e-8))

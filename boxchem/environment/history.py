@@ -12,6 +12,7 @@ run's clock.
 from __future__ import annotations
 
 import csv
+import math
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -19,7 +20,8 @@ import numpy as np
 
 from ..errors import DataFileError, ScenarioError
 from . import solar
-from .atmosphere import air_number_density, altitude_from_pressure, standard_atmosphere
+from .atmosphere import (BOLTZMANN_J_PER_K, air_number_density, altitude_from_pressure,
+                         standard_atmosphere)
 
 __all__ = [
     "TimeSeries",
@@ -42,6 +44,10 @@ NAT_EXISTENCE_TEMPERATURE_K = 195.0
 #: near 50 hPa for 5 ppmv H2O (ice vapour pressure of Marti & Mauersberger
 #: 1993, GRL 20, 363, doi:10.1029/93GL00105; value recalled from memory).
 ICE_FROST_POINT_K = 188.0
+
+
+#: k_B [J K-1] times 1e6 cm3 m-3: n [cm-3] = p [Pa] / (T [K] * _BOLTZMANN_CM3)
+_BOLTZMANN_CM3 = BOLTZMANN_J_PER_K * 1.0e6
 
 
 def parse_utc(value, where: str = "time") -> np.datetime64:
@@ -186,6 +192,9 @@ class PscThresholdRule:
 
     def __call__(self, temperature_K):
         """PSC surface area density [cm2 cm-3] at temperature [K]."""
+        if isinstance(temperature_K, float):  # fast path for the time loop (np.float64 included)
+            x = min(1.0, max(0.0, (self.threshold_K - temperature_K) / self.width_K))
+            return np.float64(self.area_cm2_cm3 * x * x * (3.0 - 2.0 * x))
         x = np.clip((self.threshold_K - temperature_K) / self.width_K, 0.0, 1.0)
         return self.area_cm2_cm3 * x * x * (3.0 - 2.0 * x)
 
@@ -333,13 +342,14 @@ class Environment:
         For scalar ``t`` the fields are numpy scalars; for an array they are
         arrays of the same shape.
         """
-        scalar = np.ndim(t) == 0
-        t = float(t) if scalar else np.asarray(t, dtype=float)
+        if isinstance(t, (float, int, np.floating, np.integer)) or np.ndim(t) == 0:
+            return self._at_scalar(float(t))
+        t = np.asarray(t, dtype=float)
 
         def value(q):
             if isinstance(q, TimeSeries):
                 return np.interp(t, q.times_s, q.values)
-            return np.float64(q) if scalar else np.full(t.shape, q)
+            return np.full(t.shape, q)
 
         T = value(self.temperature)
         if self._log_pressure is not None:
@@ -350,26 +360,42 @@ class Environment:
         lon = value(self.longitude)
         z = value(self.altitude)
         sza, dist = solar._zenith_and_distance_factor(self._start_days + t / 86400.0, lat, lon)
-        if self._horizon is not None:
-            hz = np.float64(self._horizon) if scalar else np.full(t.shape, self._horizon)
-        else:
-            hz = solar.horizon_zenith_angle(z)
+        hz = np.full(t.shape, self._horizon) if self._horizon is not None else solar.horizon_zenith_angle(z)
         psc = self.psc_area(T) if isinstance(self.psc_area, PscThresholdRule) else value(self.psc_area)
         return EnvironmentState(
-            time_s=np.float64(t) if scalar else t,
-            temperature=T,
-            pressure=p,
-            air_density=p / (T * 1.380649e-17),  # ideal gas, k_B [J K-1] * 1e6 cm3 m-3 (CODATA 2018)
-            latitude=lat,
-            longitude=_wrap_longitude(lon),
-            altitude=z,
-            solar_zenith_angle=sza,
-            horizon_zenith_angle=hz,
-            ozone_column=value(self.ozone_column),
-            psc_area=psc,
-            sulfate_area=value(self.sulfate_area),
-            distance_factor=dist,
-        )
+            time_s=t, temperature=T, pressure=p, air_density=air_number_density(p, T),
+            latitude=lat, longitude=_wrap_longitude(lon), altitude=z,
+            solar_zenith_angle=sza, horizon_zenith_angle=hz,
+            ozone_column=value(self.ozone_column), psc_area=psc,
+            sulfate_area=value(self.sulfate_area), distance_factor=dist)
+
+    def _at_scalar(self, t: float) -> EnvironmentState:
+        """``at`` for one time, in float arithmetic (about ten microseconds per call)."""
+        def value(q):
+            if q.__class__ is float:
+                return q
+            return float(np.interp(t, q.times_s, q.values))
+
+        T = value(self.temperature)
+        if self._log_pressure is not None:
+            p = math.exp(np.interp(t, self._log_pressure.times_s, self._log_pressure.values))
+        else:
+            p = value(self.pressure)
+        lat = value(self.latitude)
+        lon = value(self.longitude)
+        z = value(self.altitude)
+        sza, dist = solar._zenith_and_distance_factor_scalar(self._start_days + t / 86400.0, lat, lon)
+        if self._horizon is not None:
+            hz = self._horizon
+        else:  # horizon_zenith_angle for one altitude
+            hz = 90.0 + math.degrees(math.acos(solar.EARTH_RADIUS_M / (solar.EARTH_RADIUS_M + max(z, 0.0))))
+        psc = (float(self.psc_area(T)) if self.psc_area.__class__ is PscThresholdRule
+               else value(self.psc_area))
+        f64 = np.float64
+        return EnvironmentState(
+            f64(t), f64(T), f64(p), f64(p / (T * _BOLTZMANN_CM3)), f64(lat),
+            f64((lon + 180.0) % 360.0 - 180.0), f64(z), f64(sza), f64(hz),
+            f64(value(self.ozone_column)), f64(psc), f64(value(self.sulfate_area)), f64(dist))
 
     def solar_zenith_angle(self, t):
         """Solar zenith angle [deg] at ``t`` [s since start] along the box's path."""

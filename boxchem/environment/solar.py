@@ -33,6 +33,8 @@ J. Geodesy 74, 128, doi:10.1007/s001900050278).
 """
 from __future__ import annotations
 
+import math
+from types import SimpleNamespace
 from typing import Callable
 
 import numpy as np
@@ -74,8 +76,16 @@ def days_since_j2000(time) -> np.ndarray:
     return (t.astype("datetime64[ns]") - _J2000).astype(np.float64) / _NS_PER_DAY
 
 
-def _solar_coordinates(d):
+# The same formulas serve arrays (numpy) and single floats (math, about ten
+# times faster per call: the time loop evaluates one time per step).
+_NUMPY = SimpleNamespace(sin=np.sin, cos=np.cos, atan2=np.arctan2, asin=np.arcsin)
+_MATH = SimpleNamespace(sin=math.sin, cos=math.cos, atan2=math.atan2, asin=math.asin)
+
+
+def _solar_coordinates(d, m=_NUMPY):
     """Sun's apparent coordinates at ``d`` days since J2000.0 (Meeus 1998, ch. 25).
+
+    ``m`` supplies sin, cos, atan2 and asin (numpy for arrays, math for floats).
 
     Returns right ascension alpha [deg], declination delta [deg], distance
     r [AU], apparent sidereal time at Greenwich theta [deg], and the mean
@@ -86,26 +96,26 @@ def _solar_coordinates(d):
     M = 357.52911 + T * (35999.05029 - 0.0001537 * T)   # mean anomaly (eq. 25.3)
     e = 0.016708634 - T * (0.000042037 + 0.0000001267 * T)  # eccentricity (eq. 25.4)
     Mr = M * _DEG
-    C = ((1.914602 - T * (0.004817 + 0.000014 * T)) * np.sin(Mr)
-         + (0.019993 - 0.000101 * T) * np.sin(2.0 * Mr)
-         + 0.000289 * np.sin(3.0 * Mr))                   # equation of centre
+    C = ((1.914602 - T * (0.004817 + 0.000014 * T)) * m.sin(Mr)
+         + (0.019993 - 0.000101 * T) * m.sin(2.0 * Mr)
+         + 0.000289 * m.sin(3.0 * Mr))                   # equation of centre
     true_longitude = L0 + C
     v = (M + C) * _DEG                                    # true anomaly
-    r = 1.000001018 * (1.0 - e * e) / (1.0 + e * np.cos(v))  # distance (eq. 25.5)
+    r = 1.000001018 * (1.0 - e * e) / (1.0 + e * m.cos(v))  # distance (eq. 25.5)
     omega = (125.04 - 1934.136 * T) * _DEG                # longitude of the Moon's node
     # apparent longitude: aberration (-0.00569) and nutation (-0.00478 sin omega)
-    lam = (true_longitude - 0.00569 - 0.00478 * np.sin(omega)) * _DEG
+    lam = (true_longitude - 0.00569 - 0.00478 * m.sin(omega)) * _DEG
     eps0 = (23.0 + 26.0 / 60.0 + 21.448 / 3600.0
             - T * (46.8150 + T * (0.00059 - 0.001813 * T)) / 3600.0)  # eq. 22.2
-    eps = (eps0 + 0.00256 * np.cos(omega)) * _DEG         # apparent obliquity (eq. 25.8)
-    sin_lam = np.sin(lam)
-    alpha = np.arctan2(np.cos(eps) * sin_lam, np.cos(lam)) / _DEG  # eq. 25.6
-    delta = np.arcsin(np.sin(eps) * sin_lam) / _DEG               # eq. 25.7
+    eps = (eps0 + 0.00256 * m.cos(omega)) * _DEG         # apparent obliquity (eq. 25.8)
+    sin_lam = m.sin(lam)
+    alpha = m.atan2(m.cos(eps) * sin_lam, m.cos(lam)) / _DEG  # eq. 25.6
+    delta = m.asin(m.sin(eps) * sin_lam) / _DEG               # eq. 25.7
     # Greenwich mean sidereal time (eq. 12.4) plus nutation in right ascension
     # (delta_psi cos eps, with delta_psi ~ -0.00478 sin omega as above).
     theta = (280.46061837 + 360.98564736629 * d
              + T * T * (0.000387933 - T / 38710000.0)
-             - 0.00478 * np.sin(omega) * np.cos(eps))
+             - 0.00478 * m.sin(omega) * m.cos(eps))
     return alpha, delta, r, theta, L0
 
 
@@ -133,6 +143,16 @@ def _zenith_and_distance_factor(d, latitude, longitude):
     dr = delta * _DEG
     cos_chi = np.sin(phi) * np.sin(dr) + np.cos(phi) * np.cos(dr) * np.cos(H)
     return np.arccos(np.clip(cos_chi, -1.0, 1.0)) / _DEG, 1.0 / (r * r)
+
+
+def _zenith_and_distance_factor_scalar(d: float, latitude: float, longitude: float):
+    """``_zenith_and_distance_factor`` for single floats, with the math module."""
+    alpha, delta, r, theta, _L0 = _solar_coordinates(d, _MATH)
+    H = (theta + longitude - alpha) * _DEG
+    phi = latitude * _DEG
+    dr = delta * _DEG
+    cos_chi = math.sin(phi) * math.sin(dr) + math.cos(phi) * math.cos(dr) * math.cos(H)
+    return math.acos(min(1.0, max(-1.0, cos_chi))) / _DEG, 1.0 / (r * r)
 
 
 def solar_zenith_angle(time, latitude, longitude) -> np.ndarray:
