@@ -152,7 +152,8 @@ class Scenario:
 
         ``overrides`` keys are ``"section.key"`` (``{"run.duration": "2 d"}``)
         or a bare key that names one key of one section (``duration="2 d"``,
-        ``rtol=1e-6``).  ``scale`` entries multiply onto the file's ``[scale]``.
+        ``rtol=1e-6``); a value of None removes the key (its default applies).
+        ``scale`` entries multiply onto the file's ``[scale]``.
         The original text stays in ``text``; the overrides are kept in
         ``overrides`` for provenance.
         """
@@ -160,7 +161,9 @@ class Scenario:
         record = dict(self.overrides)
         for key, value in overrides.items():
             section, name = _override_target(key, self.source)
-            if section == "initial" and isinstance(value, Mapping):
+            if value is None:
+                data.get(section, {}).pop(name, None)
+            elif section == "initial" and isinstance(value, Mapping):
                 data.setdefault("initial", {}).update(value)
             else:
                 data.setdefault(section, {})[name] = value

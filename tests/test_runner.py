@@ -186,7 +186,6 @@ def _closing_scale(mechanism, element):
     return out
 
 
-@pytest.mark.slow
 @pytest.mark.parametrize("method", ["parametric", "spectral"])
 def test_shipped_scenario_conserves_cl_br_n_atoms(method):
     if method == "spectral":
@@ -211,3 +210,38 @@ def test_shipped_scenario_conserves_cl_br_n_atoms(method):
     night = sza >= 90.0 + np.degrees(np.arccos(6371008.8 / (6371008.8 + 18500.0)))
     assert np.all(j[night] == 0.0) and np.all(j[sza < 85.0] > 0.0)
     assert (ds.number_density >= 0).all()
+
+
+def test_location_by_pressure_uses_the_standard_atmosphere():
+    s = load_scenario(CHAIN).with_overrides(**{
+        "location.altitude": None, "location.pressure": "54.75 hPa",
+        "environment.pressure": None, "environment.temperature": None})
+    ds = boxchem.run(s, duration="2 h")
+    # U.S. Standard Atmosphere 1976: 20 km geopotential, 5474.9 Pa, 216.65 K (NOAA/NASA/USAF 1976, Table I)
+    np.testing.assert_allclose(ds.pressure, 5475.0, rtol=1e-12)
+    np.testing.assert_allclose(ds.temperature, 216.65, atol=0.01)
+    assert 19_900 < float(ds.altitude) < 20_200
+
+
+def test_trajectory_file_drives_the_box(tmp_path):
+    (tmp_path / "parcel.csv").write_text(
+        "# invented parcel path\n"
+        "time,temperature_K,pressure_hPa,latitude,longitude\n"
+        "2026-09-01T00:00:00Z,200,70,-70,0\n"
+        "2026-09-02T00:00:00Z,190,60,-60,90\n")
+    text = CHAIN.read_text().replace('temperature = "200 K"\npressure = "70 hPa"\n',
+                                     'trajectory = "parcel.csv"\n')
+    text = text.replace("latitude = -70.0\nlongitude = 0.0\n", "")
+    text = text.replace('"runner_chain.mech"', f'"{DATA / "runner_chain.mech"}"')
+    path = tmp_path / "parcel.toml"
+    path.write_text(text)
+    ds = boxchem.run(path)
+    frac = seconds(ds) / 86400.0
+    np.testing.assert_allclose(ds.temperature, 200 - 10 * frac, rtol=1e-12)
+    np.testing.assert_allclose(ds.pressure, 7000 - 1000 * frac, rtol=1e-12)
+    np.testing.assert_allclose(ds.latitude, -70 + 10 * frac, rtol=1e-12)
+    np.testing.assert_allclose(ds.longitude, 90 * frac, atol=1e-9)
+    # a key given both ways is an error
+    path.write_text(text.replace('[environment]\n', '[environment]\ntemperature = "200 K"\n'))
+    with pytest.raises(boxchem.ScenarioError, match=r"\[environment\]\.temperature: given both"):
+        load_scenario(path)
