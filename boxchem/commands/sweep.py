@@ -1,0 +1,58 @@
+"""``boxchem sweep SCENARIO --vary KEY=V1,V2,...``: run every combination in parallel."""
+from __future__ import annotations
+
+import argparse
+
+EXAMPLE = """examples:
+  boxchem sweep polar-spring --vary location.latitude=-60,-70,-80 -o lat.nc
+  boxchem sweep polar-spring --vary environment.temperature_offset=-2,0,2 \\
+                             --vary scale.clo_clo_m=0.8,1.2 --workers 2
+  boxchem sweep polar-spring --vary run.start=2026-08-15,2026-09-01
+
+KEY is section.key of the scenario file, scale.<reaction id> (a factor on the
+rate coefficient) or environment.temperature_offset (kelvin added to the
+scenario's temperature).  The result has one dimension per varied key; a
+member that fails is recorded in member_status / member_error and the others
+complete (exit status 1 if any failed)."""
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "sweep", help="run a scenario for every combination of varied values",
+        description="Run a scenario for every combination of the --vary values in parallel "
+                    "processes and write one netCDF file with a dimension per varied key.",
+        epilog=EXAMPLE, formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("scenario", metavar="SCENARIO", help="shipped scenario name or path to a .toml file")
+    p.add_argument("--vary", action="append", required=True, metavar="KEY=V1,V2,...",
+                   help="values of one scenario key (repeatable)")
+    p.add_argument("-o", "--output", default=None, metavar="OUT.nc",
+                   help="output file (default SCENARIO-STEM-sweep.nc in the current folder)")
+    p.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="worker processes (default: number of CPUs)")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    import sys
+    from pathlib import Path
+
+    import numpy as np
+
+    from ..analysis.sweep import parse_vary, run_sweep
+    vary = parse_vary(args.vary)
+    result = run_sweep(args.scenario, vary, workers=args.workers, quiet=args.quiet)
+    out = Path(args.output) if args.output else Path(f"{Path(str(args.scenario)).stem}-sweep.nc")
+    from ..io.netcdf import write_dataset
+    write_dataset(result, out)  # atomic: temporary name, then rename
+    failed = int(result.attrs.get("sweep_failed", 0))
+    if not args.quiet:
+        print(f"{out}: {result.attrs['sweep_members']} members, {failed} failed")
+        if failed:
+            status = result["member_status"].values.ravel()
+            errors = result["member_error"].values.ravel()
+            for idx, (s, e) in zip(np.ndindex(result["member_status"].shape), zip(status, errors)):
+                if s != "ok":
+                    where = ", ".join(f"{d}={result[d].values[i]}" for d, i in zip(result["member_status"].dims, idx))
+                    print(f"  failed ({where}): {e}", file=sys.stderr)
+    return 1 if failed else 0
