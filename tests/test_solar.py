@@ -93,6 +93,13 @@ def test_zenith_broadcasts_times_against_places():
         np.testing.assert_allclose(z[:, j], solar_zenith_angle(times, la, 30.0), rtol=0, atol=1e-12)
 
 
+def test_not_a_time_gives_nan():
+    t = np.array(["2026-01-01T12:00", "NaT"], dtype="datetime64[ns]")
+    z = solar_zenith_angle(t, 0.0, 0.0)
+    assert np.isfinite(z[0]) and np.isnan(z[1])
+    assert np.isnan(solar_zenith_angle(np.datetime64("NaT"), 0.0, 0.0))
+
+
 def test_zenith_rejects_bad_input():
     with pytest.raises(ValueError, match="latitude"):
         solar_zenith_angle(np.datetime64("2026-01-01"), 95.0, 0.0)
@@ -259,6 +266,17 @@ def test_polar_night_and_midnight_sun():
     assert spa_reference(day, 70.0, 0.0)[0].max() < 90.0
     assert np.all(np.isnat(sun_events(june, 70.0, 0.0, 0.0)))
     assert daylight_hours(june, 70.0, 0.0, 0.0) == 24.0
+
+
+def test_the_poles():
+    # At the poles the sun circles at a constant height, 90 deg - |declination| from the zenith
+    # (spherical astronomy; common practice, no source): midnight sun in local summer, night in winter
+    d = np.array(["2026-06-21", "2026-12-21"], dtype="datetime64[D]")
+    np.testing.assert_array_equal(daylight_hours(d, 90.0, 0.0, 0.0), [24.0, 0.0])
+    np.testing.assert_array_equal(daylight_hours(d, -90.0, 0.0, 20000.0), [0.0, 24.0])
+    assert np.all(np.isnat(sun_events(d, 90.0, 0.0, 0.0)[0]))
+    z = solar_zenith_angle(np.datetime64("2026-06-21T00:00") + np.arange(0, 24, 3).astype("timedelta64[h]"), 90.0, 0.0)
+    assert np.ptp(z) < 0.01
 
 
 def test_day_when_midnight_sun_begins():

@@ -67,13 +67,15 @@ _DEG = np.pi / 180.0
 
 
 def days_since_j2000(time) -> np.ndarray:
-    """Days [d] from J2000.0 (2000-01-01 12:00 UTC) to the UTC ``time`` (datetime64, any shape)."""
+    """Days [d] from J2000.0 (2000-01-01 12:00 UTC) to the UTC ``time`` (datetime64, any shape); NaN for NaT."""
     t = np.asarray(time)
     if not np.issubdtype(t.dtype, np.datetime64):
         raise TypeError(
             f"time: expected numpy datetime64 values (UTC), got dtype {t.dtype}; "
             "use e.g. np.datetime64('2026-09-01T12:00')")
-    return (t.astype("datetime64[ns]") - _J2000).astype(np.float64) / _NS_PER_DAY
+    t = t.astype("datetime64[ns]")
+    days = (t - _J2000).astype(np.float64) / _NS_PER_DAY
+    return np.where(np.isnat(t), np.nan, days) if t.ndim else (np.nan if np.isnat(t) else days)
 
 
 # The same formulas serve arrays (numpy) and single floats (math, about ten
