@@ -194,11 +194,6 @@ class Scenario:
             times = np.append(times, self.duration_s)
         return times
 
-    def summary_dict(self) -> dict[str, Any]:
-        """Scalar settings worth recording as netCDF attributes."""
-        return {"rtol": self.rtol, "atol": self.atol, "solver_method": self.solver_method,
-                "photolysis_method": self.photolysis_method}
-
 
 def load_scenario(path_or_name: str | Path, *, mechanism: Any = None) -> Scenario:
     """Read a scenario file by path or shipped bare name (``"stratosphere-box"``)."""
