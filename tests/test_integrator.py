@@ -261,3 +261,38 @@ def test_rate_coefficient_model_caches_thermal_k_and_applies_scale():
     assert scaled(0.0)[0][i] == pytest.approx(1.5 * k_night[i], rel=1e-14)
     with pytest.raises(Exception, match="scale.clo_clo_n: .*did you mean 'clo_clo_m'"):
         RateCoefficientModel(mech, ev, coef.photolysis_rates, env, scale={"clo_clo_n": 2.0})
+
+
+@pytest.mark.skipif(not (ROOT / "mechanisms" / "stratosphere.mech").exists(), reason="no shipped mechanism")
+def test_rate_coefficient_model_follows_drifting_temperature_and_the_sun():
+    from boxchem.environment.history import Environment, PscThresholdRule, TimeSeries
+    from boxchem.mechanism import load_mechanism
+    from boxchem.photolysis.rates import PhotolysisRates
+
+    mech = load_mechanism(str(ROOT / "mechanisms" / "stratosphere.mech"))
+    # invented demo conditions: a warming from 190 K to 201 K over 10 days, PSC below 195 K
+    env = Environment("2026-09-01T00:00:00Z", latitude=-70.0, longitude=0.0, ozone_column=250.0,
+                      temperature=TimeSeries([0.0, 864000.0], [190.0, 201.0], "temperature"),
+                      pressure=TimeSeries([0.0, 864000.0], [6000.0, 5500.0], "pressure"),
+                      altitude=18500.0, psc_area=PscThresholdRule(2e-8), sulfate_area=5e-9)
+    phot = PhotolysisRates(mech, altitude_m=18500.0, method="parametric")
+    ev = RateEvaluator(mech)
+    model = RateCoefficientModel(mech, ev, phot, env)
+    times = np.linspace(0.0, 864000.0, 2001)
+    worst = 0.0
+    for t in times:
+        k, _ = model(t)
+        s = env.at(t)
+        exact = (ev.thermal(s.temperature, s.air_density) + ev.surface(s.temperature, s.psc_area, s.sulfate_area)
+                 + phot(s.solar_zenith_angle, s.ozone_column, s.temperature, s.distance_factor))
+        worst = max(worst, np.max(np.abs(k - exact) / np.maximum(np.abs(exact), 1e-300)))
+        if s.solar_zenith_angle >= s.horizon_zenith_angle:
+            assert np.all(k[ev.photolysis_index] == 0.0)  # J exactly zero below the horizon
+    # first-order carry of ln k between full evaluations: error bound in coefficients.py
+    assert worst < 1e-4
+    # full evaluations only when T or ln[M] moved past the refresh thresholds (3 evaluations
+    # each: k and its two log-derivatives), not at every call
+    from boxchem.solver.coefficients import THERMAL_REFRESH_K, THERMAL_REFRESH_LOG_AIR
+    air_change = abs(np.log(float(env.at(864000.0).air_density) / float(env.at(0.0).air_density)))
+    refreshes = 11.0 / THERMAL_REFRESH_K + air_change / THERMAL_REFRESH_LOG_AIR + 1
+    assert model.thermal_evaluations <= 3 * refreshes
