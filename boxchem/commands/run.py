@@ -12,7 +12,7 @@ from ..errors import IntegrationError, ScenarioError
 EXAMPLE = """examples:
   boxchem run stratosphere-box                      # shipped scenario -> ./stratosphere-box.nc
   boxchem run my.toml -o out/my.nc --quiet
-  boxchem run stratosphere-box --scale clo_clo_m=1.2 --set run.duration="5 d"
+  boxchem run stratosphere-box --scale clo_clo_m=1.2 --set 'run.duration="5 d"'
 
 The file is written under a temporary name and renamed when complete.  If
 the integration fails, the result up to the failure is written to
