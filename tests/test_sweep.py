@@ -60,3 +60,22 @@ def test_all_members_failing_is_an_error():
 def test_unknown_key_rejected_before_running():
     with pytest.raises(SweepError, match="unknown key 'location.latitdue'"):
         run_sweep("stratosphere-box", {"location.latitdue": [1.0]}, workers=1, quiet=True)
+
+
+@pytest.mark.slow
+def test_real_sweep_of_shipped_scenario(tmp_path, capsys):
+    """Two short runs of the shipped scenario in two processes, through the CLI."""
+    from boxchem.cli import main
+    import xarray as xr
+    out = tmp_path / "sweep.nc"
+    rc = main(["sweep", "stratosphere-box", "--vary", "run.duration=6 h",
+               "--vary", "environment.temperature_offset=-2,2", "--vary", "location.latitude=-70,-95",
+               "-o", str(out), "--workers", "2", "--quiet"])
+    assert rc == 1  # latitude -95 is invalid: those members fail, the others complete
+    ds = xr.load_dataset(out)
+    assert ds["member_status"].sel(location_latitude=-70.0).values.ravel().tolist() == ["ok", "ok"]
+    assert "latitude" in str(ds["member_error"].sel(location_latitude=-95.0).values.ravel()[0])
+    t = ds["temperature"].sel(location_latitude=-70.0).isel(run_duration=0)
+    # the offset is added to the scenario's temperature: members differ by exactly 4 K
+    np.testing.assert_allclose((t.sel(environment_temperature_offset=2.0)
+                                - t.sel(environment_temperature_offset=-2.0)).values, 4.0, rtol=1e-9)
