@@ -120,3 +120,14 @@ def test_chain_length_of_dimer_cycle(ds):
     assert daily.sizes["day"] == 3 and np.all(daily.values > 0)
     with pytest.raises(ResultError, match="unknown cycle 'nope'"):
         chain_length(ds, "nope", carrier="ClOx")
+
+
+@pytest.mark.slow
+def test_cycles_close_the_ox_budget_of_a_real_run():
+    """On a sunlit polar day of the shipped scenario the mechanism's cycles carry nearly all
+    of the Ox loss on the recycled basis (narrow Ox family; common practice, no source)."""
+    import boxchem
+    ds = boxchem.run("stratosphere-box", **{"run.duration": "1 d"})
+    acc = accumulated_loss(ds).isel(time=-1)["loss_number_density"]
+    assert float(acc.sel(term="total")) > 0
+    assert abs(float(acc.sel(term="unattributed"))) < 0.05 * float(acc.sel(term="total"))
