@@ -1,4 +1,9 @@
-"""Diagnostics computed from a run's arrays: family densities, cycle rates."""
+"""Diagnostics computed from a run's arrays: family densities, cycle rates,
+budgets, ozone loss by cycle and radical partitioning.
+
+Importing this package registers the ``ds.boxchem`` Dataset accessor.
+"""
+from . import accessor as _accessor  # noqa: F401  (registers ds.boxchem)
 from .cycles import cycle_coefficient_matrix, cycle_rate
 from .families import family_number_density, family_weight_matrix
 
