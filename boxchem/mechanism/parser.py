@@ -67,6 +67,22 @@ class _Token:
     value_column: int = 0
 
 
+def _relative_data_path(value: str, base_dir: Path | None) -> str:
+    """A ``data=``/``qy=`` value that is a relative file path, made absolute against ``base_dir``.
+
+    A value with a file suffix or a path separator is a path (the rule of
+    ``photolysis.crosssections``); a relative one is read relative to the
+    folder of the mechanism file that says it, like ``include`` paths, so that
+    a ``[replace]`` line in a user's file finds the user's lab spectrum from
+    any working directory.  Bare names (shipped data sets) are kept as given.
+    """
+    looks_like_path = Path(value).suffix != "" or "/" in value or "\\" in value
+    path = Path(value).expanduser()
+    if not looks_like_path or path.is_absolute() or base_dir is None:
+        return value
+    return str((base_dir / path).resolve())
+
+
 class _LineError(Exception):
     """A syntax error at a column of the current line (caught per line)."""
 
@@ -218,6 +234,14 @@ class _Reader:
             self.stack.pop()
 
     def read_text(self, text: str, source: str, base_dir: Path) -> None:
+        outer_dir = getattr(self, "base_dir", None)
+        self.base_dir = base_dir      # data=/qy= file paths are relative to this file's folder
+        try:
+            self._read_lines(text, source, base_dir)
+        finally:
+            self.base_dir = outer_dir
+
+    def _read_lines(self, text: str, source: str, base_dir: Path) -> None:
         self.texts.append(text)
         section: str | None = None
         for lineno, raw in enumerate(text.splitlines(), start=1):
@@ -481,12 +505,12 @@ class _Reader:
             elif key in STRING_KEYS:
                 if not value:
                     raise _LineError(f"{key}= needs a value", tok.value_column)
-                params[key] = value
+                params[key] = _relative_data_path(value, self.base_dir) if key == "data" else value
             elif key == "qy":
                 try:
                     params[key] = float(value)
                 except ValueError:
-                    params[key] = value  # a data set name or path
+                    params[key] = _relative_data_path(value, self.base_dir)  # a data set name or path
                 if value == "":
                     raise _LineError("qy= needs a number or a data set name", tok.value_column)
             else:
