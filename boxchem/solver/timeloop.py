@@ -100,7 +100,7 @@ def _validated_times(output_times_s, breakpoints_s):
 def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(),
                   rtol: float = DEFAULT_RTOL, atol=DEFAULT_ATOL, first_step: float | None = None,
                   max_step: float = np.inf, progress=None, raise_on_failure: bool = True,
-                  method: RosenbrockMethod = RODAS3) -> TimeLoopResult:
+                  method: RosenbrockMethod = RODAS3, on_accept=None) -> TimeLoopResult:
     """Integrate one box through ``output_times_s``.
 
     Parameters
@@ -117,6 +117,10 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
     progress : callable(t_s) called after each output time (e.g. a progress bar)
     raise_on_failure : raise IntegrationError (with the partial result attached
         as ``partial_result``) when True, else return the partial result with status -1
+    on_accept : callable(t_s, y), optional; called with the start state and after
+        every accepted step, before the next coefficient evaluation (so a
+        ``coefficients`` that depends on the box's state sees it lagged by one
+        step, e.g. the overhead ozone column following the box's ozone)
 
     Returns
     -------
@@ -146,6 +150,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
                                    "atol": float(atol.max()) if np.all(atol == atol[0]) else atol.tolist()})
 
     t = out[0]
+    if on_accept is not None:
+        on_accept(t, y)
     k0, fx0 = coefficients(t)
     res.coefficient_evaluations += 1
     ys[0], ks[0], fxs[0] = y, k0, fx0
@@ -238,6 +244,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
             h_next = max(h_next, h_proposed)
         h = min(h_next, max_step)
         t, y, k0, fx0 = t_new, y_new, k1, fx1
+        if on_accept is not None:
+            on_accept(t, y)
         f0 = kinetics.rhs(y, k0, fx0)
         res.rhs_evaluations += 1
         while next_out < n_out and out[next_out] <= t:
