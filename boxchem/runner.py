@@ -317,7 +317,14 @@ def prepare(scenario: Scenario) -> RunSetup:
         from .photolysis.rates import PhotolysisRates
         altitude = float(np.asarray(environment.at(0.0).altitude))
         photolysis = PhotolysisRates(mechanism, altitude_m=altitude, albedo=scenario.albedo,
-                                     method=scenario.photolysis_method)
+                                     method=scenario.photolysis_method,
+                                     cross_sections={rid: str(path) for rid, path
+                                                     in scenario.photolysis_cross_sections.items()})
+        if scenario.ozone_column_follows_box:
+            from .photolysis.ozonefollow import OzoneFollowingPhotolysis
+            photolysis = OzoneFollowingPhotolysis(
+                photolysis, environment, kinetics.variable_species.index("O3"),
+                scenario.ozone_loss_layer_depth_m)
     fixed_fractions = {name: value for name, (value, kind) in scenario.initial.items()
                        if kind == "mole_fraction" and mechanism.species_by_name(name).fixed}
     coefficients = RateCoefficientModel(mechanism, RateEvaluator(mechanism), photolysis,
@@ -345,6 +352,16 @@ def _dataset_from_result(setup: RunSetup, result, *, status: str, message: str) 
         number_density[:, j] = (y if source == "y" else fixed)[:, i]
     rates = kinetics.rates(y, k, fixed) if times.size else np.zeros((0, len(mechanism.reactions)))
     state = setup.environment.at(times)
+    if hasattr(setup.photolysis, "observe") and times.size:
+        # [photolysis].ozone_column_follows_box: write the column J used (without its
+        # one-step lag), from the box's O3 at the output times
+        import dataclasses
+        from .photolysis.ozonefollow import box_ozone_column
+        air = np.asarray(state.air_density, dtype=float)
+        x_o3 = number_density[:, mechanism.species_names.index("O3")] / air
+        column = box_ozone_column(state.ozone_column, x_o3[0], x_o3, air,
+                                  setup.photolysis.layer_depth_m)
+        state = dataclasses.replace(state, ozone_column=column)
     counters = {name: getattr(result, name) for name in COUNTER_NAMES}
     counters["coefficient_evaluations"] = getattr(result, "coefficient_evaluations", 0)
     sources = getattr(setup.photolysis, "source", None)
@@ -391,7 +408,8 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
                                breakpoints_s=setup.breakpoints_s, rtol=scenario.rtol,
                                atol=scenario.atol,
                                max_step=scenario.max_step_s if scenario.max_step_s else np.inf,
-                               progress=callback, method=method)
+                               progress=callback, method=method,
+                               on_accept=getattr(setup.photolysis, "observe", None))
     except IntegrationError as exc:
         if isinstance(exc.time, (int, float, np.floating)):
             seconds = float(exc.time)

@@ -43,7 +43,8 @@ SCENARIO_KEYS: dict[str, tuple[str, ...]] = {
     "environment": ("temperature", "pressure", "trajectory", "ozone_column",
                     "psc_surface_area", "sulfate_surface_area", "albedo"),
     "solver": ("rtol", "atol", "method", "max_step"),
-    "photolysis": ("method",),
+    "photolysis": ("method", "cross_sections", "ozone_column_follows_box",
+                   "ozone_loss_layer_depth"),
 }
 _FREE_SECTIONS = ("initial", "scale")
 _SERIES_KEYS = ("times", "values", "time_unit", "unit")
@@ -58,6 +59,7 @@ DEFAULT_RTOL = 1.0e-4
 DEFAULT_ATOL_CM3 = 1.0e-2
 DEFAULT_SOLVER_METHOD = "ros3"
 DEFAULT_PHOTOLYSIS_METHOD = "spectral"
+DEFAULT_OZONE_LOSS_LAYER_DEPTH_M = 10_000.0   # reasoning in boxchem/photolysis/ozonefollow.py
 
 # physical ranges for plausibility checks (wide on purpose: reject only nonsense)
 _ALTITUDE_RANGE_M = (-500.0, 120_000.0)
@@ -129,6 +131,10 @@ class Scenario:
     photolysis_method: str
     overrides: Mapping[str, Any] = field(default_factory=dict)
     mechanism: Any = field(default=None, repr=False, compare=False)
+    #: reaction id -> user cross-section file ([photolysis].cross_sections)
+    photolysis_cross_sections: Mapping[str, Path] = field(default_factory=dict)
+    ozone_column_follows_box: bool = False
+    ozone_loss_layer_depth_m: float = DEFAULT_OZONE_LOSS_LAYER_DEPTH_M
 
     # -- construction ----------------------------------------------------------
     @classmethod
@@ -534,6 +540,21 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
             err.add("[run].mechanism", f"the mechanism {str(mechanism_path)!r} has errors:\n{exc}")
     initial = _initial(tables["initial"], mechanism, err)
     scale = _scale(tables["scale"], mechanism, err)
+    user_spectra = _cross_sections(phot.get("cross_sections", {}), mechanism, base_dir,
+                                   phot_method, err)
+    follows = phot.get("ozone_column_follows_box", False)
+    if not isinstance(follows, bool):
+        err.add("[photolysis].ozone_column_follows_box", f"expected true or false, got {follows!r}")
+        follows = False
+    if follows and mechanism is not None and "O3" not in mechanism.species_names:
+        err.add("[photolysis].ozone_column_follows_box", "the mechanism has no species O3 to follow")
+    layer_depth = DEFAULT_OZONE_LOSS_LAYER_DEPTH_M
+    if "ozone_loss_layer_depth" in phot:
+        layer_depth = _quantity(phot["ozone_loss_layer_depth"], "length",
+                                "[photolysis].ozone_loss_layer_depth", err)
+        if layer_depth is not None and not layer_depth > 0:
+            err.add("[photolysis].ozone_loss_layer_depth",
+                    f"must be > 0, got {phot['ozone_loss_layer_depth']!r}")
 
     err.raise_if_any()
     return Scenario(
@@ -546,7 +567,9 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         sulfate_surface_area=sulfate, albedo=float(albedo), initial=initial,
         rtol=float(rtol), atol=float(atol), solver_method=method, max_step_s=max_step,
         scale=scale, photolysis_method=phot_method,
-        overrides=dict(overrides), mechanism=mechanism)
+        overrides=dict(overrides), mechanism=mechanism,
+        photolysis_cross_sections=user_spectra, ozone_column_follows_box=follows,
+        ozone_loss_layer_depth_m=float(layer_depth))
 
 
 def _mechanism_loader():
@@ -644,6 +667,50 @@ def _initial(table: Mapping[str, Any], mechanism: Any, err: _Errors) -> dict[str
                 err.add(_where("initial", sp.name),
                         f"missing: the fixed species {sp.name} has no mole fraction in the "
                         f"mechanism; give one here (e.g. {sp.name} = \"1 ppmv\") or in cm-3")
+    return out
+
+
+def _cross_sections(table: Any, mechanism: Any, base_dir: Path, method: str,
+                    err: _Errors) -> dict[str, Path]:
+    """``[photolysis].cross_sections``: reaction id -> cross-section file (relative to the scenario)."""
+    where = "[photolysis].cross_sections"
+    if not isinstance(table, Mapping):
+        err.add(where, f"expected a table of reaction id = \"file.csv\", e.g. "
+                       f"cross_sections = {{ j_cl2o2 = \"my_cl2o2.csv\" }}, got {table!r}")
+        return {}
+    if table and method == "parametric":
+        err.add(where, "cross sections are used only with method = \"spectral\"; "
+                       "remove them or set [photolysis].method = \"spectral\"")
+        return {}
+    from .errors import DataFileError
+    from .photolysis.crosssections import load_spectral_file
+    photolysis_ids = (tuple(r.id for r in mechanism.reactions if r.law == "photolysis")
+                      if mechanism is not None else None)
+    out: dict[str, Path] = {}
+    for rid, value in table.items():
+        key = f"{where}.{rid}"
+        if photolysis_ids is not None and rid not in photolysis_ids:
+            hint = difflib.get_close_matches(rid, photolysis_ids, n=1)
+            extra = f" - did you mean {hint[0]!r}?" if hint else ""
+            err.add(key, f"no photolysis reaction {rid!r} in the mechanism{extra}; valid: "
+                         f"{', '.join(photolysis_ids)}")
+            continue
+        if not isinstance(value, str) or not value:
+            err.add(key, f"expected a file path string (relative to the scenario file), got {value!r}")
+            continue
+        path = (base_dir / Path(value).expanduser()).resolve()
+        if not path.is_file():
+            err.add(key, f"no file {str(path)!r} (paths are relative to the scenario file)")
+            continue
+        try:
+            data = load_spectral_file(path)
+        except DataFileError as exc:
+            err.add(key, str(exc))
+            continue
+        if data.quantity != "cross_section":
+            err.add(key, f"{path.name} holds a {data.quantity}; expected a cross_section file")
+            continue
+        out[rid] = path
     return out
 
 

@@ -187,7 +187,8 @@ def test_each_mistake_names_its_key_path(old, new, expected):
     ("[solver]\natol = \"1 ppbv\"", r"\[solver\]\.atol: must be a number density \(cm-3\)"),
     ("[solver]\nmethod = \"euler\"", r"\[solver\]\.method: unknown method 'euler'; valid: ros3"),
     ("[photolysis]\nmethod = \"guess\"", r"\[photolysis\]\.method: unknown method 'guess'; valid: spectral, parametric"),
-    ("[photolysis]\nozone_column_follows_box = true", r"\[photolysis\]\.ozone_column_follows_box: unknown key"),
+    ("[photolysis]\nozone_column_follows_box = \"yes\"", r"\[photolysis\]\.ozone_column_follows_box: expected true or false"),
+    ("[photolysis]\ncross_sections = { j_no_such = \"x.csv\" }", r"\[photolysis\]\.cross_sections\.j_no_such: no photolysis reaction"),
 ])
 def test_mistakes_in_optional_sections(table, expected):
     import re
