@@ -288,11 +288,15 @@ def test_rate_coefficient_model_follows_drifting_temperature_and_the_sun():
         worst = max(worst, np.max(np.abs(k - exact) / np.maximum(np.abs(exact), 1e-300)))
         if s.solar_zenith_angle >= s.horizon_zenith_angle:
             assert np.all(k[ev.photolysis_index] == 0.0)  # J exactly zero below the horizon
-    # first-order carry of ln k between full evaluations: error bound in coefficients.py
-    assert worst < 1e-4
-    # full evaluations only when T or ln[M] moved past the refresh thresholds (3 evaluations
-    # each: k and its two log-derivatives), not at every call
-    from boxchem.solver.coefficients import THERMAL_REFRESH_K, THERMAL_REFRESH_LOG_AIR
+    # bilinear interpolation of ln k between exact grid nodes: error bound in coefficients.py
+    assert worst < 2e-5
+    # exact evaluations only at the grid nodes the air passes (about one per cell crossed
+    # in T and in ln[M], two per cell along the path), not at every call
+    from boxchem.solver.coefficients import THERMAL_GRID_K, THERMAL_GRID_LOG_AIR
     air_change = abs(np.log(float(env.at(864000.0).air_density) / float(env.at(0.0).air_density)))
-    refreshes = 11.0 / THERMAL_REFRESH_K + air_change / THERMAL_REFRESH_LOG_AIR + 1
-    assert model.thermal_evaluations <= 3 * refreshes
+    cells = 11.0 / THERMAL_GRID_K + air_change / THERMAL_GRID_LOG_AIR + 1
+    assert model.thermal_evaluations <= 2 * cells + 2
+    # k(t) is a function of t alone: the same time gives the same k after other calls
+    k_first = model(123456.0)[0]
+    model(800000.0)
+    np.testing.assert_array_equal(model(123456.0)[0], k_first)

@@ -5,19 +5,20 @@ by order] in mechanism reaction order and the fixed-species number densities
 [cm-3] in ``CompiledKinetics.fixed_species`` order.  It combines
 
 * thermal k(T, [M]) from ``RateEvaluator.thermal``.  A constant environment
-  evaluates them once.  When T or [M] drift (time series), k is carried from
-  the last full evaluation at (T0, [M]0) by the first-order expansion of
-  ln k,  k = k0 exp(a (T - T0) + b ln([M]/[M]0)),  a = d ln k/dT and
-  b = d ln k/d ln[M] from one-sided differences; a full evaluation is made
-  again when |T - T0| > THERMAL_REFRESH_K or |ln([M]/[M]0)| >
-  THERMAL_REFRESH_LOG_AIR.  The neglected second-order term is at most
-  ~(E/R) (T - T0)^2 / T^3 ~ 3e-5 relative for E/R = 3000 K, T = 190 K and
-  0.2 K (Taylor expansion; common practice, no source), below the solver's
-  rtol; a thermal evaluation costs as much as a solver step, so this removes
-  most of the rate-law work from runs with slowly drifting temperature.
+  evaluates them once.  When T or [M] drift (time series), ln k is
+  interpolated bilinearly in (T, ln[M]) between exact evaluations on a grid
+  of nodes spaced THERMAL_GRID_K and THERMAL_GRID_LOG_AIR, anchored at the
+  first state evaluated (the run start); nodes are evaluated once and cached.
+  k(t) is thus a continuous, deterministic function of the environment.  The
+  interpolation error is at most (dT^2/8) d2(ln k)/dT2 ~ 2(E/R)/T^3 dT^2/8
+  ~ 4e-6 relative for E/R = 3000 K, T = 190 K, dT = 0.2 K (linear
+  interpolation error bound; common practice, no source), far below the
+  solver's rtol, while a thermal evaluation (as costly as a solver step) is
+  made only when the air moves into a new grid cell.
 * surface k = gamma v S / 4 (``RateEvaluator.surface``): linear in the
-  surface areas and proportional to sqrt(T), so the model keeps k per unit
-  PSC and sulfate area at T0 and scales exactly by sqrt(T/T0).
+  surface areas and proportional to sqrt(T) through the mean molecular speed,
+  so the model keeps k per unit PSC and sulfate area at the first state and
+  scales exactly by sqrt(T/T0).
 * J from ``photolysis_rates(sza, ozone_column, T, distance_factor)`` (a
   :class:`boxchem.photolysis.PhotolysisRates`; any callable with that
   signature, so the spectral J table plugs in the same way as the ``l m n``
@@ -34,14 +35,13 @@ import numpy as np
 from ..errors import ScenarioError
 from .kinetics import CompiledKinetics
 
-__all__ = ["RateCoefficientModel", "THERMAL_REFRESH_K", "THERMAL_REFRESH_LOG_AIR"]
+__all__ = ["RateCoefficientModel", "THERMAL_GRID_K", "THERMAL_GRID_LOG_AIR"]
 
-#: full re-evaluation of thermal/surface k when T moved by more than this [K]
-THERMAL_REFRESH_K = 0.2
-#: ... or ln([M]) by more than this [1]
-THERMAL_REFRESH_LOG_AIR = 0.002
-_DT_K = 0.01      # difference step for d ln k / dT [K]
-_DLNM = 1e-4      # relative difference step for d ln k / d ln[M]
+#: node spacing of the thermal-k interpolation grid in T [K] ...
+THERMAL_GRID_K = 0.2
+#: ... and in ln([M]) [1]
+THERMAL_GRID_LOG_AIR = 0.002
+_MAX_NODES = 4096  # cache bound (a long trajectory run visits a few hundred cells)
 
 
 class RateCoefficientModel:
@@ -91,45 +91,47 @@ class RateCoefficientModel:
                              "give a PhotolysisRates (or a callable with its signature)")
         # fixed densities are linear in [M]: fixed = [M] * fractions
         self._fixed_per_air = self.kinetics.fixed_number_densities(1.0, self.fixed_mole_fractions)
-        self._thermal_ref = None        # (T0, M0, k0, dlnk/dT or None, dlnk/dlnM or None)
+        self._anchor = None             # (T0, ln M0) of the first state
+        self._nodes: dict = {}          # (i, j) -> ln k at T0 + i dT, ln M0 + j dlnM
         self._surface_ref = None        # (T0, k per unit PSC area, k per unit sulfate area)
         self.thermal_evaluations = 0
 
-    def _thermal_k(self, T: float, air: float) -> np.ndarray:
-        ref = self._thermal_ref
-        if ref is not None:
-            T0, M0, k0, a, b = ref
-            if T == T0 and air == M0:
-                return k0
-            dlnm = np.log(air / M0)
-            if abs(T - T0) <= THERMAL_REFRESH_K and abs(dlnm) <= THERMAL_REFRESH_LOG_AIR:
-                if a is None:
-                    a, b = self._log_derivatives(T0, M0, k0)
-                    self._thermal_ref = (T0, M0, k0, a, b)
-                return k0 * np.exp(a * (T - T0) + b * dlnm)
-        k0 = np.asarray(self.evaluator.thermal(T, air), dtype=float)
-        self.thermal_evaluations += 1
-        self._thermal_ref = (T, air, k0, None, None)
-        return k0
+    def _node(self, i: int, j: int) -> np.ndarray:
+        log_k = self._nodes.get((i, j))
+        if log_k is None:
+            T0, lnm0 = self._anchor
+            k = np.asarray(self.evaluator.thermal(T0 + i * THERMAL_GRID_K,
+                                                  np.exp(lnm0 + j * THERMAL_GRID_LOG_AIR)), dtype=float)
+            self.thermal_evaluations += 1
+            with np.errstate(divide="ignore"):
+                log_k = np.log(k)      # k = 0 columns (photolysis, surface) give -inf
+            if len(self._nodes) >= _MAX_NODES:
+                self._nodes.clear()
+            self._nodes[(i, j)] = log_k
+        return log_k
 
-    def _log_derivatives(self, T0, M0, k0):
-        """d ln k / dT [K-1] and d ln k / d ln[M] [1] by one-sided differences."""
-        kT = np.asarray(self.evaluator.thermal(T0 + _DT_K, M0), dtype=float)
-        kM = np.asarray(self.evaluator.thermal(T0, M0 * (1.0 + _DLNM)), dtype=float)
-        self.thermal_evaluations += 2
-        positive = k0 > 0
-        safe = np.where(positive, k0, 1.0)
-        a = np.where(positive, np.log(np.where(kT > 0, kT, safe) / safe) / _DT_K, 0.0)
-        b = np.where(positive, np.log(np.where(kM > 0, kM, safe) / safe) / np.log1p(_DLNM), 0.0)
-        return a, b
+    def _thermal_k(self, T: float, air: float) -> np.ndarray:
+        lnm = np.log(air)
+        if self._anchor is None:
+            self._anchor = (T, lnm)
+        x = (T - self._anchor[0]) / THERMAL_GRID_K
+        z = (lnm - self._anchor[1]) / THERMAL_GRID_LOG_AIR
+        i, j = int(np.floor(x)), int(np.floor(z))
+        wx, wz = x - i, z - j
+        log_k = 0.0
+        for di, w1 in ((0, 1.0 - wx), (1, wx)):
+            for dj, w2 in ((0, 1.0 - wz), (1, wz)):
+                w = w1 * w2
+                if w != 0.0:   # nodes of zero weight are never evaluated
+                    log_k = log_k + w * self._node(i + di, j + dj)
+        return np.exp(log_k)
 
     def _surface_k(self, T: float, psc: float, sulfate: float) -> np.ndarray:
-        ref = self._surface_ref
-        if ref is None or abs(T - ref[0]) > THERMAL_REFRESH_K:
+        if self._surface_ref is None:
             per_psc = np.asarray(self.evaluator.surface(T, 1.0, 0.0), dtype=float)
             per_sulfate = np.asarray(self.evaluator.surface(T, 0.0, 1.0), dtype=float)
-            ref = self._surface_ref = (T, per_psc, per_sulfate)
-        T0, per_psc, per_sulfate = ref
+            self._surface_ref = (T, per_psc, per_sulfate)
+        T0, per_psc, per_sulfate = self._surface_ref
         # k = gamma v S / 4 with v ~ sqrt(T): exact rescaling (mean molecular speed)
         return np.sqrt(T / T0) * (psc * per_psc + sulfate * per_sulfate)
 

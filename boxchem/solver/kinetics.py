@@ -145,6 +145,9 @@ class CompiledKinetics:
         # so that zero concentrations give exact derivatives.
         self._others = np.array([[q for q in range(width) if q != p] for p in range(width)],
                                 dtype=np.intp).reshape(width, width - 1)
+        self._mass_cols = [self._mass[:, p].copy() for p in range(width)]
+        self._sat_cols = [self._sat[:, p].copy() for p in range(swidth)]
+        self._sat_half_cols = [self._sat_half[:, p].copy() for p in range(swidth)]
         self.stoichiometry = sp.csr_matrix(net)
         self._stoich_dense = net
         self._jac_scatter = self._build_jacobian_scatter(net, width, swidth)
@@ -216,6 +219,8 @@ class CompiledKinetics:
     def rates(self, y, k, fixed) -> np.ndarray:
         """Reaction rates [cm-3 s-1], shape ``(..., n_reactions)``."""
         c = self._extended(y, fixed)
+        if c.ndim == 1 and np.ndim(k) == 1:
+            return self._rates_single(c, np.asarray(k, dtype=float))
         rate = np.asarray(k, dtype=float) * np.prod(c[..., self._mass], axis=-1)
         if self._sat.shape[1]:
             rate = rate * np.prod(_saturation(c[..., self._sat], self._sat_half), axis=-1)
@@ -237,10 +242,53 @@ class CompiledKinetics:
         neg = np.clip(-self._stoich_dense, 0, None)
         return rate @ pos.T, rate @ neg.T
 
+    # Single-box paths: the same formulas with the slot loop unrolled over columns
+    # (a handful of slots, never the reactions), which avoids the fancy-indexed
+    # (n_reactions, width) temporaries and reductions of the general path; the
+    # solver calls these thousands of times per simulated day.
+    def _rates_single(self, c, k):
+        rate = k * c[self._mass_cols[0]]
+        for col in self._mass_cols[1:]:
+            rate = rate * c[col]
+        for col, half in zip(self._sat_cols, self._sat_half_cols):
+            b = c[col]
+            rate = rate * (b / (b + half))
+        return rate
+
+    def _jacobian_single(self, c, k):
+        mass = [c[col] for col in self._mass_cols]
+        sat_b = [c[col] for col in self._sat_cols]
+        sat = [b / (b + half) for b, half in zip(sat_b, self._sat_half_cols)]
+        sat_prod = k.copy()
+        for v in sat:
+            sat_prod = sat_prod * v
+        d = np.empty((self.n_reactions, len(mass) + len(sat)))
+        for p in range(len(mass)):
+            v = sat_prod
+            for q, m in enumerate(mass):
+                if q != p:
+                    v = v * m
+            d[:, p] = v
+        if sat:
+            mass_prod = k.copy()
+            for m in mass:
+                mass_prod = mass_prod * m
+            for p, (b, half) in enumerate(zip(sat_b, self._sat_half_cols)):
+                v = mass_prod * (half / (b + half) ** 2)
+                for q, other in enumerate(sat):
+                    if q != p:
+                        v = v * other
+                d[:, len(mass) + p] = v
+        flat = np.bincount(self._jac_rows, weights=self._jac_vals * d.ravel()[self._jac_cols],
+                           minlength=self.n_variable ** 2)
+        return flat.reshape(self.n_variable, self.n_variable)
+
     def jacobian(self, y, k, fixed) -> np.ndarray:
         """Analytic d(rhs_i)/d(y_j) [s-1], dense, shape ``(..., n_variable, n_variable)``."""
         c = self._extended(y, fixed)
         k = np.asarray(k, dtype=float)
+        if c.ndim == 1 and k.ndim == 1:
+            return self._jacobian_single(c, k)
         lead = np.broadcast_shapes(c.shape[:-1], k.shape[:-1])
         mass = c[..., self._mass]                                    # (..., nr, width)
         sat_b = c[..., self._sat]                                    # (..., nr, swidth)

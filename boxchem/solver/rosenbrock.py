@@ -139,7 +139,7 @@ def rosenbrock_step(fun, jacobian, f0, dfdt, t, y, h, method: RosenbrockMethod =
     """
     n = y.shape[-1]
     w = -jacobian
-    w[np.diag_indices(n)] += 1.0 / (h * method.gamma)
+    w.flat[::n + 1] += 1.0 / (h * method.gamma)
     # LAPACK directly: the scipy.linalg wrappers cost more than the 50x50 LU itself
     lu, piv, info = dgetrf(w, overwrite_a=1)
     if info != 0:  # singular iteration matrix: report a failed step (the caller shrinks h)
@@ -173,10 +173,12 @@ def rosenbrock_step(fun, jacobian, f0, dfdt, t, y, h, method: RosenbrockMethod =
         k_i, info_s = dgetrs(lu, piv, rhs)
         stages.append(k_i)
     y_new = y.copy()
-    error = np.zeros_like(y)
+    error = None
     for i in range(method.stages):
-        y_new += method.m[i] * stages[i]
-        error += method.e[i] * stages[i]
+        if method.m[i]:
+            y_new += method.m[i] * stages[i]
+        if method.e[i]:
+            error = method.e[i] * stages[i] if error is None else error + method.e[i] * stages[i]
     return y_new, error, n_rhs
 
 

@@ -8,6 +8,17 @@ nearest step, and no step straddles a discontinuity of J.  When a step is cut
 short to land on such a time, the step size the controller had proposed is
 kept for the following step: stopping does not reset the step-size history.
 
+At a breakpoint t_b the rate coefficients jump (J switches on or off at the
+box's horizon).  Breakpoints are located only to a tolerance (the horizon
+search's, 1 s by default), so the step that ends at t_b uses k(t_b - w) and
+the step that starts there uses k(t_b + w) (any time within w of t_b is
+evaluated at the edge of the window on its own side), with w = ``breakpoint_width_s``
+set to that tolerance: each side sees the values of its own side of the jump
+wherever in t_b +- w the jump really lies (a displacement of the switch by
+at most w, i.e. J w ~ 1e-5 of a photolysis lifetime at the horizon).  The
+first step after a breakpoint is limited by the same estimate as the very
+first step, so the night-time step size is not tried on the sunrise.
+
 Time dependence of the rate coefficients: within one step k and the fixed
 species densities are interpolated linearly between their values at the step
 ends (one coefficient evaluation per attempted step; the end value is reused
@@ -42,7 +53,7 @@ import numpy as np
 from ..errors import IntegrationError
 from .rosenbrock import RODAS3, RosenbrockMethod, error_norm, next_step_factor, rosenbrock_step
 
-__all__ = ["integrate_box", "TimeLoopResult", "DEFAULT_RTOL", "DEFAULT_ATOL",
+__all__ = ["integrate_box", "TimeLoopResult", "DEFAULT_RTOL", "DEFAULT_ATOL", "BREAKPOINT_WIDTH_S",
            "MIN_STEP_RELATIVE", "MIN_STEP_ABSOLUTE"]
 
 DEFAULT_RTOL = 1e-4
@@ -50,6 +61,8 @@ DEFAULT_ATOL = 1e-2        # cm-3
 #: a step below max(MIN_STEP_ABSOLUTE, MIN_STEP_RELATIVE * |t|) is a failure
 MIN_STEP_RELATIVE = 1e-12
 MIN_STEP_ABSOLUTE = 1e-10  # s
+#: default half-width of the uncertainty of a breakpoint [s] (the horizon search tolerance)
+BREAKPOINT_WIDTH_S = 1.0
 #: first step when none is given and the RHS-based estimate is not usable [s]
 FALLBACK_FIRST_STEP = 1e-3
 #: fraction of y/f used for the automatic first step (Hairer & Wanner 1996, II.4)
@@ -100,6 +113,7 @@ def _validated_times(output_times_s, breakpoints_s):
 def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(),
                   rtol: float = DEFAULT_RTOL, atol=DEFAULT_ATOL, first_step: float | None = None,
                   max_step: float = np.inf, progress=None, raise_on_failure: bool = True,
+                  breakpoint_width_s: float = BREAKPOINT_WIDTH_S,
                   method: RosenbrockMethod = RODAS3, on_accept=None) -> TimeLoopResult:
     """Integrate one box through ``output_times_s``.
 
@@ -111,6 +125,9 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
     y0 : initial variable-species number densities [cm-3] at ``output_times_s[0]``
     output_times_s : increasing times [s since the run start]; the first is the start
     breakpoints_s : times [s] where k may jump (sunrise/sunset): steps end there
+    breakpoint_width_s : how far [s] either side of a breakpoint the jump may really
+        lie; k is taken from t_b - w for the step ending at t_b and from t_b + w for
+        the step starting there
     rtol : relative tolerance [1]; atol : absolute tolerance [cm-3], scalar or per species
     first_step : first step [s]; estimated from y0 and f(y0) when None
     max_step : longest step [s]
@@ -159,13 +176,28 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
     f0 = kinetics.rhs(y, k0, fx0)
     res.rhs_evaluations += 1
 
-    if first_step is None:
+    def step_estimate():
         scale = atol + rtol * np.abs(y)
         d0 = np.sqrt(np.mean((y / scale) ** 2))
         d1 = np.sqrt(np.mean((f0 / scale) ** 2))
-        h = FIRST_STEP_FRACTION * d0 / d1 if d0 > 1e-5 and d1 > 1e-5 else FALLBACK_FIRST_STEP
-    else:
-        h = float(first_step)
+        return FIRST_STEP_FRACTION * d0 / d1 if d0 > 1e-5 and d1 > 1e-5 else FALLBACK_FIRST_STEP
+
+    h = step_estimate() if first_step is None else float(first_step)
+
+    def side_time(tt, end_of_step):
+        """Where to evaluate k for time tt: outside every breakpoint's window t_b +- w,
+        on the side the step is on (before t_b for a step ending at t_b)."""
+        if not breaks.size or half == 0.0:
+            return tt
+        i = int(np.searchsorted(breaks, tt))
+        for b in breaks[max(i - 1, 0):i + 1]:
+            if abs(tt - b) < half:
+                return b - half if (tt < b or (tt == b and end_of_step)) else b + half
+        return tt
+    break_set = set(breaks.tolist())
+    half = float(breakpoint_width_s)
+    if not half >= 0:
+        raise ValueError(f"breakpoint_width_s: expected >= 0 s, got {breakpoint_width_s!r}")
     h = min(h, max_step)
 
     stop_index = 0
@@ -200,7 +232,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
         worst = None
         rejected_here = False
         while True:
-            k1, fx1 = coefficients(t_new)
+            at_break = t_new in break_set
+            k1, fx1 = coefficients(side_time(t_new, end_of_step=True))
             res.coefficient_evaluations += 1
             dk, dfx = (k1 - k0) / h, (fx1 - fx0) / h
 
@@ -244,10 +277,15 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
             h_next = max(h_next, h_proposed)
         h = min(h_next, max_step)
         t, y, k0, fx0 = t_new, y_new, k1, fx1
+        if at_break:  # the other side of the jump
+            k0, fx0 = coefficients(side_time(t, end_of_step=False))
+            res.coefficient_evaluations += 1
         if on_accept is not None:
             on_accept(t, y)
         f0 = kinetics.rhs(y, k0, fx0)
         res.rhs_evaluations += 1
+        if at_break:
+            h = min(h, step_estimate())
         while next_out < n_out and out[next_out] <= t:
             ys[next_out], ks[next_out], fxs[next_out] = y, k0, fx0
             next_out += 1
