@@ -52,6 +52,13 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("boxchem: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # The reader went away (e.g. `boxchem rates ... | head`): not an error
+        # of ours.  Point stdout at devnull so the interpreter's final flush
+        # does not raise again.
+        import os
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":  # pragma: no cover
