@@ -29,6 +29,7 @@ by order] in mechanism reaction order and the fixed-species number densities
 from __future__ import annotations
 
 import difflib
+import math
 
 import numpy as np
 
@@ -92,7 +93,8 @@ class RateCoefficientModel:
         # fixed densities are linear in [M]: fixed = [M] * fractions
         self._fixed_per_air = self.kinetics.fixed_number_densities(1.0, self.fixed_mole_fractions)
         self._anchor = None             # (T0, ln M0) of the first state
-        self._nodes: dict = {}          # (i, j) -> ln k at T0 + i dT, ln M0 + j dlnM
+        self._nodes: dict = {}
+        self._last_thermal = None       # ((T, [M]), k) of the last call          # (i, j) -> ln k at T0 + i dT, ln M0 + j dlnM
         self._surface_ref = None        # (T0, k per unit PSC area, k per unit sulfate area)
         self.thermal_evaluations = 0
 
@@ -111,12 +113,19 @@ class RateCoefficientModel:
         return log_k
 
     def _thermal_k(self, T: float, air: float) -> np.ndarray:
-        lnm = np.log(air)
+        if self._last_thermal is not None and self._last_thermal[0] == (T, air):
+            return self._last_thermal[1]
+        k = self._interpolated_thermal_k(T, air)
+        self._last_thermal = ((T, air), k)
+        return k
+
+    def _interpolated_thermal_k(self, T: float, air: float) -> np.ndarray:
+        lnm = math.log(air)
         if self._anchor is None:
             self._anchor = (T, lnm)
         x = (T - self._anchor[0]) / THERMAL_GRID_K
         z = (lnm - self._anchor[1]) / THERMAL_GRID_LOG_AIR
-        i, j = int(np.floor(x)), int(np.floor(z))
+        i, j = math.floor(x), math.floor(z)
         wx, wz = x - i, z - j
         log_k = 0.0
         for di, w1 in ((0, 1.0 - wx), (1, wx)):

@@ -45,6 +45,7 @@ no consequence.
 """
 from __future__ import annotations
 
+import bisect
 import time as _time
 from dataclasses import dataclass, field
 
@@ -187,14 +188,15 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
     def side_time(tt, end_of_step):
         """Where to evaluate k for time tt: outside every breakpoint's window t_b +- w,
         on the side the step is on (before t_b for a step ending at t_b)."""
-        if not breaks.size or half == 0.0:
+        if not break_list or half == 0.0:
             return tt
-        i = int(np.searchsorted(breaks, tt))
-        for b in breaks[max(i - 1, 0):i + 1]:
+        i = bisect.bisect_left(break_list, tt)
+        for b in break_list[max(i - 1, 0):i + 1]:
             if abs(tt - b) < half:
                 return b - half if (tt < b or (tt == b and end_of_step)) else b + half
         return tt
-    break_set = set(breaks.tolist())
+    break_list = breaks.tolist()
+    break_set = set(break_list)
     half = float(breakpoint_width_s)
     if not half >= 0:
         raise ValueError(f"breakpoint_width_s: expected >= 0 s, got {breakpoint_width_s!r}")
@@ -247,12 +249,13 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
             y_new, err_vec, n_rhs = rosenbrock_step(fun, jac.copy(), f0, dfdt, t, y, h, method)
             res.rhs_evaluations += n_rhs
             res.lu_decompositions += 1
-            if np.all(np.isfinite(y_new)):
+            if np.isfinite(y_new.sum()):  # inf/NaN anywhere makes the sum non-finite
                 err, worst, scale = error_norm(err_vec, y, y_new, rtol, atol)
-                negative = np.maximum(-y_new, 0.0) / scale
-                if negative.max() > 1.0:
-                    err = max(err, float(negative.max()))
-                    worst = int(np.argmax(negative))
+                if y_new.min() < 0.0:
+                    negative = np.maximum(-y_new, 0.0) / scale
+                    if negative.max() > 1.0:
+                        err = max(err, float(negative.max()))
+                        worst = int(np.argmax(negative))
             else:
                 err, worst = np.inf, int(np.argmax(~np.isfinite(y_new)))
             if err <= 1.0:
