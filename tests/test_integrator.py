@@ -142,9 +142,9 @@ ab  A + B -> C   constant  k=1e-6  ref="invented test value"
 
 def test_output_times_are_solution_values_and_do_not_reset_steps():
     kin, coef = _constant_rates(CHAIN)
-    few = integrate_box(kin, coef, [1e12, 0, 0], [0.0, 20000.0])
+    few = integrate_box(kin, coef, [1e12, 0, 0], [0.0, 20000.0], atol=1e-2)
     t_many = np.sort(np.concatenate([[0.0, 20000.0], np.random.default_rng(0).uniform(1, 19999, 300)]))
-    many = integrate_box(kin, coef, [1e12, 0, 0], t_many)
+    many = integrate_box(kin, coef, [1e12, 0, 0], t_many, atol=1e-2)
     # values at arbitrary output times: the closed form (see the Bateman test above)
     np.testing.assert_allclose(many.y[:, 0], 1e12 * np.exp(-1e-3 * t_many), rtol=1e-3)
     # stopping on 300 outputs costs about one extra step each, not a restart of the step history
