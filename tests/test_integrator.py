@@ -152,6 +152,25 @@ def test_output_times_are_solution_values_and_do_not_reset_steps():
     np.testing.assert_allclose(many.y[-1], few.y[-1], rtol=1e-3)
 
 
+def test_time_dependent_rate_coefficient_matches_closed_form():
+    # A -> B with k(t) = k0 (1 + sin(w t)): A = A0 exp(-k0 (t + (1 - cos(w t)) / w))
+    # (separable first-order ODE, closed form; common practice, no source).  Checks the
+    # linear-in-time k within steps and the df/dt term of the Rosenbrock stages.
+    kin, _ = _constant_rates(CHAIN)
+    k0, w = 1e-4, 2 * np.pi / 3600.0
+    fixed = kin.fixed_number_densities(1.0)
+
+    def coef(t):
+        return np.array([k0 * (1 + np.sin(w * t)), 0.0]), fixed
+
+    t = np.linspace(0.0, 4 * 3600.0, 17)
+    exact = 1e12 * np.exp(-k0 * (t + (1 - np.cos(w * t)) / w))
+    loose = integrate_box(kin, coef, [1e12, 0, 0], t, rtol=1e-4, atol=1e-2)
+    tight = integrate_box(kin, coef, [1e12, 0, 0], t, rtol=1e-7, atol=1e-2)
+    np.testing.assert_allclose(loose.y[:, 0], exact, rtol=1e-3)
+    np.testing.assert_allclose(tight.y[:, 0], exact, rtol=2e-6)
+
+
 def test_steps_end_on_breakpoints_where_k_jumps():
     # k switches on at t_b = 1234.5 s (sunrise-like): A = A0 for t < t_b,
     # A0 exp(-k (t - t_b)) after (closed form, common practice).
