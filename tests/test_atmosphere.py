@@ -18,7 +18,7 @@ from boxchem.environment.atmosphere import (
 
 def test_loschmidt_constant():
     # Loschmidt constant at 273.15 K and 101.325 kPa: 2.686780111e25 m-3 (CODATA 2018)
-    assert air_number_density(101325.0, 273.15) == pytest.approx(2.686780111e19, rel=1e-9)
+    assert air_number_density(101325.0, 273.15) == pytest.approx(2.686780111e19, rel=1e-9, abs=0)
 
 
 def test_air_density_broadcasts_and_scales():
@@ -45,7 +45,7 @@ _USSA_TABLE = [
 @pytest.mark.parametrize("z, p, T", _USSA_TABLE)
 def test_standard_atmosphere_table(z, p, T):
     pz, Tz = standard_atmosphere(z)
-    assert pz == pytest.approx(p, rel=2e-4)
+    assert pz == pytest.approx(p, rel=2e-4, abs=0)
     assert Tz == pytest.approx(T, abs=2e-3)
 
 
@@ -53,10 +53,10 @@ def test_standard_atmosphere_layer_base_at_20_km_geopotential():
     # USSA 1976 layer base at 20 km geopotential: p = 5474.889 Pa, T = 216.65 K
     # (the standard's Table 4; recalled from memory)
     p, T = standard_atmosphere(geometric_altitude(20000.0))
-    assert p == pytest.approx(5474.889, rel=1e-6)
+    assert p == pytest.approx(5474.889, rel=1e-6, abs=0)
     assert T == pytest.approx(216.65, abs=1e-9)
     # and at the 11 km' base: 22632.06 Pa (same table, recalled from memory)
-    assert standard_atmosphere(geometric_altitude(11000.0))[0] == pytest.approx(22632.06, rel=1e-6)
+    assert standard_atmosphere(geometric_altitude(11000.0))[0] == pytest.approx(22632.06, rel=1e-6, abs=0)
 
 
 def test_geopotential_round_trip():
@@ -88,11 +88,11 @@ def test_standard_atmosphere_range_errors_name_the_argument():
 def test_ozone_profile_holds_the_column(kind, peak):
     du = 2.6867e16  # molecule cm-2 per Dobson unit (definition; common practice, no source)
     column = quad(lambda z: ozone_profile(z, 300.0, kind) * 100.0, 0.0, 100000.0, points=[peak])[0] / du
-    assert column == pytest.approx(300.0, rel=1e-6)
+    assert column == pytest.approx(300.0, rel=1e-6, abs=0)
     z = np.linspace(0.0, 60000.0, 6001)
     assert z[np.argmax(ozone_profile(z, 300.0, kind))] == pytest.approx(peak)
     above = quad(lambda zz: ozone_profile(zz, 250.0, kind) * 100.0, 20000.0, 100000.0)[0] / du
-    assert ozone_column_above(20000.0, 250.0, kind) == pytest.approx(above, rel=1e-6)
+    assert ozone_column_above(20000.0, 250.0, kind) == pytest.approx(above, rel=1e-6, abs=0)
     assert ozone_column_above(0.0, 250.0, kind) == pytest.approx(250.0)
 
 

@@ -96,9 +96,9 @@ def test_robertson_problem_matches_published_reference_with_bounded_work():
     a, b, c = res.y[-1]
     # Hairer & Wanner (1996), Solving ODEs II, section IV.10, reference solution at t = 40
     # (y1 = 0.7158270687, y2 = 9.185534764e-6, y3 = 0.2841637457; recalled from memory).
-    assert a == pytest.approx(0.7158270687, rel=1e-5)
-    assert b == pytest.approx(9.185534764e-6, rel=1e-4)
-    assert c == pytest.approx(0.2841637457, rel=1e-5)
+    assert a == pytest.approx(0.7158270687, rel=1e-5, abs=0)
+    assert b == pytest.approx(9.185534764e-6, rel=1e-4, abs=0)
+    assert c == pytest.approx(0.2841637457, rel=1e-5, abs=0)
     # An explicit method would need ~1e5+ steps here (stiffness ratio ~1e4 / step limit
     # ~1e-3 s); these bounds fail as soon as the stiff handling is lost.
     assert res.steps < 600, res.counters()
@@ -112,9 +112,9 @@ def test_robertson_problem_long_time_reference():
     # at t = 1e11: y1 = 2.083340149701255e-08, y2 = 8.333360770334713e-14,
     # y3 = 0.9999999791665050 (recalled from memory).
     a, b, c = res.y[-1]
-    assert a == pytest.approx(2.083340149701255e-08, rel=1e-3)
-    assert b == pytest.approx(8.333360770334713e-14, rel=1e-3)
-    assert c == pytest.approx(0.9999999791665050, rel=1e-9)
+    assert a == pytest.approx(2.083340149701255e-08, rel=1e-3, abs=0)
+    assert b == pytest.approx(8.333360770334713e-14, rel=1e-3, abs=0)
+    assert c == pytest.approx(0.9999999791665050, rel=1e-9, abs=0)
     assert res.steps < 2000, res.counters()
 
 
@@ -269,15 +269,15 @@ def test_rate_coefficient_model_caches_thermal_k_and_applies_scale():
         coef(t)
     assert coef.thermal_evaluations == 1  # constant T and [M]: computed once
     air = float(env.at(0.0).air_density)
-    assert fixed[kin.fixed_species.index("M")] == pytest.approx(air, rel=1e-14)
-    assert fixed[kin.fixed_species.index("O2")] == pytest.approx(0.2095 * air, rel=1e-14)
+    assert fixed[kin.fixed_species.index("M")] == pytest.approx(air, rel=1e-14, abs=0)
+    assert fixed[kin.fixed_species.index("O2")] == pytest.approx(0.2095 * air, rel=1e-14, abs=0)
     ev = RateEvaluator(mech)
     np.testing.assert_allclose(coef(0.0)[0][ev.thermal_index],
                                ev.thermal(195.0, air)[ev.thermal_index], rtol=1e-14)
     scaled = RateCoefficientModel(mech, ev, coef.photolysis_rates, env, scale={"clo_clo_m": 1.5},
                                   kinetics=kin)
     i = kin.reaction_ids.index("clo_clo_m")
-    assert scaled(0.0)[0][i] == pytest.approx(1.5 * k_night[i], rel=1e-14)
+    assert scaled(0.0)[0][i] == pytest.approx(1.5 * k_night[i], rel=1e-14, abs=0)
     with pytest.raises(Exception, match="scale.clo_clo_n: .*did you mean 'clo_clo_m'"):
         RateCoefficientModel(mech, ev, coef.photolysis_rates, env, scale={"clo_clo_n": 2.0})
 

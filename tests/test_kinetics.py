@@ -76,12 +76,12 @@ def test_rates_follow_mass_action_by_hand(kin):
     fixed = kin.fixed_number_densities(air)
     r = dict(zip(kin.reaction_ids, kin.rates(y, k, fixed)))
     o2 = 0.2095 * air
-    assert r["cl_o3"] == pytest.approx(1e-12 * y[v["Cl"]] * y[v["O3"]], rel=1e-14)
+    assert r["cl_o3"] == pytest.approx(1e-12 * y[v["Cl"]] * y[v["O3"]], rel=1e-14, abs=0)
     # second order in ClO; falloff k already contains [M] (DEVELOPERS.md contract)
-    assert r["clo_dimer"] == pytest.approx(2e-12 * y[v["ClO"]] ** 2, rel=1e-14)
+    assert r["clo_dimer"] == pytest.approx(2e-12 * y[v["ClO"]] ** 2, rel=1e-14, abs=0)
     # arrhenius with M on the left: rate k [M] [Cl2O2]
-    assert r["dimer_back"] == pytest.approx(3e-12 * air * y[v["Cl2O2"]], rel=1e-14)
-    assert r["o_o2"] == pytest.approx(5e-12 * y[v["O"]] * o2 * air, rel=1e-14)
+    assert r["dimer_back"] == pytest.approx(3e-12 * air * y[v["Cl2O2"]], rel=1e-14, abs=0)
+    assert r["o_o2"] == pytest.approx(5e-12 * y[v["O"]] * o2 * air, rel=1e-14, abs=0)
     # surface: first order in ClONO2 times HCl/(HCl + B_half) (DEVELOPERS.md "Surface keys")
     hcl = y[v["HCl"]]
     assert r["het"] == pytest.approx(6e-12 * y[v["ClONO2"]] * hcl / (hcl + SURFACE_COREACTANT_HALF),
@@ -96,8 +96,8 @@ def test_rhs_counts_stoichiometric_coefficients(kin):
     k = np.zeros(kin.n_reactions)
     k[kin.reaction_ids.index("clo_dimer")] = 1e-13
     f = kin.rhs(y, k, kin.fixed_number_densities(1e18))
-    assert f[v["ClO"]] == pytest.approx(-2 * 1e-13 * 1e18, rel=1e-14)
-    assert f[v["Cl2O2"]] == pytest.approx(1e-13 * 1e18, rel=1e-14)
+    assert f[v["ClO"]] == pytest.approx(-2 * 1e-13 * 1e18, rel=1e-14, abs=0)
+    assert f[v["Cl2O2"]] == pytest.approx(1e-13 * 1e18, rel=1e-14, abs=0)
     assert np.count_nonzero(f) == 2
 
 
@@ -117,8 +117,8 @@ def test_jacobian_exact_at_zero_concentrations(kin):
     y[v["O3"]] = 3e12
     k = np.ones(kin.n_reactions) * 1e-11
     jac = kin.jacobian(y, k, kin.fixed_number_densities(1e18))
-    assert jac[v["Cl"], v["Cl"]] == pytest.approx(-1e-11 * 3e12, rel=1e-14)
-    assert jac[v["ClO"], v["Cl"]] == pytest.approx(1e-11 * 3e12, rel=1e-14)
+    assert jac[v["Cl"], v["Cl"]] == pytest.approx(-1e-11 * 3e12, rel=1e-14, abs=0)
+    assert jac[v["ClO"], v["Cl"]] == pytest.approx(1e-11 * 3e12, rel=1e-14, abs=0)
     assert jac[v["ClO"], v["ClO"]] == 0.0  # 2k[ClO] + k[O] with both zero
     assert np.all(np.isfinite(jac))
 

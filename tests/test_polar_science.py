@@ -100,7 +100,7 @@ def test_september_daily_ozone_loss_is_one_to_three_percent(sunlit_september):
         assert 1.0 <= daily[day] <= 3.0
         # the diagnosed loss accounts for the ozone actually lost (relative to the
         # initial O3 in the diagnostic, to the day's start in `observed`); common practice
-        assert daily[day] == pytest.approx(observed * a / o3[0], rel=0.1)
+        assert daily[day] == pytest.approx(observed * a / o3[0], rel=0.1, abs=0)
 
 
 def test_september_loss_is_dimer_first_clo_bro_second(sunlit_september):
@@ -263,7 +263,7 @@ def test_upper_stratosphere_cfc_photolysis_releases_chlorine(upper_stratosphere)
     cly = _family_x(ds, "Cly")
     released = organic[0] - organic[-1]
     assert released > 0.01 * cly[0]
-    assert cly[-1] - cly[0] == pytest.approx(released, rel=1e-3)
+    assert cly[-1] - cly[0] == pytest.approx(released, rel=1e-3, abs=0)
     photolysed = float(accumulate(3 * ds["reaction_rate"].sel(reaction="j_cfcl3")
                                   + 2 * ds["reaction_rate"].sel(reaction="j_cf2cl2")).values[-1])
     assert photolysed / float(ds["air_number_density"][0]) > 0.5 * released  # photolysis, not O(1D), dominates (recalled from memory)
