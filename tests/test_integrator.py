@@ -187,6 +187,28 @@ def test_steps_end_on_breakpoints_where_k_jumps():
     np.testing.assert_allclose(res.y[:, 0], exact, rtol=1e-4, atol=1e3)
 
 
+def test_jump_near_an_inexact_breakpoint_is_crossed_at_tight_tolerance():
+    # The horizon search locates sunrise only to +-1 s.  Here k of A -> B switches on
+    # 0.4 s after the given breakpoint and B -> C is very fast (B is stiff and starts at 0,
+    # like O1D at sunrise).  The loop must cross the jump even at a tight tolerance, with
+    # the switch displaced by at most the window w: |error of A| <= k_on w A (closed form
+    # A = A0 exp(-k_on (t - t_on)); common practice, no source).
+    kin, _ = _constant_rates(CHAIN)
+    t_b, t_on, k_on = 500.0, 500.4, 1e-3
+    fixed = kin.fixed_number_densities(1.0)
+
+    def coef(t):
+        return np.array([k_on if t > t_on else 0.0, 1e6]), fixed
+
+    t = np.array([0.0, 400.0, 600.0, 1000.0])
+    res = integrate_box(kin, coef, [1e12, 0.0, 0.0], t, breakpoints_s=[t_b], rtol=1e-7, atol=1e-2,
+                        breakpoint_width_s=1.0)
+    assert res.success
+    exact = 1e12 * np.exp(-k_on * np.clip(t - t_on, 0.0, None))
+    np.testing.assert_allclose(res.y[:, 0], exact, rtol=k_on * 1.0 + 1e-7)
+    assert res.steps < 2000, res.counters()
+
+
 def test_failure_names_time_step_species_and_keeps_partial_results():
     # The rate coefficient of A -> B turns non-finite after t = 55 s (a broken input, e.g. a
     # temperature series with a hole): the loop must stop there, name A, and keep what it had.
