@@ -171,6 +171,15 @@ def test_time_dependent_rate_coefficient_matches_closed_form():
     np.testing.assert_allclose(tight.y[:, 0], exact, rtol=2e-6)
 
 
+def test_progress_is_reported_at_each_output_time_and_max_step_holds():
+    kin, coef = _constant_rates(CHAIN)
+    seen = []
+    t = np.linspace(0.0, 10000.0, 6)
+    res = integrate_box(kin, coef, [1e12, 0, 0], t, progress=seen.append, max_step=50.0)
+    assert seen == list(t[1:])
+    assert res.steps >= 10000.0 / 50.0  # no step longer than max_step
+
+
 def test_steps_end_on_breakpoints_where_k_jumps():
     # k switches on at t_b = 1234.5 s (sunrise-like): A = A0 for t < t_b,
     # A0 exp(-k (t - t_b)) after (closed form, common practice).
