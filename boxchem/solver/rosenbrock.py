@@ -59,6 +59,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.linalg as sla
 from scipy.linalg.lapack import dgetrf, dgetrs
 
 __all__ = ["RosenbrockMethod", "ROS3", "RODAS3", "rosenbrock_step", "error_norm", "next_step_factor",
@@ -133,10 +134,15 @@ def rosenbrock_step(fun, jacobian, f0, dfdt, t, y, h, method: RosenbrockMethod =
     Parameters
     ----------
     fun : callable(t, y) -> dy/dt
-    jacobian : ndarray (n, n), d f / d y at (t, y)
+    jacobian : ndarray (n, n), d f / d y at (t, y); overwritten
     f0 : ndarray (n,), f(t, y) (already known to the caller)
     dfdt : ndarray (n,) or None, partial derivative of f with respect to t
     t, y, h : start time, state, step
+
+    A batch of independent boxes advances with one common h when ``y``, ``f0``
+    and ``dfdt`` have leading member axes, ``(..., n)``, and ``jacobian`` is
+    ``(..., n, n)`` (the layout of :class:`CompiledKinetics`' batched kernels);
+    ``fun`` must then accept and return ``(..., n)`` arrays.
 
     Returns
     -------
@@ -144,12 +150,25 @@ def rosenbrock_step(fun, jacobian, f0, dfdt, t, y, h, method: RosenbrockMethod =
     """
     n = y.shape[-1]
     w = -jacobian
-    w.flat[::n + 1] += 1.0 / (h * method.gamma)
-    # LAPACK directly: the scipy.linalg wrappers cost more than the 50x50 LU itself
-    lu, piv, info = dgetrf(w, overwrite_a=1)
-    if info != 0:  # singular iteration matrix: report a failed step (the caller shrinks h)
-        nan = np.full_like(y, np.nan)
-        return nan, nan, 0
+    if w.ndim == 2:
+        w.flat[::n + 1] += 1.0 / (h * method.gamma)
+        # LAPACK directly: the scipy.linalg wrappers cost more than the 50x50 LU itself
+        lu, piv, info = dgetrf(w, overwrite_a=1)
+        if info != 0:  # singular iteration matrix: report a failed step (the caller shrinks h)
+            nan = np.full_like(y, np.nan)
+            return nan, nan, 0
+
+        def solve(rhs):
+            return dgetrs(lu, piv, rhs)[0]
+    else:
+        # a batch of independent boxes (leading member axes, one common step h):
+        # scipy.linalg factorises and solves the stacked matrices in one call each
+        w[..., np.arange(n), np.arange(n)] += 1.0 / (h * method.gamma)
+        with np.errstate(all="ignore"):
+            lu_b = sla.lu_factor(w, check_finite=False)
+
+        def solve(rhs):
+            return sla.lu_solve(lu_b, rhs[..., None], check_finite=False)[..., 0]
     stages = []
     n_rhs = 0
     f_prev, point_prev = f0, (0.0, ())
@@ -175,8 +194,7 @@ def rosenbrock_step(fun, jacobian, f0, dfdt, t, y, h, method: RosenbrockMethod =
                 rhs += (cij / h) * stages[j]
         if dfdt is not None:
             rhs += (h * method.gamma_sum[i]) * dfdt
-        k_i, info_s = dgetrs(lu, piv, rhs)
-        stages.append(k_i)
+        stages.append(solve(rhs))
     y_new = y.copy()
     error = None
     for i in range(method.stages):
