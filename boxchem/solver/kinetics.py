@@ -50,10 +50,7 @@ import scipy.sparse as sp
 from ..errors import MechanismError
 from ..mechanism.model import Mechanism
 
-try:  # the constant lives with the rate laws (DEVELOPERS.md, "Surface keys")
-    from ..mechanism.ratelaws import SURFACE_COREACTANT_HALF
-except ImportError:  # pragma: no cover - rate-law module not yet installed
-    SURFACE_COREACTANT_HALF = 1.0e3  # cm-3, value stated in DEVELOPERS.md "Surface keys"
+from ..mechanism.ratelaws import SURFACE_COREACTANT_HALF  # DEVELOPERS.md, "Surface keys"
 
 __all__ = ["CompiledKinetics", "SURFACE_COREACTANT_HALF"]
 
