@@ -255,7 +255,7 @@ def test_bad_arguments_name_the_argument():
 
 
 # -- the shipped mechanism under the real sun -----------------------------------
-def _polar_setup(scale=None):
+def _polar_setup(scale=None, temperature=195.0, pressure=6000.0):
     from boxchem.environment.history import Environment
     from boxchem.mechanism import load_mechanism
     from boxchem.photolysis.rates import PhotolysisRates
@@ -263,8 +263,8 @@ def _polar_setup(scale=None):
     mech = load_mechanism(str(ROOT / "mechanisms" / "stratosphere.mech"))
     kin = CompiledKinetics(mech)
     # invented demo conditions: 70 S, 60 hPa, 195 K, late August
-    env = Environment("2026-08-20T00:00:00Z", temperature=195.0, latitude=-70.0, longitude=0.0,
-                      ozone_column=250.0, pressure=6000.0, altitude=18500.0,
+    env = Environment("2026-08-20T00:00:00Z", temperature=temperature, latitude=-70.0, longitude=0.0,
+                      ozone_column=250.0, pressure=pressure, altitude=18500.0,
                       psc_area=2e-8, sulfate_area=5e-9)
     phot = PhotolysisRates(mech, altitude_m=18500.0, method="parametric")
     coef = RateCoefficientModel(mech, None, phot, env, scale=scale, kinetics=kin)
@@ -290,6 +290,28 @@ def test_multi_day_polar_run_conserves_cl_br_n_atoms():
         total = res.y @ w
         assert np.max(np.abs(total / total[0] - 1)) < 1e-6, element
     assert np.all(res.y >= 0)
+
+
+@pytest.mark.skipif(not (ROOT / "mechanisms" / "stratosphere.mech").exists(), reason="no shipped mechanism")
+def test_atom_mole_fractions_conserved_while_the_air_warms_and_expands():
+    # Balanced chemistry conserves each element, and an expanding closed parcel keeps
+    # mixing ratios (common practice, no source): Cl, Br, N totals divided by [M] stay
+    # constant through a 10 K warming with a falling pressure (invented demo ramp).
+    from boxchem.environment.history import TimeSeries
+    day3 = 3 * 86400.0
+    mech, kin, env, coef, y0 = _polar_setup(
+        scale={"o1d_n2o_b": 0.0, "j_n2o": 0.0},
+        temperature=TimeSeries([0.0, day3], [190.0, 200.0], "temperature"),
+        pressure=TimeSeries([0.0, day3 / 2, day3], [6000.0, 5800.0, 5900.0], "pressure"))
+    t = np.arange(0.0, day3 + 1, 3600.0)
+    res = integrate_box(kin, coef, y0, t, breakpoints_s=env.horizon_crossings(0.0, t[-1]))
+    assert res.success
+    air = coef.air_density(t)
+    assert abs(air[-1] / air[0] - 1) > 0.05   # the air really changed (5900/200 vs 6000/190)
+    for element in ("Cl", "Br", "N"):
+        w = np.array([mech.species_by_name(s).atoms(element) for s in kin.variable_species], float)
+        x = (res.y @ w) / air
+        assert np.max(np.abs(x / x[0] - 1)) < 1e-6, element
 
 
 @pytest.mark.skipif(not (ROOT / "mechanisms" / "stratosphere.mech").exists(), reason="no shipped mechanism")
@@ -372,3 +394,65 @@ def test_rosenbrock_step_on_a_batch_equals_per_member_steps():
                                       f0[m], None, 0.0, y[m], 0.1, RODAS3)
         np.testing.assert_allclose(y_b[m], y_m, rtol=1e-12, atol=1e-18)
         np.testing.assert_allclose(e_b[m], e_m, rtol=1e-9, atol=1e-18)
+
+
+# -- the air expanding and compressed ----------------------------------------------
+TRACER = """
+[species]
+X   lumped           # inert tracer: in no reaction
+A   lumped
+B   lumped
+M   fixed
+O2  fixed  0.2095
+[reactions]
+a_b   A + O2 -> B + O2   constant  k=1e-22  ref="invented test value"
+"""
+
+
+@pytest.mark.parametrize("series", ["warming", "pressure"])
+def test_inert_tracer_keeps_its_mole_fraction_when_the_air_changes(series):
+    # A closed air parcel that expands or is compressed keeps the mixing ratio of an
+    # unreactive species (ideal gas, common practice, no source): X/[M] must stay at its
+    # start value to 1e-9 through a warming at constant pressure and a pressure series
+    # with knots inside the output intervals (invented demo values).
+    from boxchem.environment.history import Environment, TimeSeries
+    day2 = 2 * 86400.0
+    if series == "warming":
+        kw = dict(temperature=TimeSeries([0.0, day2], [188.0, 198.0], "temperature"), pressure=5500.0)
+    else:
+        kw = dict(temperature=195.0, pressure=TimeSeries(
+            [0.0, 30000.0, 100000.0, day2], [5500.0, 6500.0, 4000.0, 5000.0], "pressure"))
+    env = Environment("2026-06-01T00:00:00Z", latitude=-80.0, longitude=0.0, ozone_column=270.0,
+                      altitude=19000.0, **kw)
+    mech = parse_mechanism(TRACER)
+    kin = CompiledKinetics(mech)
+    coef = RateCoefficientModel(mech, None, None, env, kinetics=kin)
+    t = np.arange(0.0, day2 + 1, 3600.0)
+    air = coef.air_density(t)
+    x0 = np.array([2e-9, 1e-6, 0.0])
+    y0 = x0 * air[0]
+    # a breakpoint (k one-sided there) must not break the telescoping of the air factors
+    res = integrate_box(kin, coef, y0, t, breakpoints_s=[50000.5])
+    assert res.success
+    x = res.y[:, kin.variable_species.index("X")] / air
+    assert abs(air.max() / air.min() - 1) > 0.05          # the air really changed
+    np.testing.assert_allclose(x, 2e-9, rtol=1e-9, atol=0)
+    # A -> B: the total A + B also follows the air
+    np.testing.assert_allclose((res.y[:, 1] + res.y[:, 2]) / air, 1e-6, rtol=1e-9, atol=0)
+    assert res.y[-1, 2] > 0                                 # and the reaction did run
+
+
+@pytest.mark.parametrize("method", [ROS3, RODAS3])
+def test_stability_function_is_the_step_on_the_linear_test_equation(method):
+    # R(z) must equal one step on y' = lambda y (its definition, Hairer & Wanner 1996, IV.7)
+    # and approach exp(z) to O(z^4) for these order-3 methods; L-stability: R(-inf) = 0.
+    from boxchem.solver.rosenbrock import stability_function
+    for z in (1e-3, 0.02, -0.5, -40.0):
+        h = 10.0
+        lam = z / h
+        y, _, _ = rosenbrock_step(lambda tt, yy: lam * yy, np.array([[lam]]), np.array([lam]),
+                                  np.zeros(1), 0.0, np.ones(1), h, method)
+        assert stability_function(z, method) == pytest.approx(y[0], rel=1e-14, abs=0)
+    small = [abs(stability_function(z, method) - np.exp(z)) for z in (0.02, 0.01)]
+    assert 12 < small[0] / small[1] < 20       # error ~ z^4: halving z divides it by ~16
+    assert abs(stability_function(-1e12, method)) < 1e-9

@@ -282,8 +282,6 @@ def test_upper_stratosphere_chlorine_loss_goes_through_clo_o(upper_stratosphere)
 # ---------------------------------------------------------------------------
 # a known limitation of the integrator
 # ---------------------------------------------------------------------------
-@pytest.mark.xfail(strict=True, reason="the integrator keeps number densities when the air "
-                   "expands or is compressed (no dilution term); reported to the solver/runner owners")
 def test_warming_at_constant_pressure_keeps_mixing_ratios():
     # A closed air parcel keeps its mixing ratios when it warms and expands at
     # constant pressure (common knowledge); here total chlorine, which no reaction

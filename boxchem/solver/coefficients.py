@@ -144,6 +144,17 @@ class RateCoefficientModel:
         # k = gamma v S / 4 with v ~ sqrt(T): exact rescaling (mean molecular speed)
         return np.sqrt(T / T0) * (psc * per_psc + sulfate * per_sulfate)
 
+    def air_density(self, times_s) -> np.ndarray:
+        """Air number density [M] [cm-3] at ``times_s`` [s since the run start] (array).
+
+        The time loop takes d ln[M]/dt from these values at its stop times
+        (number densities follow the expanding or compressed air; see
+        ``timeloop``).  [M] is continuous in time, so, unlike k, no side of a
+        breakpoint needs choosing.
+        """
+        times = np.asarray(times_s, dtype=float)
+        return np.asarray(self.environment.at(times).air_density, dtype=float).reshape(times.shape)
+
     def __call__(self, t_seconds):
         """(k [n_reactions], fixed [n_fixed]) at ``t_seconds`` [s since the run start]."""
         state = self.environment.at(float(t_seconds))

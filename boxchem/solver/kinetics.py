@@ -85,6 +85,8 @@ class CompiledKinetics:
         index = {name: i for i, name in enumerate(self.variable_species)}
         index.update({name: nv + i for i, name in enumerate(self.fixed_species)})
         self._air_index = index["M"]
+        #: position of M in ``fixed`` (the air number density)
+        self.air_fixed_index = self._air_index - nv
         self._compile(mechanism, index)
 
     # -- compilation ------------------------------------------------------------

@@ -62,7 +62,8 @@ import numpy as np
 import scipy.linalg as sla
 from scipy.linalg.lapack import dgetrf, dgetrs
 
-__all__ = ["RosenbrockMethod", "ROS3", "RODAS3", "rosenbrock_step", "error_norm", "next_step_factor",
+__all__ = ["RosenbrockMethod", "ROS3", "RODAS3", "rosenbrock_step", "stability_function", "error_norm",
+           "next_step_factor",
            "SAFETY", "FACTOR_MIN", "FACTOR_MAX"]
 
 #: fraction of the "optimal" step taken (Hairer & Wanner 1996, IV.8: 0.8-0.9)
@@ -203,6 +204,22 @@ def rosenbrock_step(fun, jacobian, f0, dfdt, t, y, h, method: RosenbrockMethod =
         if method.e[i]:
             error = method.e[i] * stages[i] if error is None else error + method.e[i] * stages[i]
     return y_new, error, n_rhs
+
+
+def stability_function(z: float, method: RosenbrockMethod = RODAS3) -> float:
+    """R(z): the method's step on y' = lambda y, y(0) = 1, with z = h lambda.
+
+    Stage i of the module docstring's form reads, for this scalar problem
+    (multiplied by h), ``(1/gamma - z) K_i = z (1 + sum_j a_ij K_j) + sum_j c_ij K_j``
+    and ``R = 1 + sum_i m_i K_i`` (Hairer & Wanner 1996, IV.7).  The time loop
+    uses it to make the air-density term exact for linear invariants.
+    """
+    stages = []
+    for i in range(method.stages):
+        rhs = z * (1.0 + sum(a * stages[j] for j, a in enumerate(method.a[i])))
+        rhs += sum(c * stages[j] for j, c in enumerate(method.c[i]))
+        stages.append(rhs / (1.0 / method.gamma - z))
+    return 1.0 + sum(m * k for m, k in zip(method.m, stages))
 
 
 def _trimmed(row) -> tuple:
