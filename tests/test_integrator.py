@@ -409,8 +409,14 @@ a_b   A + O2 -> B + O2   constant  k=1e-22  ref="invented test value"
 """
 
 
+def _paths():
+    from boxchem.solver.compiled import _numba
+    return [False] + ([True] if _numba is not None else [])
+
+
+@pytest.mark.parametrize("compiled", _paths())
 @pytest.mark.parametrize("series", ["warming", "pressure"])
-def test_inert_tracer_keeps_its_mole_fraction_when_the_air_changes(series):
+def test_inert_tracer_keeps_its_mole_fraction_when_the_air_changes(series, compiled):
     # A closed air parcel that expands or is compressed keeps the mixing ratio of an
     # unreactive species (ideal gas, common practice, no source): X/[M] must stay at its
     # start value to 1e-9 through a warming at constant pressure and a pressure series
@@ -432,8 +438,8 @@ def test_inert_tracer_keeps_its_mole_fraction_when_the_air_changes(series):
     x0 = np.array([2e-9, 1e-6, 0.0])
     y0 = x0 * air[0]
     # a breakpoint (k one-sided there) must not break the telescoping of the air factors
-    res = integrate_box(kin, coef, y0, t, breakpoints_s=[50000.5])
-    assert res.success
+    res = integrate_box(kin, coef, y0, t, breakpoints_s=[50000.5], compiled=compiled)
+    assert res.success and res.settings.get("compiled", False) == compiled
     x = res.y[:, kin.variable_species.index("X")] / air
     assert abs(air.max() / air.min() - 1) > 0.05          # the air really changed
     np.testing.assert_allclose(x, 2e-9, rtol=1e-9, atol=0)
@@ -456,3 +462,54 @@ def test_stability_function_is_the_step_on_the_linear_test_equation(method):
     small = [abs(stability_function(z, method) - np.exp(z)) for z in (0.02, 0.01)]
     assert 12 < small[0] / small[1] < 20       # error ~ z^4: halving z divides it by ~16
     assert abs(stability_function(-1e12, method)) < 1e-9
+
+
+# -- the compiled loop against the numpy loop -------------------------------------------
+@pytest.mark.skipif(not (ROOT / "mechanisms" / "stratosphere.mech").exists(), reason="no shipped mechanism")
+@pytest.mark.skipif(len(_paths()) < 2, reason="numba not installed")
+def test_compiled_and_numpy_paths_agree_on_a_polar_day():
+    # the same method, tolerances and k(t) (up to the interval tables' interpolation):
+    # both solutions must agree within the requested accuracy (a few rtol; common practice)
+    from boxchem.environment.history import TimeSeries
+    mech, kin, env, coef, y0 = _polar_setup(
+        temperature=TimeSeries([0.0, 86400.0], [193.0, 197.0], "temperature"))
+    t = np.arange(0.0, 86400.0 + 1, 3600.0)
+    bp = env.horizon_crossings(0.0, t[-1])
+    assert bp.size == 2          # one sunrise and one sunset: J switches on and off
+    fast = integrate_box(kin, coef, y0, t, breakpoints_s=bp, rtol=1e-4, atol=1e2, compiled=True)
+    slow = integrate_box(kin, coef, y0, t, breakpoints_s=bp, rtol=1e-4, atol=1e2, compiled=False)
+    assert fast.success and slow.success
+    scale = np.maximum(np.abs(slow.y).max(axis=0), 1e6)        # 1e6 cm-3: ~1e-11 mol/mol
+    assert np.max(np.abs(fast.y - slow.y) / scale) < 2e-3
+    i = kin.variable_species.index("O3")
+    assert np.max(np.abs(fast.y[:, i] / slow.y[:, i] - 1)) < 1e-4
+    np.testing.assert_allclose(fast.k, slow.k, rtol=1e-12)     # output k: exact in both
+    # comparable work: the compiled loop does the same steps, not fewer checks
+    assert 0.7 < fast.steps / slow.steps < 1.4
+
+
+@pytest.mark.skipif(not (ROOT / "mechanisms" / "stratosphere.mech").exists(), reason="no shipped mechanism")
+def test_interval_tables_reproduce_k_of_t():
+    # k(t) of the compiled loop (polynomials in time for T/[M]-dependent k, ln J linear in
+    # SZA on a fine grid) against the exact model over a polar day with a temperature ramp;
+    # bound from the measured error (DEVELOPERS.md "Solver"), counted where k > 1e-6 of
+    # its peak (J falls to zero at the horizon)
+    from boxchem.environment.history import TimeSeries
+    mech, kin, env, coef, y0 = _polar_setup(
+        temperature=TimeSeries([0.0, 86400.0], [193.0, 197.0], "temperature"))
+    bp = env.horizon_crossings(0.0, 86400.0)
+    edges = np.concatenate(([0.0], bp, [86400.0]))
+    got, want = [], []
+    for a, b in zip(edges[:-1], edges[1:]):
+        ta = a + 1.0 if a in bp else a
+        tb = b - 1.0 if b in bp else b
+        table = coef.interval_table(a, b, ta, tb)
+        for x in np.linspace(0.0, 1.0, 41):
+            got.append(table(a + x * (b - a))[0])
+            want.append(coef(ta + x * (tb - ta))[0])
+        np.testing.assert_allclose(table(a)[1], coef(ta)[1], rtol=1e-12)   # fixed, at the ends
+    got, want = np.array(got), np.array(want)
+    significant = want > 1e-6 * want.max(axis=0)
+    err = np.abs(got - want)[significant] / want[significant]
+    assert err.max() < 5e-3
+    assert np.all(got[~significant] <= 2e-6 * want.max(axis=0)[np.nonzero(~significant)[1]] + 1e-300)

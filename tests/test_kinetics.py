@@ -182,3 +182,73 @@ def test_jacobian_of_shipped_mechanism_matches_finite_differences():
         3e17, {s: 1e-6 for s in kin.fixed_species if s != "M"})
     jac = kin.jacobian(y, k, fixed)
     _assert_jacobian_matches_central_differences(kin, y, k, fixed, jac)
+
+
+# -- the compiled (numba) kernels against the numpy ones -------------------------------
+compiled = pytest.importorskip("boxchem.solver.compiled")
+needs_numba = pytest.mark.skipif(compiled._numba is None, reason="numba not installed")
+
+
+@needs_numba
+@pytest.mark.parametrize("which", ["toy", "shipped"])
+def test_compiled_rhs_and_jacobian_equal_numpy_kernels(which, kin):
+    # the same formulas summed in another order: equal to rounding (1e-12 relative of the
+    # largest term; the RHS is a difference of production and loss, so relative to P + L)
+    if which == "shipped":
+        if not SHIPPED.exists():
+            pytest.skip("shipped mechanism not present")
+        from boxchem.mechanism import load_mechanism
+        kin = CompiledKinetics(load_mechanism(str(SHIPPED)))
+    rng = np.random.default_rng(11)
+    for _ in range(3):
+        y, k, fixed = _state(kin, rng)
+        fixed = kin.fixed_number_densities(3e17, {s: 1e-6 for s in kin.fixed_species if s != "M"})
+        y[rng.integers(0, kin.n_variable)] = 0.0          # exact zeros too
+        p, l = kin.production_loss(y, k, fixed)
+        f = compiled.compiled_rhs(kin, y, k, fixed)
+        assert np.all(np.abs(f - kin.rhs(y, k, fixed)) <= 1e-12 * (p + l))
+        jn = kin.jacobian(y, k, fixed)
+        jc = compiled.compiled_jacobian(kin, y, k, fixed)
+        scale = np.abs(jn).max(axis=1, keepdims=True)
+        assert np.all(np.abs(jc - jn) <= 1e-12 * scale)
+        assert np.array_equal(jc != 0, jn != 0)
+
+
+@needs_numba
+def test_compiled_lu_solves_systems_that_need_pivoting():
+    # LU with partial pivoting (Golub & Van Loan 2013, alg. 3.4.1) against numpy.linalg.solve,
+    # on a matrix with a zero leading entry (no factorisation without row swaps) and sparse rows
+    rng = np.random.default_rng(3)
+    n = 30
+    a = rng.normal(size=(n, n)) * (rng.random((n, n)) < 0.2) + np.diag(rng.uniform(1, 2, n))
+    a[0, 0] = 0.0
+    a[0, 5] = 3.0
+    b = rng.normal(size=n)
+    lu, piv, cols = a.copy(), np.zeros(n, dtype=np.int64), np.zeros(n, dtype=np.int64)
+    assert compiled._lu_factor(lu, piv, cols)
+    x = b.copy()
+    compiled._lu_solve(lu, piv, x)
+    np.testing.assert_allclose(x, np.linalg.solve(a, b), rtol=1e-10, atol=1e-12)
+    assert not compiled._lu_factor(np.zeros((3, 3)), np.zeros(3, dtype=np.int64), np.zeros(3, dtype=np.int64))
+
+
+@pytest.mark.skipif(not SHIPPED.exists(), reason="shipped mechanism not present")
+def test_fill_reducing_order_is_a_permutation_that_reduces_fill():
+    # symbolic elimination without pivoting (common practice, no source): the degree order
+    # must not give more fill-in than the mechanism order
+    from boxchem.mechanism import load_mechanism
+    kin = CompiledKinetics(load_mechanism(str(SHIPPED)))
+    order = compiled.fill_reducing_order(kin)
+    assert sorted(order.tolist()) == list(range(kin.n_variable))
+    pattern = np.eye(kin.n_variable, dtype=bool)
+    pattern.flat[kin._jac_rows] = True
+
+    def fill(perm):
+        p = pattern[np.ix_(perm, perm)].copy()
+        for j in range(len(perm)):
+            rows = np.nonzero(p[j + 1:, j])[0] + j + 1
+            cols = np.nonzero(p[j, j + 1:])[0] + j + 1
+            p[np.ix_(rows, cols)] = True
+        return p.sum()
+
+    assert fill(order) < 0.5 * fill(np.arange(kin.n_variable))

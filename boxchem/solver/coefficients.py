@@ -29,20 +29,74 @@ by order] in mechanism reaction order and the fixed-species number densities
 from __future__ import annotations
 
 import difflib
+import functools
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
 from ..errors import ScenarioError
 from .kinetics import CompiledKinetics
 
-__all__ = ["RateCoefficientModel", "THERMAL_GRID_K", "THERMAL_GRID_LOG_AIR"]
+__all__ = ["RateCoefficientModel", "THERMAL_GRID_K", "THERMAL_GRID_LOG_AIR", "IntervalTable",
+           "INTERVAL_NODES", "MAX_TABLE_INTERVAL_S", "J_GRID_STEP_DEG"]
 
 #: node spacing of the thermal-k interpolation grid in T [K] ...
 THERMAL_GRID_K = 0.2
 #: ... and in ln([M]) [1]
 THERMAL_GRID_LOG_AIR = 0.002
 _MAX_NODES = 4096  # cache bound (a long trajectory run visits a few hundred cells)
+#: Chebyshev-Lobatto nodes of ``interval_table`` (polynomial degree + 1)
+INTERVAL_NODES = 7
+#: longest interval [s] one ``interval_table`` covers (the time loop splits longer ones)
+MAX_TABLE_INTERVAL_S = 6 * 3600.0
+#: SZA spacing [deg] of the per-interval ln J grid for J that is not from a J table
+J_GRID_STEP_DEG = 0.02
+
+
+@dataclass(frozen=True)
+class IntervalTable:
+    """k(t) and fixed(t) on one stop interval [t_a, t_b] for the compiled time loop.
+
+    ``poly`` (INTERVAL_NODES, n_reactions + n_fixed): power-series coefficients in
+    s = 2 (t - t_a)/(t_b - t_a) - 1 of ln v where ``log_col`` is 1 (v > 0 at every
+    node), else of v, for the non-photolysis k (after ``[scale]``) and the fixed
+    densities; ``sza_poly`` the same for the solar zenith angle [deg];
+    ``lnj`` (n_grid, n_photolysis) ln J [s-1] on the SZA grid ``sgrid`` [deg]
+    for the columns ``phot_cols`` (J = exp of the piecewise-linear ln J at the
+    SZA of t; exactly 0 at SZA >= ``horizon``).  See ``interval_table``.
+    """
+
+    t_a: float
+    t_b: float
+    poly: np.ndarray
+    log_col: np.ndarray
+    sza_poly: np.ndarray
+    sgrid: np.ndarray
+    lnj: np.ndarray
+    phot_cols: np.ndarray
+    horizon: float
+    n_reactions: int
+
+    def __call__(self, t):
+        """(k, fixed) at ``t`` [s], from the table (numpy; the compiled loop has its own)."""
+        s = 2.0 * (float(t) - self.t_a) / (self.t_b - self.t_a) - 1.0
+        v = np.polynomial.polynomial.polyval(s, self.poly)
+        out = np.where(self.log_col.astype(bool), np.exp(v), np.maximum(v, 0.0))
+        if self.sgrid.size:
+            z = float(np.polynomial.polynomial.polyval(s, self.sza_poly))
+            if z < self.horizon:
+                lnj = np.array([np.interp(z, self.sgrid, col) for col in self.lnj.T])
+                out[self.phot_cols] += np.exp(lnj)
+        return out[:self.n_reactions], out[self.n_reactions:]
+
+
+@functools.lru_cache(maxsize=8)
+def _lobatto_inverse_vandermonde(n: int) -> np.ndarray:
+    """Inverse Vandermonde matrix of the n Chebyshev-Lobatto nodes -cos(pi j/(n-1)) in [-1, 1]
+    (node values -> power-series coefficients; well conditioned for small n)."""
+    s = -np.cos(np.pi * np.arange(n) / (n - 1))
+    return np.linalg.inv(np.vander(s, n, increasing=True))
 
 
 class RateCoefficientModel:
@@ -154,6 +208,95 @@ class RateCoefficientModel:
         """
         times = np.asarray(times_s, dtype=float)
         return np.asarray(self.environment.at(times).air_density, dtype=float).reshape(times.shape)
+
+    def smoothness_breaks(self, t0: float, t1: float) -> np.ndarray:
+        """Knots [s] in (t0, t1) of the environment's time series (T, p, position, ozone,
+        surface areas): k(t) has kinks there, so ``interval_table`` windows end on them."""
+        knots = [np.asarray(q.times_s, dtype=float) for q in vars(self.environment).values()
+                 if hasattr(q, "times_s")]
+        if not knots:
+            return np.zeros(0)
+        k = np.unique(np.concatenate(knots))
+        return k[(k > t0) & (k < t1)]
+
+    def interval_table(self, t_a: float, t_b: float, tau_a: float | None = None,
+                       tau_b: float | None = None) -> IntervalTable:
+        """k(t) and fixed(t) on [t_a, t_b] [s] as an :class:`IntervalTable` for the compiled loop.
+
+        ``tau_a``, ``tau_b``: where to evaluate the interval's ends (one-sided
+        at breakpoints, see ``timeloop``); default ``t_a``, ``t_b``.  The
+        environment is evaluated at INTERVAL_NODES Chebyshev-Lobatto nodes
+        between them (ends included, so k at the ends is exact).  The
+        non-photolysis k and the fixed densities are interpolated by a
+        polynomial in ln (smooth functions of T and [M]), the solar zenith
+        angle by a polynomial in time.  J is not interpolated in time (it is
+        not smooth there: the J table is piecewise linear in SZA): it is
+        evaluated once per interval on a grid of SZA values covering the
+        interval - the J table's own SZA nodes (where all J come from a table,
+        on which ln J is linear between them) or a J_GRID_STEP_DEG grid
+        otherwise - with the ozone column, T and distance factor of the
+        interval's mid-point, and ln J is taken linearly in SZA.  Measured
+        error against ``self(t)`` (benchmarks/bench_polar_run.py reports it):
+        see DEVELOPERS.md, "Solver".
+        """
+        tau_a = float(t_a if tau_a is None else tau_a)
+        tau_b = float(t_b if tau_b is None else tau_b)
+        n = INTERVAL_NODES
+        s_nodes = -np.cos(np.pi * np.arange(n) / (n - 1))
+        taus = tau_a + 0.5 * (s_nodes + 1.0) * (tau_b - tau_a)
+        state = self.environment.at(taus)
+        nr = len(self.multiplier)
+        values = np.empty((n, nr + len(self._fixed_per_air)))
+        conditions = np.stack([state.temperature, state.air_density, state.psc_area,
+                               state.sulfate_area], axis=-1).astype(float)
+        for i in range(n):   # n nodes, each a cached thermal lookup: no loop over reactions
+            if i and np.array_equal(conditions[i], conditions[i - 1]):
+                values[i] = values[i - 1]
+                continue
+            T, air, psc, sulfate = (float(v) for v in conditions[i])
+            values[i, :nr] = (self._thermal_k(T, air) + self._surface_k(T, psc, sulfate)) \
+                * self.multiplier
+            values[i, nr:] = air * self._fixed_per_air
+        positive = np.all(values > 0.0, axis=0)
+        with np.errstate(divide="ignore"):
+            values = np.where(positive, np.log(np.where(positive, values, 1.0)), values)
+        vinv = _lobatto_inverse_vandermonde(n)
+        poly = vinv @ values
+        # exactly constant columns (constant environment) get exactly zero slopes, so
+        # the compiled loop can skip the df/dt terms they would add
+        poly[1:, np.all(values == values[0], axis=0)] = 0.0
+        sza = np.asarray(state.solar_zenith_angle, dtype=float)
+        sza_poly = vinv @ sza
+        horizon = float(np.asarray(state.horizon_zenith_angle, dtype=float)[n // 2])
+        phot_cols = np.nonzero(self._photolysis_mask)[0].astype(np.int64)
+        sgrid = np.zeros(0)
+        lnj = np.zeros((0, phot_cols.size))
+        if self.photolysis_rates is not None and phot_cols.size:
+            fine = np.polynomial.polynomial.polyval(np.linspace(-1.0, 1.0, 33), sza_poly)
+            lo, hi = float(min(fine.min(), sza.min())), float(max(fine.max(), sza.max()))
+            top = horizon - 1e-9
+            if lo < top:
+                hi = min(hi, top)
+                table = getattr(self.photolysis_rates, "table", None)
+                sources = getattr(self.photolysis_rates, "source", {}) or {}
+                ids = [self.mechanism.reactions[c].id for c in phot_cols]
+                if table is not None and all(sources.get(r) == "spectral" for r in ids):
+                    inner = np.asarray(table.sza_deg, dtype=float)
+                else:
+                    inner = np.arange(math.floor(lo / J_GRID_STEP_DEG), math.ceil(hi / J_GRID_STEP_DEG) + 1) \
+                        * J_GRID_STEP_DEG
+                inner = inner[(inner > lo) & (inner < hi)]
+                sgrid = np.concatenate(([lo], inner, [hi])) if hi > lo else np.array([lo])
+                mid = n // 2
+                j = np.asarray(self.photolysis_rates(sgrid, float(state.ozone_column[mid]),
+                                                     float(state.temperature[mid]),
+                                                     float(state.distance_factor[mid])), dtype=float)
+                j = j.reshape(sgrid.size, nr)[:, phot_cols] * self.multiplier[phot_cols]
+                lnj = np.log(np.maximum(j, 1e-300))
+        return IntervalTable(float(t_a), float(t_b), np.ascontiguousarray(poly),
+                             positive.astype(np.int64), np.ascontiguousarray(sza_poly),
+                             np.ascontiguousarray(sgrid), np.ascontiguousarray(lnj), phot_cols,
+                             horizon, nr)
 
     def __call__(self, t_seconds):
         """(k [n_reactions], fixed [n_fixed]) at ``t_seconds`` [s since the run start]."""

@@ -75,6 +75,7 @@ accuracy the benchmarks ask for.
 from __future__ import annotations
 
 import bisect
+import math
 import time as _time
 from dataclasses import dataclass, field
 
@@ -179,7 +180,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
                   rtol: float = DEFAULT_RTOL, atol=DEFAULT_ATOL, first_step: float | None = None,
                   max_step: float = np.inf, progress=None, raise_on_failure: bool = True,
                   breakpoint_width_s: float = BREAKPOINT_WIDTH_S,
-                  method: RosenbrockMethod = RODAS3, on_accept=None) -> TimeLoopResult:
+                  method: RosenbrockMethod = RODAS3, on_accept=None,
+                  compiled: bool | None = None) -> TimeLoopResult:
     """Integrate one box through ``output_times_s``.
 
     Parameters
@@ -203,6 +205,10 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
         every accepted step, before the next coefficient evaluation (so a
         ``coefficients`` that depends on the box's state sees it lagged by one
         step, e.g. the overhead ozone column following the box's ozone)
+    compiled : use the compiled loop (:mod:`boxchem.solver.compiled`); None (default)
+        means: when numba is available, ``BOXCHEM_JIT`` is not 0, ``coefficients``
+        offers ``interval_table`` and there is no ``on_accept`` (state-dependent
+        k needs the per-step Python loop).  False forces the numpy path.
 
     Returns
     -------
@@ -221,6 +227,19 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
                          f"kinetics.variable_species, got {y.shape}")
     if not np.all(np.isfinite(y)) or np.any(y < 0):
         raise ValueError("y0: number densities must be finite and non-negative")
+
+    if compiled is None:
+        from .compiled import jit_available
+        compiled = (jit_available() and on_accept is None
+                    and hasattr(coefficients, "interval_table"))
+    if compiled:
+        if on_accept is not None or not hasattr(coefficients, "interval_table"):
+            raise ValueError("compiled=True: needs coefficients with interval_table and no on_accept")
+        return _integrate_compiled(kinetics, coefficients, y, out, breaks, rtol=rtol, atol=atol,
+                                   first_step=first_step, max_step=max_step, progress=progress,
+                                   raise_on_failure=raise_on_failure,
+                                   breakpoint_width_s=float(breakpoint_width_s), method=method,
+                                   wall0=wall0)
 
     stops = np.union1d(out[1:], breaks)  # every time a step must end on
     air_rate = air_dilution_rates(kinetics, coefficients, np.concatenate((out[:1], stops)))
@@ -387,5 +406,112 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
             if progress is not None:
                 progress(t)
 
+    res.wall_time_s = _time.perf_counter() - wall0
+    return res
+
+
+def _integrate_compiled(kinetics, coefficients, y, out, breaks, *, rtol, atol, first_step, max_step,
+                        progress, raise_on_failure, breakpoint_width_s, method, wall0):
+    """The time loop of ``integrate_box`` with the stepping in compiled code.
+
+    Python walks the landing times (output times, breakpoints, knots of the
+    environment's series and table-window splits) and, per window between
+    breakpoints/knots/splits, builds ``coefficients.interval_table``; one
+    compiled call (:func:`boxchem.solver.compiled.advance`) takes all steps
+    to the next landing time.  The rules are those of the numpy loop above.
+    """
+    from . import compiled as cm
+    from .coefficients import MAX_TABLE_INTERVAL_S
+    from .rosenbrock import FACTOR_MAX, FACTOR_MIN, SAFETY
+
+    half = breakpoint_width_s
+    if not half >= 0:
+        raise ValueError(f"breakpoint_width_s: expected >= 0 s, got {breakpoint_width_s!r}")
+    t0, t_end = float(out[0]), float(out[-1])
+    # windows of one interval table: between breakpoints and series knots, split to
+    # at most MAX_TABLE_INTERVAL_S
+    edges = np.union1d(np.union1d(breaks, coefficients.smoothness_breaks(t0, t_end)), [t0, t_end])
+    window_edges = [t0]
+    for a, b in zip(edges[:-1], edges[1:]):
+        n_split = max(1, int(math.ceil((b - a) / MAX_TABLE_INTERVAL_S)))
+        window_edges.extend(a + (b - a) * np.arange(1, n_split + 1) / n_split)
+    window_edges = np.array(window_edges)
+    window_edges[-1] = t_end
+    landing = np.union1d(out, window_edges)
+    air_rate = air_dilution_rates(kinetics, coefficients, landing)
+    break_set = set(breaks.tolist())
+
+    n_out = out.size
+    ys = np.full((n_out, kinetics.n_variable), np.nan)
+    ks = np.full((n_out, kinetics.n_reactions), np.nan)
+    fxs = np.full((n_out, kinetics.n_fixed), np.nan)
+    res = TimeLoopResult(out, ys, ks, fxs, kinetics.variable_species,
+                         settings={"method": method.name, "rtol": rtol, "compiled": True,
+                                   "atol": float(atol.max()) if np.all(atol == atol[0]) else atol.tolist()})
+    k_out, fx_out = coefficients(t0)
+    res.coefficient_evaluations += 1
+    ys[0], ks[0], fxs[0] = y, k_out, fx_out
+    next_out = 1
+
+    kin_arrays = cm.kinetics_arrays(kinetics)
+    m_arrays = cm.method_arrays(method)
+    params = np.array([SAFETY, FACTOR_MIN, FACTOR_MAX, MIN_STEP_ABSOLUTE, MIN_STEP_RELATIVE,
+                       FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP, FIXED_DIFFERENCE])
+    counters = np.zeros(5, dtype=np.int64)
+    info = np.zeros(3)
+    atol_c = np.ascontiguousarray(atol, dtype=float)
+    y = np.ascontiguousarray(y, dtype=float)
+    h = np.inf if first_step is None else float(first_step)
+    restart = first_step is None
+    h_max = float(max_step)
+    window = 0
+    table = None
+    t = t0
+
+    def side(tt, end_of_interval):
+        if half > 0.0 and tt in break_set:
+            return tt - half if end_of_interval else tt + half
+        return tt
+
+    for i_land in range(1, landing.size):
+        t_next = float(landing[i_land])
+        if table is None or t >= window_edges[window + 1]:
+            while t >= window_edges[window + 1]:
+                window += 1
+            wa, wb = float(window_edges[window]), float(window_edges[window + 1])
+            table = coefficients.interval_table(wa, wb, side(wa, False), side(wb, True))
+            res.coefficient_evaluations += 1
+        status = cm.advance(t, t_next, y, h, h_max, restart, table.t_a, table.t_b, table.poly,
+                            table.log_col, table.sza_poly, table.sgrid, table.lnj, table.phot_cols,
+                            table.horizon, float(air_rate[i_land - 1]), rtol, atol_c, *m_arrays,
+                            *kin_arrays, kinetics.n_fixed, counters, info, params)
+        restart = False
+        if status != 0:
+            res.steps, res.rejected_steps, res.rhs_evaluations, res.jacobian_evaluations, \
+                res.lu_decompositions = (int(v) for v in counters)
+            res.status = -1
+            res.message = ("step size fell below the minimum (non-finite values)" if status == 2
+                           else "step size fell below the minimum (error test failed)")
+            res.y, res.k, res.fixed, res.times = ys[:next_out], ks[:next_out], fxs[:next_out], out[:next_out]
+            res.wall_time_s = _time.perf_counter() - wall0
+            if raise_on_failure:
+                worst = int(info[2])
+                raise IntegrationError(res.message, time=float(info[0]), step_size=float(info[1]),
+                                       worst_species=kinetics.variable_species[worst]
+                                       if worst >= 0 else None, partial_result=res)
+            return res
+        t, h = t_next, float(info[1])
+        if t in break_set:
+            restart = True          # first step after a jump of J: as at the start
+            table = None            # the next window starts here (one-sided k)
+        while next_out < n_out and out[next_out] <= t:
+            k_out, fx_out = coefficients(side(t, False))
+            res.coefficient_evaluations += 1
+            ys[next_out], ks[next_out], fxs[next_out] = y, k_out, fx_out
+            next_out += 1
+            if progress is not None:
+                progress(t)
+    res.steps, res.rejected_steps, res.rhs_evaluations, res.jacobian_evaluations, \
+        res.lu_decompositions = (int(v) for v in counters)
     res.wall_time_s = _time.perf_counter() - wall0
     return res
