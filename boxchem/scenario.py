@@ -32,7 +32,7 @@ __all__ = ["Scenario", "TimeSeriesSpec", "ThresholdRuleSpec", "load_scenario",
            "SCENARIO_KEYS", "SOLVER_METHODS", "PHOTOLYSIS_METHODS"]
 
 #: solver methods a scenario may name (see boxchem.solver)
-SOLVER_METHODS = ("ros3",)
+SOLVER_METHODS = ("rodas3", "ros3")
 #: photolysis methods (see boxchem.photolysis.rates.PhotolysisRates)
 PHOTOLYSIS_METHODS = ("spectral", "parametric")
 
@@ -56,8 +56,8 @@ DEFAULT_LONGITUDE_DEG = 0.0
 DEFAULT_OZONE_COLUMN_DU = 300.0     # a typical mid-latitude total column; common practice, no source
 DEFAULT_ALBEDO = 0.3                # a common global-mean surface/cloud albedo; common practice, no source
 DEFAULT_RTOL = 1.0e-4
-DEFAULT_ATOL_CM3 = 1.0e-2
-DEFAULT_SOLVER_METHOD = "ros3"
+DEFAULT_ATOL_CM3 = 1.0           # = boxchem.solver.DEFAULT_ATOL (justified in solver/timeloop.py)
+DEFAULT_SOLVER_METHOD = "rodas3"  # = the solver default (measured choice, solver/rosenbrock.py)
 DEFAULT_PHOTOLYSIS_METHOD = "spectral"
 DEFAULT_OZONE_LOSS_LAYER_DEPTH_M = 10_000.0   # reasoning in boxchem/photolysis/ozonefollow.py
 

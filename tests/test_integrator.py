@@ -513,3 +513,12 @@ def test_interval_tables_reproduce_k_of_t():
     err = np.abs(got - want)[significant] / want[significant]
     assert err.max() < 5e-3
     assert np.all(got[~significant] <= 2e-6 * want.max(axis=0)[np.nonzero(~significant)[1]] + 1e-300)
+
+
+def test_scenarios_and_solver_share_one_default_tolerance_and_method():
+    # one defensible default (reasoning in solver/timeloop.py): a scenario without [solver]
+    # keys must integrate exactly as integrate_box's defaults do
+    from boxchem import scenario
+    from boxchem.solver import DEFAULT_ATOL, DEFAULT_RTOL
+    assert scenario.DEFAULT_ATOL_CM3 == DEFAULT_ATOL and scenario.DEFAULT_RTOL == DEFAULT_RTOL
+    assert scenario.DEFAULT_SOLVER_METHOD.upper() == RODAS3.name

@@ -68,8 +68,8 @@ def test_defaults_are_filled_in():
     assert s.longitude == 0.0
     assert s.ozone_column_du == 300.0
     assert s.psc_surface_area == 0.0 and s.sulfate_surface_area == 0.0
-    assert s.rtol == 1e-4 and s.atol == 1e-2
-    assert s.photolysis_method == "spectral" and s.solver_method == "ros3"
+    assert s.rtol == 1e-4 and s.atol == 1.0
+    assert s.photolysis_method == "spectral" and s.solver_method == "rodas3"
     assert s.scale == {}
 
 
@@ -185,7 +185,7 @@ def test_each_mistake_names_its_key_path(old, new, expected):
     ("[scale]\na_to_b = -1.0", r"\[scale\]\.a_to_b: expected a finite factor >= 0"),
     ("[solver]\nrtol = 2.0", r"\[solver\]\.rtol: must lie in \(0, 1\)"),
     ("[solver]\natol = \"1 ppbv\"", r"\[solver\]\.atol: must be a number density \(cm-3\)"),
-    ("[solver]\nmethod = \"euler\"", r"\[solver\]\.method: unknown method 'euler'; valid: ros3"),
+    ("[solver]\nmethod = \"euler\"", r"\[solver\]\.method: unknown method 'euler'; valid: rodas3, ros3"),
     ("[photolysis]\nmethod = \"guess\"", r"\[photolysis\]\.method: unknown method 'guess'; valid: spectral, parametric"),
     ("[photolysis]\nozone_column_follows_box = \"yes\"", r"\[photolysis\]\.ozone_column_follows_box: expected true or false"),
     ("[photolysis]\ncross_sections = { j_no_such = \"x.csv\" }", r"\[photolysis\]\.cross_sections\.j_no_such: no photolysis reaction"),
