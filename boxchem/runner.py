@@ -90,11 +90,11 @@ def build_environment(scenario: Scenario):
     altitude is used.
     """
     from .environment.atmosphere import standard_atmosphere
-    from .environment.history import Environment, PscThresholdRule, load_trajectory_csv
+    from .environment.history import Environment, PscThresholdRule, load_trajectory
 
     kwargs: dict[str, Any] = {}
     if scenario.trajectory is not None:
-        kwargs.update(load_trajectory_csv(scenario.trajectory))
+        kwargs.update(load_trajectory(scenario.trajectory))
     pressure = scenario.pressure if scenario.pressure is not None else scenario.location_pressure_pa
     given = {
         "latitude": (scenario.latitude, "[location].latitude"),

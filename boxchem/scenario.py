@@ -463,10 +463,10 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
                                                     "relative to the scenario file)")
                 trajectory = None
     if trajectory is not None:
-        from .environment.history import load_trajectory_csv
+        from .environment.history import load_trajectory
         from .errors import DataFileError
         try:
-            columns = load_trajectory_csv(trajectory)
+            columns = load_trajectory(trajectory)
         except (DataFileError, ScenarioError) as exc:
             err.add("[environment].trajectory", str(exc))
         else:

@@ -243,6 +243,17 @@ def test_trajectory_file_drives_the_box(tmp_path):
     np.testing.assert_allclose(ds.pressure, 7000 - 1000 * frac, rtol=1e-12)
     np.testing.assert_allclose(ds.latitude, -70 + 10 * frac, rtol=1e-12)
     np.testing.assert_allclose(ds.longitude, 90 * frac, atol=1e-9)
+    # the same parcel as a netCDF trajectory (chosen by the .nc suffix) gives the same box
+    import xarray as xr
+    xr.Dataset({"temperature_K": ("time", [200.0, 190.0]), "pressure_hPa": ("time", [70.0, 60.0]),
+                "latitude": ("time", [-70.0, -60.0]), "longitude": ("time", [0.0, 90.0])},
+               coords={"time": np.array(["2026-09-01T00:00", "2026-09-02T00:00"], dtype="datetime64[ns]")}
+               ).to_netcdf(tmp_path / "parcel.nc")
+    nc_path = tmp_path / "parcel_nc.toml"
+    nc_path.write_text(text.replace('"parcel.csv"', '"parcel.nc"'))
+    ds_nc = boxchem.run(nc_path)
+    for name in ("temperature", "pressure", "latitude", "longitude"):
+        np.testing.assert_allclose(ds_nc[name], ds[name], rtol=1e-12, atol=1e-9)
     # a key given both ways is an error
     path.write_text(text.replace('[environment]\n', '[environment]\ntemperature = "200 K"\n'))
     with pytest.raises(boxchem.ScenarioError, match=r"\[environment\]\.temperature: given both"):

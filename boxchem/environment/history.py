@@ -459,6 +459,21 @@ def _parse_time_cell(text: str):
         return None, None
 
 
+#: file suffixes read as netCDF trajectories; any other suffix is read as CSV
+NETCDF_SUFFIXES = (".nc", ".nc4", ".cdf", ".netcdf")
+
+
+def load_trajectory(path) -> dict[str, TimeSeries]:
+    """Read a parcel trajectory file, netCDF (by suffix, see ``NETCDF_SUFFIXES``) or CSV.
+
+    Same columns/variables and return value as :func:`load_trajectory_csv`
+    and :func:`load_trajectory_netcdf`.
+    """
+    if Path(path).suffix.lower() in NETCDF_SUFFIXES:
+        return load_trajectory_netcdf(path)
+    return load_trajectory_csv(path)
+
+
 def load_trajectory_csv(path) -> dict[str, TimeSeries]:
     """Read a parcel trajectory CSV into time series keyed by Environment argument.
 
