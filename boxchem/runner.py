@@ -23,7 +23,7 @@ import xarray as xr
 
 from . import __version__
 from .diagnostics import (cycle_coefficient_matrix, cycle_rate, family_number_density,
-                          family_weight_matrix)
+                          family_weight_matrix, net_stoichiometry_matrix)
 from .errors import IntegrationError
 from .scenario import Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
 
@@ -130,18 +130,6 @@ def build_environment(scenario: Scenario):
 # ---------------------------------------------------------------------------
 # the Dataset of the output contract
 # ---------------------------------------------------------------------------
-def _net_stoichiometry(mechanism) -> np.ndarray:
-    """(species, reaction) products minus reactants over all species (built once per run)."""
-    index = {name: i for i, name in enumerate(mechanism.species_names)}
-    nu = np.zeros((len(index), len(mechanism.reactions)))
-    for j, reaction in enumerate(mechanism.reactions):
-        for term in reaction.reactants:
-            nu[index[term.species], j] -= term.coefficient
-        for term in reaction.products:
-            nu[index[term.species], j] += term.coefficient
-    return nu
-
-
 def _species_attrs(mechanism) -> dict[str, np.ndarray]:
     names = mechanism.species_names
     return {
@@ -168,8 +156,10 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
     air = np.asarray(environment_state.air_density, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         mole_fraction = number_density / air[:, None]
-    families = family_number_density(number_density, family_weight_matrix(mechanism))
-    cycles = cycle_rate(reaction_rate, cycle_coefficient_matrix(mechanism))
+    weights = family_weight_matrix(mechanism)
+    cycle_coefficients = cycle_coefficient_matrix(mechanism)
+    families = family_number_density(number_density, weights)
+    cycles = cycle_rate(reaction_rate, cycle_coefficients)
 
     species = list(mechanism.species_names)
     reactions = list(mechanism.reaction_ids)
@@ -215,14 +205,13 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         return ("time", np.asarray(values, dtype=float), attrs)
 
     st = environment_state
-    weights = family_weight_matrix(mechanism)
     data_vars = {
-        "stoichiometry": (("species", "reaction"), _net_stoichiometry(mechanism),
+        "stoichiometry": (("species", "reaction"), net_stoichiometry_matrix(mechanism),
                           {"units": "1", "long_name": "net stoichiometric coefficient of each "
                            "species in each reaction (products minus reactants; M, hv left out)"}),
         "family_weight": (("family", "species"), weights.T,
                           {"units": "1", "long_name": "weight of each species in each family"}),
-        "cycle_coefficient": (("cycle", "reaction"), cycle_coefficient_matrix(mechanism).T,
+        "cycle_coefficient": (("cycle", "reaction"), cycle_coefficients.T,
                               {"units": "1", "long_name": "coefficient of each reaction rate in "
                                "the rate of each catalytic cycle"}),
         "number_density": (("time", "species"), number_density,

@@ -6,18 +6,26 @@ one matrix product over all output times.
 """
 from __future__ import annotations
 
+from typing import Sequence
+
 import numpy as np
 
 __all__ = ["family_weight_matrix", "family_number_density"]
 
 
-def family_weight_matrix(mechanism) -> np.ndarray:
-    """Weights W with shape (n_species, n_families): species in mechanism order."""
-    index = {name: i for i, name in enumerate(mechanism.species_names)}
+def family_weight_matrix(mechanism, species: Sequence[str] | None = None) -> np.ndarray:
+    """Weights W with shape (n_species, n_families) [1], families in mechanism order.
+
+    ``species`` gives the row order (default: the mechanism's); members not
+    listed there are left out.
+    """
+    names = mechanism.species_names if species is None else species
+    index = {name: i for i, name in enumerate(names)}
     weights = np.zeros((len(index), len(mechanism.families)))
     for j, family in enumerate(mechanism.families):
         for name, w in family.members.items():
-            weights[index[name], j] = float(w)
+            if name in index:
+                weights[index[name], j] = float(w)
     return weights
 
 

@@ -20,6 +20,8 @@ import numpy as np
 import xarray as xr
 
 from ..errors import BoxchemError
+from .families import family_weight_matrix
+from .stoichiometry import net_stoichiometry_matrix
 
 __all__ = [
     "ResultError", "open_result", "require", "stoichiometry", "family_weights",
@@ -94,21 +96,13 @@ def stoichiometry(ds: xr.Dataset, mechanism=None) -> xr.DataArray:
         raise ResultError("production and loss need the 'stoichiometry' variable of a run "
                           "or an explicit mechanism= argument; this Dataset has neither")
     species = [str(s) for s in ds["species"].values]
-    index = {s: i for i, s in enumerate(species)}
-    reactions = {r.id: r for r in mechanism.reactions}
+    known = set(mechanism.reaction_ids)
     ids = [str(r) for r in ds["reaction"].values]
-    missing = [r for r in ids if r not in reactions]
+    missing = [r for r in ids if r not in known]
     if missing:
         raise ResultError(f"reaction(s) {', '.join(missing)} of the result are not in the "
                           f"mechanism {mechanism.source or '(given)'}: was the run made with another one?")
-    nu = np.zeros((len(species), len(ids)))
-    for j, rid in enumerate(ids):  # built once per call, not a hot path
-        for term in reactions[rid].reactants:
-            if term.species in index:
-                nu[index[term.species], j] -= term.coefficient
-        for term in reactions[rid].products:
-            if term.species in index:
-                nu[index[term.species], j] += term.coefficient
+    nu = net_stoichiometry_matrix(mechanism, species, ids)
     return xr.DataArray(nu, dims=("species", "reaction"),
                         coords={"species": ds["species"], "reaction": ds["reaction"]},
                         name="stoichiometry", attrs={"units": "1"})
@@ -122,13 +116,8 @@ def family_weights(ds: xr.Dataset, mechanism=None) -> xr.DataArray:
         raise ResultError("family budgets need the 'family_weight' variable of a run "
                           "or an explicit mechanism= argument; this Dataset has neither")
     species = [str(s) for s in ds["species"].values]
-    index = {s: i for i, s in enumerate(species)}
     fams = list(mechanism.families)
-    w = np.zeros((len(fams), len(species)))
-    for i, fam in enumerate(fams):
-        for name, weight in fam.members.items():
-            if name in index:
-                w[i, index[name]] = weight
+    w = family_weight_matrix(mechanism, species).T
     return xr.DataArray(w, dims=("family", "species"),
                         coords={"family": [f.name for f in fams], "species": ds["species"]},
                         name="family_weight", attrs={"units": "1"})
