@@ -86,9 +86,23 @@ class IntervalTable:
         if self.sgrid.size:
             z = float(np.polynomial.polynomial.polyval(s, self.sza_poly))
             if z < self.horizon:
-                lnj = np.array([np.interp(z, self.sgrid, col) for col in self.lnj.T])
-                out[self.phot_cols] += np.exp(lnj)
+                out[self.phot_cols] += np.exp(_interp_rows(z, self.sgrid, self.lnj))
         return out[:self.n_reactions], out[self.n_reactions:]
+
+
+def _interp_rows(x: float, grid: np.ndarray, table: np.ndarray) -> np.ndarray:
+    """Every column of ``table`` (n_grid, n_columns) linearly interpolated at ``x``.
+
+    The same values as ``np.interp(x, grid, column)`` for each column (end values
+    held outside the grid), in one array expression instead of a loop over columns.
+    """
+    if grid.size == 1 or x <= grid[0]:
+        return table[0]
+    if x >= grid[-1]:
+        return table[-1]
+    i = int(np.searchsorted(grid, x, side="right"))
+    w = (x - grid[i - 1]) / (grid[i] - grid[i - 1])
+    return table[i - 1] + w * (table[i] - table[i - 1])
 
 
 @functools.lru_cache(maxsize=8)
@@ -144,11 +158,20 @@ class RateCoefficientModel:
         if self._photolysis_mask.any() and photolysis_rates is None:
             raise ValueError("photolysis_rates: the mechanism has photolysis reactions; "
                              "give a PhotolysisRates (or a callable with its signature)")
+        self._phot_cols = np.nonzero(self._photolysis_mask)[0].astype(np.int64)
+        # interval tables take ln J on the J table's own SZA nodes when every J is
+        # spectral (ln J is then piecewise linear there), else on a fine fixed grid
+        table = getattr(photolysis_rates, "table", None)
+        sources = getattr(photolysis_rates, "source", {}) or {}
+        self._table_sza_grid = (np.asarray(table.sza_deg, dtype=float)
+                                if table is not None and all(sources.get(mechanism.reactions[c].id)
+                                                             == "spectral" for c in self._phot_cols)
+                                else None)
         # fixed densities are linear in [M]: fixed = [M] * fractions
         self._fixed_per_air = self.kinetics.fixed_number_densities(1.0, self.fixed_mole_fractions)
         self._anchor = None             # (T0, ln M0) of the first state
-        self._nodes: dict = {}
-        self._last_thermal = None       # ((T, [M]), k) of the last call          # (i, j) -> ln k at T0 + i dT, ln M0 + j dlnM
+        self._nodes: dict = {}          # (i, j) -> ln k at T0 + i dT, ln M0 + j dlnM
+        self._last_thermal = None       # ((T, [M]), k) of the last call
         self._surface_ref = None        # (T0, k per unit PSC area, k per unit sulfate area)
         self.thermal_evaluations = 0
 
@@ -268,7 +291,7 @@ class RateCoefficientModel:
         sza = np.asarray(state.solar_zenith_angle, dtype=float)
         sza_poly = vinv @ sza
         horizon = float(np.asarray(state.horizon_zenith_angle, dtype=float)[n // 2])
-        phot_cols = np.nonzero(self._photolysis_mask)[0].astype(np.int64)
+        phot_cols = self._phot_cols
         sgrid = np.zeros(0)
         lnj = np.zeros((0, phot_cols.size))
         if self.photolysis_rates is not None and phot_cols.size:
@@ -277,11 +300,8 @@ class RateCoefficientModel:
             top = horizon - 1e-9
             if lo < top:
                 hi = min(hi, top)
-                table = getattr(self.photolysis_rates, "table", None)
-                sources = getattr(self.photolysis_rates, "source", {}) or {}
-                ids = [self.mechanism.reactions[c].id for c in phot_cols]
-                if table is not None and all(sources.get(r) == "spectral" for r in ids):
-                    inner = np.asarray(table.sza_deg, dtype=float)
+                if self._table_sza_grid is not None:
+                    inner = self._table_sza_grid
                 else:
                     inner = np.arange(math.floor(lo / J_GRID_STEP_DEG), math.ceil(hi / J_GRID_STEP_DEG) + 1) \
                         * J_GRID_STEP_DEG
