@@ -22,3 +22,42 @@ def test_interp_rows_single_node_holds_the_value():
     table = np.array([[2.0, 3.0]])
     np.testing.assert_array_equal(_interp_rows(80.0, np.array([85.0]), table), table[0])
     np.testing.assert_array_equal(_interp_rows(90.0, np.array([85.0]), table), table[0])
+
+
+EMPTY_REACTIONS_MECH = """\
+[species]
+A     lumped
+M     fixed
+[reactions]
+"""
+
+EMPTY_REACTIONS_SCENARIO = """\
+[run]
+mechanism = "empty.mech"
+start = "2026-09-01T00:00:00Z"
+duration = "6 h"
+output_interval = "2 h"
+[location]
+latitude = -70.0
+longitude = 0.0
+altitude = "18 km"
+[environment]
+temperature = "200 K"
+pressure = "70 hPa"
+[initial]
+A = "1e9 cm-3"
+"""
+
+
+@pytest.mark.parametrize("jit", ["1", "0"])
+def test_run_of_a_mechanism_with_an_empty_reactions_section(tmp_path, monkeypatch, jit):
+    # the compiled path used to fail reshaping its zero-row slot tables
+    import boxchem
+    monkeypatch.setenv("BOXCHEM_JIT", jit)
+    (tmp_path / "empty.mech").write_text(EMPTY_REACTIONS_MECH)
+    (tmp_path / "empty.toml").write_text(EMPTY_REACTIONS_SCENARIO)
+    ds = boxchem.run(tmp_path / "empty.toml")
+    assert ds.sizes["reaction"] == 0 and ds.sizes["time"] == 4
+    # nothing reacts: A keeps its initial number density (common practice, no source)
+    np.testing.assert_array_equal(ds.number_density.sel(species="A").values, 1e9)
+    assert ds.attrs["integration_status"] == "success"

@@ -73,8 +73,8 @@ def kinetics_arrays(kinetics) -> tuple:
     import scipy.sparse as sp
     net = sp.csc_matrix(kinetics._stoich_dense)
     arrays = (np.ascontiguousarray(kinetics._mass, dtype=np.int64),
-              np.ascontiguousarray(kinetics._sat, dtype=np.int64).reshape(kinetics.n_reactions, -1),
-              np.ascontiguousarray(kinetics._sat_half, dtype=np.float64).reshape(kinetics.n_reactions, -1),
+              np.ascontiguousarray(kinetics._sat, dtype=np.int64),        # already (n_reactions, swidth)
+              np.ascontiguousarray(kinetics._sat_half, dtype=np.float64),
               net.indptr.astype(np.int64), net.indices.astype(np.int64), net.data.astype(np.float64),
               kinetics._jac_rows.astype(np.int64), kinetics._jac_cols.astype(np.int64),
               kinetics._jac_vals.astype(np.float64), fill_reducing_order(kinetics))

@@ -278,8 +278,9 @@ class CompiledKinetics:
                     if q != p:
                         v = v * other
                 d[:, len(mass) + p] = v
+        # float even without reactions (bincount of an empty array is int, weights or not)
         flat = np.bincount(self._jac_rows, weights=self._jac_vals * d.ravel()[self._jac_cols],
-                           minlength=self.n_variable ** 2)
+                           minlength=self.n_variable ** 2).astype(float, copy=False)
         return flat.reshape(self.n_variable, self.n_variable)
 
     def jacobian(self, y, k, fixed) -> np.ndarray:
@@ -310,7 +311,7 @@ class CompiledKinetics:
         d = np.concatenate(parts, axis=-1).reshape(-1, self._jac_scatter.shape[1])
         if d.shape[0] == 1 and not lead:  # single box: scatter-add with bincount
             flat = np.bincount(self._jac_rows, weights=self._jac_vals * d[0, self._jac_cols],
-                               minlength=self.n_variable ** 2)
+                               minlength=self.n_variable ** 2).astype(float, copy=False)
             return flat.reshape(self.n_variable, self.n_variable)
         flat = (self._jac_scatter @ d.T).T
         return flat.reshape(lead + (self.n_variable, self.n_variable))
