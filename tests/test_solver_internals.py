@@ -1,6 +1,8 @@
 """Small internals of the solver and the runner that the larger tests do not reach."""
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -61,3 +63,17 @@ def test_run_of_a_mechanism_with_an_empty_reactions_section(tmp_path, monkeypatc
     # nothing reacts: A keeps its initial number density (common practice, no source)
     np.testing.assert_array_equal(ds.number_density.sel(species="A").values, 1e9)
     assert ds.attrs["integration_status"] == "success"
+
+
+def test_integrate_box_input_errors_name_the_value_and_species():
+    from boxchem.runner import prepare
+    from boxchem.scenario import load_scenario
+    from boxchem.solver.timeloop import integrate_box
+
+    setup = prepare(load_scenario(Path(__file__).parent / "data" / "runner_chain.toml"))
+    y0 = setup.y0.copy()
+    y0[setup.kinetics.variable_species.index("B")] = np.nan
+    with pytest.raises(ValueError, match=r"y0: .*nan for 'B' \(index 1\)"):
+        integrate_box(setup.kinetics, setup.coefficients, y0, np.array([0.0, 10.0]))
+    with pytest.raises(ValueError, match=r"output_times_s: .*10.0 s at index 1 followed by 10.0 s"):
+        integrate_box(setup.kinetics, setup.coefficients, setup.y0, np.array([0.0, 10.0, 10.0]))

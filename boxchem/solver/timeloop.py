@@ -173,7 +173,9 @@ def _validated_times(output_times_s, breakpoints_s):
     if out.size < 1 or not np.all(np.isfinite(out)):
         raise ValueError(f"output_times_s: expected one or more finite times [s], got {out!r}")
     if np.any(np.diff(out) <= 0):
-        raise ValueError("output_times_s: times must increase strictly")
+        i = int(np.argmax(np.diff(out) <= 0))
+        raise ValueError(f"output_times_s: times must increase strictly; got {float(out[i])!r} s at "
+                         f"index {i} followed by {float(out[i + 1])!r} s")
     bp = np.asarray(breakpoints_s, dtype=float).ravel()
     bp = np.unique(bp[(bp > out[0]) & (bp < out[-1])])
     return out, bp
@@ -228,8 +230,11 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
     if y.shape != (kinetics.n_variable,):
         raise ValueError(f"y0: expected shape ({kinetics.n_variable},) in the order of "
                          f"kinetics.variable_species, got {y.shape}")
-    if not np.all(np.isfinite(y)) or np.any(y < 0):
-        raise ValueError("y0: number densities must be finite and non-negative")
+    bad = ~np.isfinite(y) | (y < 0)
+    if np.any(bad):
+        i = int(np.argmax(bad))
+        raise ValueError(f"y0: number densities must be finite and >= 0 cm-3; got {float(y[i])!r} for "
+                         f"{kinetics.variable_species[i]!r} (index {i})")
 
     if compiled is None:
         from .compiled import jit_available
