@@ -24,7 +24,7 @@ import xarray as xr
 from . import __version__
 from .diagnostics import (cycle_coefficient_matrix, cycle_rate, family_number_density,
                           family_weight_matrix, net_stoichiometry_matrix)
-from .errors import IntegrationError
+from .errors import IntegrationError, ScenarioError
 from .scenario import Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
 
 __all__ = ["run", "prepare", "RunSetup", "initial_state", "build_environment",
@@ -311,6 +311,11 @@ def prepare(scenario: Scenario) -> RunSetup:
                                                      in scenario.photolysis_cross_sections.items()})
         if scenario.ozone_column_follows_box:
             from .photolysis.ozonefollow import OzoneFollowingPhotolysis
+            if "O3" not in kinetics.variable_species:
+                raise ScenarioError(
+                    f"{scenario.source}: [photolysis].ozone_column_follows_box: O3 is a fixed "
+                    f"species in {mechanism.source or 'the mechanism'}; the column can follow only "
+                    f"an integrated O3 (declare O3 without 'fixed', or set the key to false)")
             photolysis = OzoneFollowingPhotolysis(
                 photolysis, environment, kinetics.variable_species.index("O3"),
                 scenario.ozone_loss_layer_depth_m)

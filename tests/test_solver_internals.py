@@ -77,3 +77,26 @@ def test_integrate_box_input_errors_name_the_value_and_species():
         integrate_box(setup.kinetics, setup.coefficients, y0, np.array([0.0, 10.0]))
     with pytest.raises(ValueError, match=r"output_times_s: .*10.0 s at index 1 followed by 10.0 s"):
         integrate_box(setup.kinetics, setup.coefficients, setup.y0, np.array([0.0, 10.0, 10.0]))
+
+
+FIXED_O3_MECH = """\
+[species]
+O3    fixed 2e-6
+O2    fixed 0.2095
+O     lumped
+M     fixed
+[reactions]
+j_o2   O2 + hv -> O + O    photolysis l=1e-11 m=1 n=1  ref="invented test value"
+"""
+
+
+def test_ozone_column_following_a_fixed_o3_is_a_scenario_error(tmp_path):
+    # used to end in "tuple.index(x): x not in tuple" from deep inside prepare()
+    import boxchem
+    from boxchem.errors import ScenarioError
+    (tmp_path / "empty.mech").write_text(FIXED_O3_MECH)
+    (tmp_path / "s.toml").write_text(EMPTY_REACTIONS_SCENARIO.replace("A = ", "O = ")
+                                     + '[photolysis]\nmethod = "parametric"\n'
+                                       "ozone_column_follows_box = true\n")
+    with pytest.raises(ScenarioError, match=r"ozone_column_follows_box: O3 is a fixed species"):
+        boxchem.run(tmp_path / "s.toml")
