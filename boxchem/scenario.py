@@ -18,6 +18,7 @@ import copy
 import datetime as _dt
 import difflib
 import math
+import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -148,7 +149,7 @@ class Scenario:
         try:
             data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as exc:
-            raise ScenarioError(f"{source}: not valid TOML: {exc}") from None
+            raise ScenarioError(_toml_error_message(exc, text, source)) from None
         return _build(data, text=text, base_dir=Path(base_dir), source=source,
                       mechanism=mechanism, overrides={})
 
@@ -199,6 +200,28 @@ class Scenario:
         if self.duration_s - times[-1] > 1e-6 * self.output_interval_s:
             times = np.append(times, self.duration_s)
         return times
+
+
+_TOML_POSITION = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
+
+
+def _toml_error_message(exc: Exception, text: str, source: str) -> str:
+    """``file:line:col: not valid TOML: ...`` with the offending line, a caret and a hint."""
+    message = str(exc)
+    match = _TOML_POSITION.search(message)
+    hint = ('expected lines such as  key = "2.6 ppmv"  (strings in double quotes, '
+            'numbers bare) under [section] headers; see docs/scenarios.md')
+    if not match:
+        return f"{source}: not valid TOML: {message}; {hint}"
+    line, col = int(match.group(1)), int(match.group(2))
+    what = message[:match.start()]
+    lines = text.splitlines()
+    if what.startswith("Illegal character '\\n'") or (what.startswith("Unterminated string")):
+        what += " (a string is not closed: add the closing double quote)"
+    shown = ""
+    if 1 <= line <= len(lines):
+        shown = f"\n    {lines[line - 1]}\n    {' ' * (col - 1)}^"
+    return f"{source}:{line}:{col}: not valid TOML: {what}; {hint}{shown}"
 
 
 def load_scenario(path_or_name: str | Path, *, mechanism: Any = None) -> Scenario:

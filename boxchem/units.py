@@ -47,6 +47,21 @@ _FACTORS: dict[str, dict[str, float]] = {
     "wavelength": {"nm": 1.0},
 }
 
+#: how error messages spell the units of each kind (the keys above are lower-cased for lookup)
+_DISPLAY: dict[str, str] = {
+    "pressure": "Pa, hPa, kPa, mbar, bar, atm, Torr",
+    "length": "m, km",
+    "time": "s, min, h, d",
+    "temperature": "K",
+    "column": "DU, molecule cm-2",
+    "surface_area": "um2 cm-3, cm2 cm-3",
+    "angle": "deg",
+    "wavelength": "nm",
+}
+#: the unit shown in the "e.g." of a missing-unit message (the one scenarios mostly use)
+_EXAMPLE_UNIT = {"pressure": "hPa", "length": "km", "time": "h", "temperature": "K", "column": "DU",
+                 "surface_area": "um2 cm-3", "angle": "deg", "wavelength": "nm"}
+
 _MIXING_RATIO = {"ppmv": 1e-6, "ppm": 1e-6, "ppbv": 1e-9, "ppb": 1e-9,
                  "pptv": 1e-12, "ppt": 1e-12, "mol/mol": 1.0, "molmol-1": 1.0, "1": 1.0}
 _NUMBER_DENSITY = {"cm-3": 1.0, "moleculecm-3": 1.0, "moleculescm-3": 1.0, "moleccm-3": 1.0,
@@ -89,13 +104,13 @@ def parse_quantity(value: object, kind: str, *, default_unit: str | None = None,
     if not unit:
         if default_unit is None:
             raise UnitError(f"{where}: {value!r} has no unit; write it with one of "
-                            f"{', '.join(_FACTORS[kind])}")
+                            f"{_DISPLAY[kind]}, e.g. \"{number:g} {_EXAMPLE_UNIT[kind]}\"")
         unit = default_unit
     factors = _FACTORS[kind]
     key = _key(unit)
     if key not in factors:
         raise UnitError(f"{where}: unknown {kind} unit {unit!r} in {value!r}; "
-                        f"valid units: {', '.join(factors)}")
+                        f"valid units: {_DISPLAY[kind]}")
     return number * factors[key]
 
 

@@ -204,7 +204,10 @@ def test_several_mistakes_are_reported_together():
 
 
 def test_invalid_toml_is_a_scenario_error():
-    assert error_of("[run\nmechanism = 1").startswith("test.toml: not valid TOML")
+    # file:line:col, the offending line and a caret, as the mechanism parser reports
+    message = error_of("[run\nmechanism = 1")
+    assert message.startswith("test.toml:1:5: not valid TOML")
+    assert "\n    [run\n        ^" in message
 
 
 def test_unknown_shipped_scenario_name_suggests():

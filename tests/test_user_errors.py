@@ -1,0 +1,76 @@
+"""Mistakes a new user makes, and the messages that must tell them where and what is valid.
+
+Each test here stands for a user-facing defect found by using boxchem as a
+new user would; it fails if the defect comes back.  Command-line tests call
+``boxchem.cli.main`` (exit status 2, no traceback) and read stderr.
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from boxchem.cli import main
+from boxchem.errors import ScenarioError, UnitError
+from boxchem.scenario import Scenario
+from boxchem.units import parse_quantity
+
+DATA = Path(__file__).parent / "data"
+
+SCENARIO = """[run]
+mechanism = "runner_chain.mech"
+start = "2026-09-01T00:00:00Z"
+duration = "2 h"
+output_interval = "1 h"
+
+[location]
+latitude = -70.0
+altitude = "18 km"
+
+[environment]
+temperature = "195 K"
+pressure = "60 hPa"
+
+[initial]
+A = "2.8 ppmv"
+"""
+
+
+def cli_error(capsys, argv: list[str]) -> str:
+    """stderr of a command that must fail with status 2 and no traceback."""
+    status = main(argv)
+    err = capsys.readouterr().err
+    assert status == 2, err
+    assert "Traceback" not in err
+    return err
+
+
+def test_unclosed_string_in_scenario_is_reported_at_line_and_column():
+    text = SCENARIO.replace('pressure = "60 hPa"', 'pressure = "60 hPa')
+    with pytest.raises(ScenarioError) as info:
+        Scenario.from_text(text, base_dir=DATA, source="s.toml")
+    message = str(info.value)
+    assert message.startswith("s.toml:13:19: not valid TOML")
+    assert "string is not closed" in message
+    assert '    pressure = "60 hPa\n' in message
+
+
+def test_bare_word_value_in_scenario_points_at_it():
+    text = SCENARIO.replace('"runner_chain.mech"', "runner_chain.mech")
+    with pytest.raises(ScenarioError, match=r"^s\.toml:2:13: not valid TOML.*double quotes"):
+        Scenario.from_text(text, base_dir=DATA, source="s.toml")
+
+
+def test_missing_unit_names_units_as_written_with_an_example():
+    # was: "write it with one of pa, hpa, kpa, ..." (the lower-cased lookup keys)
+    with pytest.raises(UnitError) as info:
+        parse_quantity("50", "pressure", where="--pressure")
+    assert "Pa, hPa, kPa, mbar, bar, atm, Torr" in str(info.value)
+    assert 'e.g. "50 hPa"' in str(info.value)
+    with pytest.raises(UnitError, match=r'one of K, e\.g\. "195 K"'):
+        parse_quantity(195, "temperature", where="[environment].temperature")
+
+
+def test_unknown_unit_lists_valid_units_as_written():
+    with pytest.raises(UnitError, match=r"unknown temperature unit 'C' in '195C'; valid units: K$"):
+        parse_quantity("195C", "temperature", where="--temperature")
