@@ -74,3 +74,41 @@ def test_missing_unit_names_units_as_written_with_an_example():
 def test_unknown_unit_lists_valid_units_as_written():
     with pytest.raises(UnitError, match=r"unknown temperature unit 'C' in '195C'; valid units: K$"):
         parse_quantity("195C", "temperature", where="--temperature")
+
+
+def test_jvalues_altitude_without_unit_is_refused(capsys):
+    # was: "--altitude 20" silently meant 20 m (J at the ground for a user meaning 20 km)
+    err = cli_error(capsys, ["jvalues", "stratosphere", "--sza", "30", "--altitude", "20"])
+    assert "--altitude: '20' has no unit" in err and 'e.g. "20 km"' in err
+
+
+def test_jvalues_reactions_without_plot_is_refused(capsys):
+    # was: silently ignored
+    err = cli_error(capsys, ["jvalues", "polar-spring", "--reactions", "j_cl2o2"])
+    assert "--reactions" in err and "--plot" in err
+
+
+def test_jvalues_reactions_typo_fails_before_the_table_with_a_suggestion(capsys, tmp_path):
+    # was: the whole day's table was printed first, then the error, without a suggestion
+    err = cli_error(capsys, ["jvalues", "polar-spring", "--plot", str(tmp_path / "j.png"),
+                             "--reactions", "j_cl2o3"])
+    assert "no photolysis reaction 'j_cl2o3' - did you mean 'j_cl2o2'?" in err
+    assert capsys.readouterr().out == ""
+    assert not (tmp_path / "j.png").exists()
+
+
+def test_jvalues_day_table_does_not_report_the_24h_sample_as_0000(capsys):
+    # The table's last sample is 24:00 (00:00 of the next day); a maximum there was
+    # printed as "00:00".  Synthetic table: J rises all day, largest at 24:00.
+    import numpy as np
+
+    from boxchem.commands.jvalues import _print_day_text
+    times = np.datetime64("2026-09-15T00:00", "ns") + np.arange(0, 25) * np.timedelta64(1, "h")
+    sza = np.linspace(89.0, 60.0, times.size)        # sun rising all day, lowest SZA at 24:00
+    table = {"time": times, "sza": sza, "horizon": np.full(times.size, 94.0),
+             "j": np.linspace(1.0, 25.0, times.size)[:, None] * 1e-5,
+             "ids": ["j_x"], "equations": ["X + hv -> Y"], "methods": ["spectral"]}
+    _print_day_text(table)
+    out = capsys.readouterr().out
+    assert "minimum SZA 61.21 deg at 23:00 UTC" in out
+    assert "2.4000e-04     23:00" in out

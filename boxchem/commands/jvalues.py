@@ -47,7 +47,7 @@ def register(subparsers) -> None:
                         "path); see the rule below")
     p.add_argument("--sza", type=float, nargs="+", default=None,
                    help="solar zenith angles [deg] (mechanism form; default 30 60 85 92)")
-    p.add_argument("--altitude", default=None, help="altitude of the box (default 20 km)")
+    p.add_argument("--altitude", default=None, help="altitude of the box, with a unit: 20km, 18500m (default 20 km)")
     p.add_argument("--ozone-column", default=None, help="overhead ozone column (default 300 DU)")
     p.add_argument("--albedo", type=float, default=None, help="Lambertian albedo below the box (default 0.3)")
     p.add_argument("--temperature", default=None, help="temperature for cross sections (default 220 K)")
@@ -72,7 +72,8 @@ def register(subparsers) -> None:
 
 
 def _conditions(args):
-    altitude = parse_quantity(args.altitude, "length", default_unit="m", where="--altitude")
+    # no default unit: a bare "20" read as metres gave J at the ground for a user meaning 20 km
+    altitude = parse_quantity(args.altitude, "length", where="--altitude")
     ozone = parse_quantity(args.ozone_column, "column", default_unit="DU", where="--ozone-column")
     temperature = parse_quantity(args.temperature, "temperature", default_unit="K", where="--temperature")
     if not 0.0 <= args.albedo <= 1.0:
@@ -249,7 +250,12 @@ def _run_scenario_day(args) -> int:
                            f"the scenario ({args.mechanism!r})")
     if args.fit_lmn:
         raise BoxchemError("--fit-lmn belongs to the mechanism form")
+    if args.reactions and not args.plot:
+        raise BoxchemError("--reactions chooses the reactions drawn by --plot; give --plot FILE.png too "
+                           "(the table always lists every photolysis reaction)")
     scenario = load_scenario(args.mechanism)
+    if args.reactions:
+        _check_plot_reactions(args.reactions, scenario.mechanism)
     step = parse_quantity(args.step, "time", default_unit="s", where="--step")
     if not 1.0 <= step <= 86400.0:
         raise BoxchemError(f"--step {args.step!r}: expected a step between 1 s and 1 d, e.g. 10min")
@@ -263,6 +269,17 @@ def _run_scenario_day(args) -> int:
         plot_day(table, args.plot, reactions=args.reactions)
         print(f"wrote {args.plot}", file=sys.stderr)
     return 0
+
+
+def _check_plot_reactions(wanted, mechanism) -> None:
+    """Refuse unknown --reactions ids before the day is computed, with a suggestion."""
+    import difflib
+    ids = [r.id for r in mechanism.reactions if r.law == "photolysis"]
+    for rid in wanted:
+        if rid not in ids:
+            close = difflib.get_close_matches(rid, ids, n=1)
+            hint = f" - did you mean {close[0]!r}?" if close else ""
+            raise BoxchemError(f"--reactions: no photolysis reaction {rid!r}{hint}; valid: {', '.join(ids)}")
 
 
 def _parse_day(text, start) -> np.datetime64:
@@ -342,12 +359,15 @@ def _print_day_text(table) -> None:
     # daily mean over the day's 24 h (trapezoid over the samples; endpoints 00:00 and 24:00)
     hours = (times - times[0]) / np.timedelta64(1, "s") / 3600.0
     mean = np.trapezoid(j, hours, axis=0) / max(hours[-1], 1e-12) if hours[-1] > 0 else j[0]
+    # the last sample is 24:00, i.e. 00:00 of the next day: leave it out of the
+    # minimum and maximum, which would otherwise be shown as "00:00" of this day
+    day = slice(0, max(times.size - 1, 1))
     print(f"J through {np.datetime_as_string(times[0], unit='D')} (UTC); minimum SZA "
-          f"{sza.min():.2f} deg at {_iso(times[int(np.argmin(sza))])[11:16]} UTC; "
+          f"{sza[day].min():.2f} deg at {_iso(times[int(np.argmin(sza[day]))])[11:16]} UTC; "
           f"sun above the box's horizon for {sunlit[:-1].sum() * step_h:.1f} h")
     print(f"{'id':<14} {'max J [s-1]':>12} {'at (UTC)':>9} {'24-h mean [s-1]':>16}  method      equation")
     for r, rid in enumerate(table["ids"]):
-        k = int(np.argmax(j[:, r]))
+        k = int(np.argmax(j[day, r]))
         print(f"{rid:<14} {j[k, r]:12.4e} {_iso(times[k])[11:16]:>9} {mean[r]:16.4e}  "
               f"{table['methods'][r]:<10}  {table['equations'][r]}")
 
