@@ -33,6 +33,7 @@ pressure = "60 hPa"
 
 [initial]
 A = "2.8 ppmv"
+N2 = "0.7808 mol/mol"
 """
 
 
@@ -112,3 +113,25 @@ def test_jvalues_day_table_does_not_report_the_24h_sample_as_0000(capsys):
     out = capsys.readouterr().out
     assert "minimum SZA 61.21 deg at 23:00 UTC" in out
     assert "2.4000e-04     23:00" in out
+
+
+@pytest.fixture
+def scenario_file(tmp_path):
+    path = tmp_path / "s.toml"
+    path.write_text(SCENARIO.replace('"runner_chain.mech"', f'"{DATA / "runner_chain.mech"}"'))
+    return path
+
+
+@pytest.mark.parametrize("vary, expected", [
+    # was: no suggestion
+    ("location.latitud=-60,-70", "unknown key 'location.latitud' - did you mean 'location.latitude'?"),
+    # was: every member ran and failed, then "every member of the sweep failed"
+    ("scale.a_to_bb=1,2", "--vary scale.a_to_bb: s.toml: [scale].a_to_bb: unknown reaction id 'a_to_bb' "
+                          "- did you mean 'a_to_b'?"),
+    ("initial.AA=1ppbv,2ppbv", "--vary initial.AA: s.toml: [initial].AA: unknown species 'AA'"),
+])
+def test_sweep_bad_vary_fails_before_any_member_runs(capsys, tmp_path, scenario_file, vary, expected):
+    out = tmp_path / "sweep.nc"
+    err = cli_error(capsys, ["sweep", str(scenario_file), "--vary", vary, "-o", str(out), "-q"])
+    assert expected in err
+    assert not out.exists()

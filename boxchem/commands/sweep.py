@@ -41,6 +41,7 @@ def run(args) -> int:
 
     from ..analysis.sweep import parse_vary, run_sweep
     vary = parse_vary(args.vary)
+    check_vary(args.scenario, vary)
     result = run_sweep(args.scenario, vary, workers=args.workers, quiet=args.quiet)
     out = Path(args.output) if args.output else Path(f"{Path(str(args.scenario)).stem}-sweep.nc")
     from ..io.netcdf import write_dataset
@@ -56,3 +57,39 @@ def run(args) -> int:
                     where = ", ".join(f"{d}={result[d].values[i]}" for d, i in zip(result["member_status"].dims, idx))
                     print(f"  failed ({where}): {e}", file=sys.stderr)
     return 1 if failed else 0
+
+
+def check_vary(scenario: str, vary) -> None:
+    """Refuse unknown keys, reaction ids and species before any member runs (exit status 2).
+
+    A typo in a key (``location.latitud``, ``scale.clo_clo_mm``,
+    ``initial.ClONo2``) would make every member fail after all of them were
+    started; it is an input error naming the --vary item instead.  Values are
+    still checked per member (a member with an invalid value is recorded as
+    failed and the others complete, as the help says).
+    """
+    import difflib
+
+    from ..analysis.sweep import TEMPERATURE_OFFSET_KEY
+    from ..errors import BoxchemError
+    from ..scenario import SCENARIO_KEYS, load_scenario
+
+    valid = [f"{sec}.{k}" for sec, ks in SCENARIO_KEYS.items() for k in ks] + [TEMPERATURE_OFFSET_KEY]
+    base = None
+    for key in vary:
+        section, name = key.split(".", 1)
+        if section not in ("scale", "initial"):
+            if key not in valid:
+                close = difflib.get_close_matches(key, valid, n=1)
+                hint = f" - did you mean {close[0]!r}?" if close else ""
+                raise BoxchemError(f"--vary: unknown key {key!r}{hint}; valid: {', '.join(valid)}, "
+                                   f"scale.<reaction id>, initial.<species>")
+            continue
+        base = base or load_scenario(scenario)
+        try:   # neutral values: only the reaction id or species name is checked here
+            if section == "scale":
+                base.with_overrides(scale={name: 1.0})
+            else:
+                base.with_overrides(initial={name: "0 ppbv"})
+        except BoxchemError as exc:
+            raise BoxchemError(f"--vary {key}: {exc}") from None
