@@ -135,3 +135,20 @@ def test_sweep_bad_vary_fails_before_any_member_runs(capsys, tmp_path, scenario_
     err = cli_error(capsys, ["sweep", str(scenario_file), "--vary", vary, "-o", str(out), "-q"])
     assert expected in err
     assert not out.exists()
+
+
+def test_check_strict_judges_the_users_file_not_the_included_shipped_one(capsys, tmp_path):
+    # was: any file including "stratosphere" failed --strict on the shipped file's
+    # source-gas warnings (CH4, N2O, CFCs are never produced), and they were all listed
+    mine = tmp_path / "mine.mech"
+    mine.write_text('include "stratosphere"\n[replace]\n'
+                    'clo_clo_m  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32 n=4.0 kinf=3.0e-12 m=1.5'
+                    '  ref="invented test value"\n')
+    assert main(["check", str(mine), "--strict"]) == 0
+    err = capsys.readouterr().err
+    assert "never produced" not in err and "included shipped mechanism not shown" in err
+    # a warning in the user's own file is still shown, and is an error under --strict
+    mine.write_text(mine.read_text() + "[reactions]\nclo_clo_2  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32"
+                    " n=4.0 kinf=3.0e-12 m=1.5  ref=\"invented test value\"\n")
+    err = cli_error(capsys, ["check", str(mine), "--strict"])
+    assert f"{mine}:5:" in err and "error under --strict" in err
