@@ -70,6 +70,21 @@ def test_fit_lmn_recovers_known_parameters():
     assert rms < 1e-8
 
 
+def test_fit_lmn_with_altitude_recovers_what_runs_evaluate_up_to_the_horizon():
+    # J curve produced by the runs' own parametric evaluation at 20 km, to 94 deg
+    from boxchem.mechanism import parse_mechanism
+    from boxchem.photolysis.rates import PhotolysisRates
+    mech = parse_mechanism("[species]\nX lumped\nY lumped\n[reactions]\n"
+                           "jx X + hv -> Y photolysis l=2.0e-3 m=0.8 n=0.35\n")
+    rates = PhotolysisRates(mech, altitude_m=20_000.0, method="parametric")
+    sza = np.linspace(0.0, 94.0, 60)
+    j = rates(sza)[:, 0]
+    l, m, n, rms = fit_lmn(sza, j, altitude_m=20_000.0)
+    # the fit inverts the runs' form exactly (common practice, no source)
+    assert (l, m, n) == pytest.approx((2.0e-3, 0.8, 0.35), rel=1e-4, abs=0)
+    assert rms < 1e-3      # runs interpolate the air mass on a 0.01 deg grid
+
+
 def test_jvalues_command_csv(capsys):
     assert main(["jvalues", "stratosphere", "--sza", "30", "92", "96", "--altitude", "20km",
                  "--ozone-column", "300DU", "--format", "csv"]) == 0

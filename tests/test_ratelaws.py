@@ -199,13 +199,3 @@ def test_evaluator_surface_areas(evaluator):
     np.testing.assert_allclose(k[:, col["s_all"]], 0.05 * v * (psc + sulf) / 4, rtol=1e-12)
     assert np.all(k[:, col["r_arr"]] == 0.0)
 
-
-def test_evaluator_parametric_photolysis(evaluator):
-    mech, ev = evaluator
-    col = {r.id: i for i, r in enumerate(mech.reactions)}
-    J = ev.parametric_photolysis(np.array([30.0, 100.0]))
-    c = math.cos(math.radians(30.0))
-    # J = scale * l cos^m exp(-n sec) (Jenkin et al., 1997), zero below the horizon
-    assert math.isclose(J[0, col["j_o3"]], 2 * 5e-4 * c * math.exp(-0.2 / c), rel_tol=1e-12)
-    assert J[1, col["j_o3"]] == 0.0
-    assert np.all(J[:, col["j_dimer"]] == 0.0)  # data= only: computed by the photolysis package

@@ -213,7 +213,9 @@ def test_photolysis_uses_shared_data_names_and_has_fallbacks(mech):
     assert (qy["j_clono2_a"], qy["j_clono2_b"]) == (0.6, 0.4)
     assert (qy["j_brono2_a"], qy["j_brono2_b"]) == (0.85, 0.15)
     assert (qy["j_ho2no2_a"], qy["j_ho2no2_b"]) == (0.8, 0.2)
-    J = RateEvaluator(mech).parametric_photolysis(np.array([60.0, 95.0]))
+    from boxchem.photolysis.rates import PhotolysisRates
+    # the horizon of a box at 20 km is at 94.5 deg (dip angle; common geometry, no source)
+    J = PhotolysisRates(mech, altitude_m=20_000.0, method="parametric")(np.array([60.0, 95.0]))
     cols = [mech.reaction_ids.index(r.id) for r in photo]
     assert np.all(J[0, cols] > 0) and np.all(J[1, cols] == 0)
 

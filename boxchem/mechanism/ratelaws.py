@@ -151,10 +151,11 @@ def _param(reactions, idx: np.ndarray, key: str) -> np.ndarray:
 class RateEvaluator:
     """All rate coefficients of a mechanism, vectorised over conditions.
 
-    Compiled once; afterwards :meth:`thermal`, :meth:`surface` and
-    :meth:`parametric_photolysis` evaluate each law group as arrays (no loop
-    over reactions).  Results have shape ``conditions.shape + (n_reactions,)``
-    in mechanism reaction order, with zeros in the columns of other kinds.
+    Compiled once; afterwards :meth:`thermal` and :meth:`surface` evaluate
+    each law group as arrays (no loop over reactions).  Results have shape
+    ``conditions.shape + (n_reactions,)`` in mechanism reaction order, with
+    zeros in the columns of other kinds.  Photolysis frequencies come from
+    :class:`boxchem.photolysis.rates.PhotolysisRates`.
     """
 
     def __init__(self, mechanism: Mechanism):
@@ -178,8 +179,6 @@ class RateEvaluator:
         self._rev_B = _param(rx, self._rev, "B")
 
         self.photolysis_index = _indices(rx, "photolysis")
-        self._par = np.array([i for i in self.photolysis_index if "l" in rx[i].parameters], dtype=np.intp)
-        self._par_p = {k: _param(rx, self._par, k) for k in ("l", "m", "n", "scale")}
 
         self.surface_index = _indices(rx, "surface")
         self._surf_gamma = _param(rx, self.surface_index, "gamma")
@@ -236,18 +235,3 @@ class RateEvaluator:
             k[..., self.surface_index] = surface_uptake(np.broadcast_to(T, shape)[..., None],
                                                         self._surf_gamma, self._surf_mass, area)
         return k
-
-    def parametric_photolysis(self, solar_zenith_angle, horizon_zenith_angle=90.0) -> np.ndarray:
-        """J [s-1] from the l, m, n form (times scale=) for photolysis reactions that give it.
-
-        solar_zenith_angle [degrees]; zero beyond ``horizon_zenith_angle``
-        [degrees] and in the columns of reactions without l/m/n.
-        """
-        chi = np.asarray(solar_zenith_angle, dtype=float)
-        J = np.zeros(chi.shape + (self.n_reactions,))
-        if self._par.size:
-            p = self._par_p
-            J[..., self._par] = p["scale"] * parametric_photolysis(
-                chi[..., None], p["l"], p["m"], p["n"], np.asarray(horizon_zenith_angle)[..., None]
-                if np.ndim(horizon_zenith_angle) else horizon_zenith_angle)
-        return J
