@@ -214,9 +214,12 @@ def plot_ozone_loss(ds: xr.Dataset, family: str = "Ox"):
     if stack:
         ax1.stackplot(x, np.clip(np.array(stack), 0, None), labels=labels, colors=colours, alpha=0.9,
                       step="mid" if long_run else None)
-    ax1.plot(x, rate.sel(term="total").values, color="black", linewidth=1.4, label="total loss")
+    # daily means are drawn as steps, so the lines sit on the stacked bars
+    drawstyle = "steps-mid" if long_run else "default"
+    ax1.plot(x, rate.sel(term="total").values, color="black", linewidth=1.4, label="total loss",
+             drawstyle=drawstyle)
     ax1.plot(x, rate.sel(term="unattributed").values, color="black", linewidth=1.0, linestyle="--",
-             label="unattributed (total - cycles)")
+             label="unattributed (total - cycles)", drawstyle=drawstyle)
     ax1.set_ylabel(rate_label)
     ax1.set_title(f"Ozone loss rate by catalytic cycle ({acc.attrs['basis']} basis)", loc="left")
     ax1.legend(frameon=False, fontsize=8, ncol=2, loc="upper left")
