@@ -152,3 +152,53 @@ def test_check_strict_judges_the_users_file_not_the_included_shipped_one(capsys,
                     " n=4.0 kinf=3.0e-12 m=1.5  ref=\"invented test value\"\n")
     err = cli_error(capsys, ["check", str(mine), "--strict"])
     assert f"{mine}:5:" in err and "error under --strict" in err
+
+
+def mechanism_errors(text: str, tmp_path) -> list[str]:
+    """Messages of every problem in a mechanism text (which must fail)."""
+    from boxchem.errors import MechanismError
+    from boxchem.mechanism.parser import parse_mechanism
+    with pytest.raises(MechanismError) as info:
+        parse_mechanism(text, "mine.mech", base_dir=tmp_path)
+    return [p.message for p in info.value.problems]
+
+
+def test_misspelt_include_gives_only_the_include_error(tmp_path):
+    # was: also "[replace]: no reaction with id 'clo_clo_m' to replace" and "[remove]: no
+    # reaction with id 'clo_o'" for every line that depended on the missing file
+    messages = mechanism_errors(
+        'include "stratosphre"\n[replace]\n'
+        'clo_clo_m  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32 n=4.0 kinf=3.0e-12 m=1.5\n'
+        '[remove]\nclo_o\n[reactions]\nmine  ClO + O3 -> Cl + O2 + O2  constant k=1e-15\n', tmp_path)
+    assert len(messages) == 1, messages
+    assert "did you mean 'stratosphere'?" in messages[0]
+
+
+def test_misspelt_section_header_is_one_error_and_its_lines_are_skipped(tmp_path):
+    # was: "expected a section header" on every line after [replce]
+    messages = mechanism_errors(
+        'include "stratosphere"\n[replce]\n'
+        'clo_clo_m  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32 n=4.0 kinf=3.0e-12 m=1.5\n'
+        'clo_o  ClO + O -> Cl + O2  arrhenius A=2.8e-11\n'
+        '[remove]\nno_such_id\n', tmp_path)
+    assert len(messages) == 2, messages
+    assert messages[0].startswith("unknown section [replce] - did you mean 'replace'?")
+    assert messages[1].startswith("[remove]: no reaction with id 'no_such_id'")
+
+
+def test_misspelt_species_section_does_not_make_every_species_unknown(tmp_path):
+    messages = mechanism_errors(
+        "[specis]\nClO\nCl2O2\nM fixed\n[reactions]\n"
+        "r1 ClO + ClO + M -> Cl2O2 + M falloff k0=1e-32 n=3 kinf=3e-12 m=1\n", tmp_path)
+    assert len(messages) == 1 and "unknown section [specis]" in messages[0], messages
+
+
+def test_line_with_unknown_species_and_unknown_key_reports_both(tmp_path):
+    # was: only the unknown key; the unknown species showed up after fixing it.  The
+    # missing kinf= is not reported as well: knf= is probably it.
+    messages = mechanism_errors(
+        "[species]\nClO\nCl2O2\nM fixed\n[reactions]\n"
+        "r1 ClO + CIO -> Cl2O2 falloff k0=1e-32 n=3 knf=3e-12 m=1\n", tmp_path)
+    assert len(messages) == 2, messages
+    assert messages[0] == "reaction 'r1': unknown species 'CIO' - did you mean 'ClO'?"
+    assert messages[1].startswith("falloff takes no key 'knf' - did you mean 'kinf'?")

@@ -83,6 +83,9 @@ def _relative_data_path(value: str, base_dir: Path | None) -> str:
     return str((base_dir / path).resolve())
 
 
+_UNKNOWN_SECTION = "?"      # lines under a bad section header are skipped
+
+
 class _LineError(Exception):
     """A syntax error at a column of the current line (caught per line)."""
 
@@ -90,6 +93,15 @@ class _LineError(Exception):
         super().__init__(message)
         self.message = message
         self.column = column
+
+
+class _KeyErrors(Exception):
+    """Errors in the KEY=VALUE part of a reaction line whose equation and law were read."""
+
+    def __init__(self, errors: list[_LineError], reaction: Reaction):
+        super().__init__(errors[0].message)
+        self.errors = errors
+        self.reaction = reaction
 
 
 def _strip_comment(line: str) -> str:
@@ -207,6 +219,12 @@ class _Reader:
         self.broken_ids: set[str] = set()
         self.texts: list[str] = []
         self.stack: list[Path] = []
+        #: an include could not be read: the mechanism is incomplete, so unknown names are
+        #: follow-on errors of that one problem and are not reported
+        self.include_failed = False
+        #: reactions whose equation was read but whose keys had errors: their species are
+        #: still checked, so that one line reports its independent problems together
+        self.partial_reactions: list[Reaction] = []
 
     # -- problems ------------------------------------------------------------
     def error(self, message: str, loc: SourceLocation, column: int | None = None) -> None:
@@ -220,12 +238,14 @@ class _Reader:
         if resolved in self.stack:
             chain = " -> ".join(p.name for p in [*self.stack, resolved])
             self.problems.append(Problem(f"include loop: {chain}", include_loc))
+            self.include_failed = True
             return
         try:
             text = path.read_text(encoding="utf-8")
         except (OSError, UnicodeDecodeError) as exc:
             msg = f"cannot read mechanism file {str(path)!r}: {exc}"
             self.problems.append(Problem(msg, include_loc))
+            self.include_failed = include_loc is not None
             return
         self.stack.append(resolved)
         try:
@@ -256,7 +276,10 @@ class _Reader:
             try:
                 stripped = line.strip()
                 if stripped.startswith("["):
+                    section = _UNKNOWN_SECTION      # until the header is read
                     section = self._section(stripped, col0)
+                elif section == _UNKNOWN_SECTION:
+                    self._skip_line(line)
                 elif stripped.startswith("include") and re.match(r"include(\s|\"|\Z)", stripped):
                     if section is not None:
                         raise _LineError("include lines must come before the first section", col0)
@@ -270,6 +293,17 @@ class _Reader:
                 self.error(exc.message, loc, exc.column)
 
     # -- sections ----------------------------------------------------------------
+    def _skip_line(self, line: str) -> None:
+        """A line under a bad section header: already reported once, so skipped silently.
+
+        Its first word may name a species or reaction that other lines use; those
+        names raise no follow-on "unknown ..." errors.
+        """
+        word = line.split(None, 1)[0]
+        if _NAME.match(word):
+            self.broken_species.add(word)
+            self.broken_ids.add(word)
+
     def _section(self, stripped: str, col0: int) -> str | None:
         m = re.fullmatch(r"\[\s*([A-Za-z_]*)\s*\]", stripped)
         if m is None:
@@ -288,7 +322,9 @@ class _Reader:
         try:
             path = resolve(m.group(2), "mechanisms", relative_to=base_dir)
         except BoxchemError as exc:
-            raise _LineError(f"include: {exc}", line.index('"') + 2) from None
+            self.include_failed = True
+            raise _LineError(f"include: {exc} (names it would define are not checked until it "
+                             f"is found)", line.index('"') + 2) from None
         self.read_file(path, dc_replace(loc, column=line.index('"') + 2))
 
     def _line_species(self, line: str, loc: SourceLocation) -> None:
@@ -427,7 +463,7 @@ class _Reader:
             rid = m.group(0)
             if rid in self.reactions:
                 del self.reactions[rid]
-            elif rid in self.broken_ids:
+            elif rid in self.broken_ids or self.include_failed:
                 continue
             else:
                 self.error(f"[remove]: no reaction with id {rid!r}"
@@ -441,12 +477,18 @@ class _Reader:
                              f"'_', found {rid!r}", id_col)
         try:
             reaction = self._reaction_body(line, m.end(), rid, dc_replace(loc, column=id_col))
+        except _KeyErrors as exc:
+            self.broken_ids.add(rid)
+            self.partial_reactions.append(exc.reaction)
+            for e in exc.errors:
+                self.error(e.message, loc, e.column)
+            return
         except _LineError:
             self.broken_ids.add(rid)
             raise
         if replace:
             if rid not in self.reactions:
-                if rid in self.broken_ids:
+                if rid in self.broken_ids or self.include_failed:
                     return
                 raise _LineError(f"[replace]: no reaction with id {rid!r} to replace"
                                  f"{_suggest(rid, self.reactions)}; new reactions go in [reactions]",
@@ -485,37 +527,33 @@ class _Reader:
         params: dict[str, float | str] = {}
         common: dict[str, float | str] = {}
         unbalanced = False
+        key_errors: list[_LineError] = []     # independent of each other: all are reported
         while cur.peek() is not None:
             tok = cur.take()
             if tok.kind == "name" and tok.text == "unbalanced":
                 unbalanced = True
                 continue
-            if tok.kind != "keyval":
-                raise _LineError(f"expected KEY=VALUE parameters of {law} after the law, found "
-                                 f"{tok.text!r}; {law} takes: {', '.join(k + '=' for k in allowed)}",
-                                 tok.column)
-            key, value = tok.key, tok.value
-            if key not in allowed:
-                raise _LineError(f"{law} takes no key {key!r}{_suggest(key, allowed)}; valid keys: "
-                                 f"{', '.join(allowed)}", tok.column)
-            if key in params or key in common:
-                raise _LineError(f"key {key!r} is given twice", tok.column)
-            if key == "ref":
-                common[key] = value
-            elif key in STRING_KEYS:
-                if not value:
-                    raise _LineError(f"{key}= needs a value", tok.value_column)
-                params[key] = _relative_data_path(value, self.base_dir) if key == "data" else value
-            elif key == "qy":
-                try:
-                    params[key] = float(value)
-                except ValueError:
-                    params[key] = _relative_data_path(value, self.base_dir)  # a data set name or path
-                if value == "":
-                    raise _LineError("qy= needs a number or a data set name", tok.value_column)
-            else:
-                target = common if key in COMMON_KEYS else params
-                target[key] = _parse_number(value, f"{key}=", tok.value_column)
+            try:
+                self._key(tok, law, allowed, params, common)
+            except _LineError as exc:
+                key_errors.append(exc)
+
+        third_body = any(t.text == "M" for _, t in left.terms)
+        photolysis = any(t.text == "hv" for _, t in left.terms)
+        reactants = _merge(left.terms)
+        products = _merge(right.terms)
+        equation = f"{' + '.join(left.texts)} -> {' + '.join(right.texts)}".rstrip()
+
+        def build() -> Reaction:
+            return Reaction(
+                id=rid, reactants=reactants, products=products, law=law,
+                parameters=MappingProxyType(params), third_body=third_body, photolysis=photolysis,
+                f298=common.get("f298"), g=common.get("g"), ref=str(common.get("ref", "")),
+                unbalanced=unbalanced, equation=equation, location=loc)
+
+        if key_errors:
+            # a missing required key is not reported: it may be the one written wrongly
+            raise _KeyErrors(key_errors, build())
         missing = [k for k in spec["required"] if k not in params]
         if missing:
             raise _LineError(f"{law} needs {', '.join(k + '=' for k in missing)} "
@@ -530,17 +568,36 @@ class _Reader:
                                  "parametric form l= m= n=", law_tok.column)
         for key, default in spec["defaults"].items():
             params.setdefault(key, default)
+        return build()
 
-        third_body = any(t.text == "M" for _, t in left.terms)
-        photolysis = any(t.text == "hv" for _, t in left.terms)
-        reactants = _merge(left.terms)
-        products = _merge(right.terms)
-        equation = f"{' + '.join(left.texts)} -> {' + '.join(right.texts)}".rstrip()
-        return Reaction(
-            id=rid, reactants=reactants, products=products, law=law,
-            parameters=MappingProxyType(params), third_body=third_body, photolysis=photolysis,
-            f298=common.get("f298"), g=common.get("g"), ref=str(common.get("ref", "")),
-            unbalanced=unbalanced, equation=equation, location=loc)
+    def _key(self, tok: _Token, law: str, allowed: tuple[str, ...], params: dict, common: dict) -> None:
+        """Store one KEY=VALUE token of a reaction line in ``params`` or ``common``."""
+        if tok.kind != "keyval":
+            raise _LineError(f"expected KEY=VALUE parameters of {law} after the law, found "
+                             f"{tok.text!r}; {law} takes: {', '.join(k + '=' for k in allowed)}",
+                             tok.column)
+        key, value = tok.key, tok.value
+        if key not in allowed:
+            raise _LineError(f"{law} takes no key {key!r}{_suggest(key, allowed)}; valid keys: "
+                             f"{', '.join(allowed)}", tok.column)
+        if key in params or key in common:
+            raise _LineError(f"key {key!r} is given twice", tok.column)
+        if key == "ref":
+            common[key] = value
+        elif key in STRING_KEYS:
+            if not value:
+                raise _LineError(f"{key}= needs a value", tok.value_column)
+            params[key] = _relative_data_path(value, self.base_dir) if key == "data" else value
+        elif key == "qy":
+            try:
+                params[key] = float(value)
+            except ValueError:
+                params[key] = _relative_data_path(value, self.base_dir)  # a data set name or path
+            if value == "":
+                raise _LineError("qy= needs a number or a data set name", tok.value_column)
+        else:
+            target = common if key in COMMON_KEYS else params
+            target[key] = _parse_number(value, f"{key}=", tok.value_column)
 
     def _side(self, cur: _Cursor, left: bool) -> _Side:
         side = _Side([], [])
@@ -597,8 +654,12 @@ def _finish(reader: _Reader, source: str, strict: bool) -> Mechanism:
     mech = Mechanism(species=tuple(reader.species.values()), reactions=tuple(reactions),
                      families=tuple(families), cycles=tuple(reader.cycles.values()),
                      source=source, text="".join(reader.texts))
-    found = validate_mechanism(mech, ignore_species=frozenset(reader.broken_species),
-                               ignore_reactions=frozenset(reader.broken_ids))
+    if reader.include_failed:
+        found = []      # names from the missing file would all be reported as unknown
+    else:
+        found = validate_mechanism(mech, ignore_species=frozenset(reader.broken_species),
+                                   ignore_reactions=frozenset(reader.broken_ids),
+                                   names_only=tuple(reader.partial_reactions))
     errors = [p for p in reader.problems + found if p.severity == "error"]
     warnings = [p for p in found if p.severity == "warning"]
     if strict:
@@ -606,8 +667,21 @@ def _finish(reader: _Reader, source: str, strict: bool) -> Mechanism:
                    for w in warnings]
         warnings = []
     if errors:
-        raise MechanismError(errors)
+        raise MechanismError(_in_file_order(errors))
     return dc_replace(mech, warnings=tuple(warnings))
+
+
+def _in_file_order(problems: list[Problem]) -> list[Problem]:
+    """Problems by file (in order of first mention), line and column; unlocated ones last."""
+    files: dict[str, int] = {}
+    for p in problems:
+        if p.location is not None:
+            files.setdefault(p.location.file, len(files))
+
+    def key(p: Problem) -> tuple:
+        loc = p.location
+        return (len(files), 0, 0) if loc is None else (files[loc.file], loc.line, loc.column)
+    return sorted(problems, key=key)
 
 
 def parse_mechanism(text: str, source: str = "<string>", *, base_dir: str | Path | None = None,

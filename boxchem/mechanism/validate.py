@@ -60,11 +60,15 @@ def _at(loc: SourceLocation | None, word: str | None = None, *, suffix: str = ""
 
 
 def validate_mechanism(mechanism: Mechanism, *, ignore_species: frozenset = frozenset(),
-                       ignore_reactions: frozenset = frozenset()) -> list[Problem]:
+                       ignore_reactions: frozenset = frozenset(),
+                       names_only: tuple[Reaction, ...] = ()) -> list[Problem]:
     """All errors and warnings of a mechanism, in file order of the items.
 
     ``ignore_species`` / ``ignore_reactions`` are names whose definitions
     already failed to parse; references to them raise no follow-on errors.
+    ``names_only`` are reactions left out of the mechanism because their
+    parameters had errors: only their species names are checked, so that a
+    line with an unknown key and an unknown species reports both.
     """
     out: list[Problem] = []
 
@@ -80,6 +84,8 @@ def validate_mechanism(mechanism: Mechanism, *, ignore_species: frozenset = froz
                 _at(s.location, "fixed"))
 
     reactions = {r.id: r for r in mechanism.reactions}
+    for r in names_only:
+        _check_species_names(r, species, known, err)
     for r in mechanism.reactions:
         _check_reaction(r, species, known, reactions, ignore_reactions, err)
 
@@ -114,14 +120,20 @@ def validate_mechanism(mechanism: Mechanism, *, ignore_species: frozenset = froz
     return out
 
 
-def _check_reaction(r: Reaction, species, known, reactions, ignore_reactions, err) -> None:
-    loc = r.location
-    names = [t.species for t in (*r.reactants, *r.products)]
+def _check_species_names(r: Reaction, species, known, err) -> bool:
+    """Report every unknown species of a reaction; True if there was one."""
     unknown = False
-    for name in dict.fromkeys(names):
+    for name in dict.fromkeys(t.species for t in (*r.reactants, *r.products)):
         if name not in known:
             unknown = True
-            err(f"reaction {r.id!r}: unknown species {name!r}{_suggest(name, species)}", _at(loc, name))
+            err(f"reaction {r.id!r}: unknown species {name!r}{_suggest(name, species)}",
+                _at(r.location, name))
+    return unknown
+
+
+def _check_reaction(r: Reaction, species, known, reactions, ignore_reactions, err) -> None:
+    loc = r.location
+    unknown = _check_species_names(r, species, known, err)
     if not r.third_body and _m_on_right(r):
         err(f"reaction {r.id!r}: M on the right needs M on the left (a third-body reaction)",
             _at(loc, "M"))
