@@ -72,16 +72,23 @@ _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s
 KINDS = tuple(_FACTORS) + ("amount",)
 
 
-def _split(value: object, where: str) -> tuple[float, str]:
+#: a whole example value of each kind, shown when a value cannot be read at all
+_EXAMPLE_VALUE = {"pressure": "60 hPa", "temperature": "195 K", "length": "18 km", "time": "15 min",
+                  "amount": "2.8 ppmv", "column": "300 DU", "surface_area": "2 um2 cm-3",
+                  "angle": "70 deg", "wavelength": "300 nm"}
+
+
+def _split(value: object, where: str, kind: str) -> tuple[float, str]:
+    example = _EXAMPLE_VALUE[kind]
     if isinstance(value, bool):
-        raise UnitError(f"{where}: expected a number with a unit, got {value!r}")
+        raise UnitError(f"{where}: expected a number with a unit such as \"{example}\", got {value!r}")
     if isinstance(value, (int, float)):
         return float(value), ""
     if not isinstance(value, str):
-        raise UnitError(f"{where}: expected a number with a unit such as \"60 hPa\", got {value!r}")
+        raise UnitError(f"{where}: expected a number with a unit such as \"{example}\", got {value!r}")
     m = _NUMBER.match(value)
     if not m:
-        raise UnitError(f"{where}: cannot read {value!r} as a number with a unit (e.g. \"60 hPa\")")
+        raise UnitError(f"{where}: cannot read {value!r} as a number with a unit (e.g. \"{example}\")")
     return float(m.group(1)), m.group(2)
 
 
@@ -98,7 +105,7 @@ def parse_quantity(value: object, kind: str, *, default_unit: str | None = None,
     """
     if kind not in _FACTORS:
         raise ValueError(f"unknown quantity kind {kind!r}; expected one of {sorted(_FACTORS)}")
-    number, unit = _split(value, where)
+    number, unit = _split(value, where, kind)
     if not math.isfinite(number):
         raise UnitError(f"{where}: {value!r} is not a finite number")
     if not unit:
@@ -121,7 +128,7 @@ def parse_amount(value: object, *, where: str = "value") -> tuple[float, str]:
     number densities in molecule cm-3.  A bare number is an error, since the
     two readings differ by twenty orders of magnitude.
     """
-    number, unit = _split(value, where)
+    number, unit = _split(value, where, "amount")
     if not math.isfinite(number):
         raise UnitError(f"{where}: {value!r} is not a finite number")
     key = _key(unit)

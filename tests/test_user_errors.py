@@ -202,3 +202,23 @@ def test_line_with_unknown_species_and_unknown_key_reports_both(tmp_path):
     assert len(messages) == 2, messages
     assert messages[0] == "reaction 'r1': unknown species 'CIO' - did you mean 'ClO'?"
     assert messages[1].startswith("falloff takes no key 'knf' - did you mean 'kinf'?")
+
+
+@pytest.mark.parametrize("kind, example", [
+    ("pressure", "60 hPa"), ("temperature", "195 K"), ("length", "18 km"), ("time", "15 min"),
+    ("column", "300 DU"), ("surface_area", "2 um2 cm-3"), ("angle", "70 deg"),
+])
+def test_unreadable_value_example_matches_the_quantity_kind(kind, example):
+    # was: (e.g. "60 hPa") for every kind, an angle or a temperature included
+    with pytest.raises(UnitError) as info:
+        parse_quantity("about seventy", kind, where="[location].x")
+    assert f'(e.g. "{example}")' in str(info.value)
+    with pytest.raises(UnitError) as info:
+        parse_quantity([1, 2], kind, where="[location].x")
+    assert f'such as "{example}"' in str(info.value)
+
+
+def test_unreadable_amount_example_is_an_amount():
+    from boxchem.units import parse_amount
+    with pytest.raises(UnitError, match=r'\(e\.g\. "2\.8 ppmv"\)'):
+        parse_amount("lots", where="[initial].O3")
