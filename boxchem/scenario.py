@@ -136,6 +136,9 @@ class Scenario:
     photolysis_cross_sections: Mapping[str, Path] = field(default_factory=dict)
     ozone_column_follows_box: bool = False
     ozone_loss_layer_depth_m: float = DEFAULT_OZONE_LOSS_LAYER_DEPTH_M
+    #: key path ``"[section].key"`` -> where its overriding value came from (e.g.
+    #: ``"--scale clo_clo_m=1.2"``), so that errors in it name that, not the file
+    override_origins: Mapping[str, str] = field(default_factory=dict, repr=False, compare=False)
 
     # -- construction ----------------------------------------------------------
     @classmethod
@@ -154,30 +157,43 @@ class Scenario:
                       mechanism=mechanism, overrides={})
 
     def with_overrides(self, *, scale: Mapping[str, float] | None = None,
-                       **overrides: Any) -> "Scenario":
+                       origins: Mapping[str, str] | None = None, **overrides: Any) -> "Scenario":
         """A new scenario with some values replaced, validated like the file.
 
         ``overrides`` keys are ``"section.key"`` (``{"run.duration": "2 d"}``)
         or a bare key that names one key of one section (``duration="2 d"``,
         ``rtol=1e-6``); a value of None removes the key (its default applies).
         ``scale`` entries multiply onto the file's ``[scale]``.
+        ``origins`` says where each override came from, keyed like the
+        overrides (``"run.duration"``, ``"scale.ID"``, ``"initial.SPECIES"``),
+        e.g. ``{"scale.clo_clo_m": "--scale clo_clo_m=1.2"}``; errors in that
+        value then name it instead of the scenario file.  Without an entry an
+        error names the override itself (``override run.duration='-2 d'``).
         The original text stays in ``text``; the overrides are kept in
         ``overrides`` for provenance.
         """
+        origins = dict(origins or {})
         data = copy.deepcopy(dict(self.data))
         record = dict(self.overrides)
+        labels = dict(self.override_origins)
         for key, value in overrides.items():
-            section, name = _override_target(key, self.source)
+            section, name = _override_target(key, origins.get(key, f"override {key}={value!r}"))
+            label = origins.get(key, f"override {section}.{name}={value!r}")
             if value is None:
                 data.get(section, {}).pop(name, None)
             elif section == "initial" and isinstance(value, Mapping):
                 data.setdefault("initial", {}).update(value)
+                for species, amount in value.items():
+                    default = origins.get(key, f"override initial.{species}={amount!r}")
+                    labels[_where("initial", species)] = origins.get(f"initial.{species}", default)
             else:
                 data.setdefault(section, {})[name] = value
+                labels[_where(section, name)] = label
             record[f"{section}.{name}"] = value
         if scale:
             table = data.setdefault("scale", {})
             for rid, factor in scale.items():
+                labels[_where("scale", rid)] = origins.get(f"scale.{rid}", f"override scale.{rid}={factor!r}")
                 old = table.get(rid, 1.0)
                 if isinstance(old, (int, float)) and not isinstance(old, bool) \
                         and isinstance(factor, (int, float)) and not isinstance(factor, bool):
@@ -186,7 +202,7 @@ class Scenario:
                     table[rid] = factor  # let validation report the bad value
                 record[f"scale.{rid}"] = factor
         return _build(data, text=self.text, base_dir=self.base_dir, source=self.source,
-                      mechanism=self.mechanism, overrides=record)
+                      mechanism=self.mechanism, overrides=record, origins=labels)
 
     # -- derived -----------------------------------------------------------------
     @property
@@ -239,14 +255,31 @@ def load_scenario(path_or_name: str | Path, *, mechanism: Any = None) -> Scenari
 # validation
 # ---------------------------------------------------------------------------
 class _Errors:
-    """Collects messages ``source: [section].key: message``."""
+    """Collects messages ``source: [section].key: message``.
 
-    def __init__(self, source: str):
+    A key path whose value came from an override (``origins``: ``"[scale].ID"``
+    -> ``"--scale ID=1.2"``) is reported under that origin instead:
+    ``--scale ID=1.2: message``.
+    """
+
+    def __init__(self, source: str, origins: Mapping[str, str] | None = None):
         self.source = source
+        self.origins = dict(origins or {})
         self.messages: list[str] = []
 
+    def at(self, where: str) -> str:
+        """``source: where``, or the override the value at ``where`` came from."""
+        for path, label in self.origins.items():
+            if where == path:
+                return label
+            if where.startswith(path) and where[len(path)] in ".[":
+                return f"{label}: {where[len(path):].lstrip('.')}"
+            if path.startswith(f"{where}."):      # e.g. an unknown [section] the override made
+                return label
+        return f"{self.source}: {where}"
+
     def add(self, where: str, message: str) -> None:
-        self.messages.append(f"{self.source}: {where}: {message}")
+        self.messages.append(f"{self.at(where)}: {message}")
 
     def add_unit_error(self, exc: UnitError) -> None:
         self.messages.append(str(exc))
@@ -260,7 +293,7 @@ class _Errors:
         raise ScenarioError(f"{len(self.messages)} problems in scenario {self.source}:\n{body}")
 
 
-def _override_target(key: str, source: str) -> tuple[str, str]:
+def _override_target(key: str, label: str) -> tuple[str, str]:
     if "." in key:
         section, name = key.split(".", 1)
         return section, name
@@ -270,10 +303,10 @@ def _override_target(key: str, source: str) -> tuple[str, str]:
     if len(owners) == 1:
         return owners[0], key
     if len(owners) > 1:
-        raise ScenarioError(f"{source}: override {key!r} is ambiguous; write one of "
+        raise ScenarioError(f"{label}: override {key!r} is ambiguous; write one of "
                             f"{', '.join(f'{s}.{key}' for s in owners)}")
     valid = sorted({k for keys in SCENARIO_KEYS.values() for k in keys})
-    raise ScenarioError(f"{source}: unknown override {key!r}; valid keys: {', '.join(valid)} "
+    raise ScenarioError(f"{label}: unknown override {key!r}; valid keys: {', '.join(valid)} "
                         f"(or 'section.key')")
 
 
@@ -293,7 +326,7 @@ def _check_keys(table: Mapping[str, Any], section: str, valid: tuple[str, ...], 
 def _quantity(value: Any, kind: str, where: str, err: _Errors, *,
               default_unit: str | None = None) -> float | None:
     try:
-        return parse_quantity(value, kind, default_unit=default_unit, where=f"{err.source}: {where}")
+        return parse_quantity(value, kind, default_unit=default_unit, where=err.at(where))
     except UnitError as exc:
         err.add_unit_error(exc)
         return None
@@ -393,8 +426,9 @@ def _longitude_check(v: float) -> str | None:
 
 
 def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
-           mechanism: Any, overrides: Mapping[str, Any]) -> Scenario:
-    err = _Errors(source)
+           mechanism: Any, overrides: Mapping[str, Any],
+           origins: Mapping[str, str] | None = None) -> Scenario:
+    err = _Errors(source, origins)
     sections = tuple(SCENARIO_KEYS) + _FREE_SECTIONS
     for name, value in data.items():
         if name not in sections:
@@ -527,7 +561,7 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         raw = solver["atol"]
         if isinstance(raw, str):
             try:
-                value, kind = parse_amount(raw, where=f"{source}: [solver].atol")
+                value, kind = parse_amount(raw, where=err.at("[solver].atol"))
                 if kind != "number_density":
                     err.add("[solver].atol", f"must be a number density (cm-3), got {raw!r}")
                 else:
@@ -590,7 +624,7 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         sulfate_surface_area=sulfate, albedo=float(albedo), initial=initial,
         rtol=float(rtol), atol=float(atol), solver_method=method, max_step_s=max_step,
         scale=scale, photolysis_method=phot_method,
-        overrides=dict(overrides), mechanism=mechanism,
+        overrides=dict(overrides), mechanism=mechanism, override_origins=dict(origins or {}),
         photolysis_cross_sections=user_spectra, ozone_column_follows_box=follows,
         ozone_loss_layer_depth_m=float(layer_depth))
 
@@ -668,7 +702,7 @@ def _initial(table: Mapping[str, Any], mechanism: Any, err: _Errors) -> dict[str
             err.add(where, "M is the air itself; its number density follows pressure and temperature")
             continue
         try:
-            value, kind = parse_amount(raw, where=f"{err.source}: {where}")
+            value, kind = parse_amount(raw, where=err.at(where))
         except UnitError as exc:
             err.add_unit_error(exc)
             continue

@@ -126,9 +126,9 @@ def test_with_overrides_revalidates_and_records():
     assert t.text == s.text
     assert t.overrides["run.duration"] == "6 h"
     assert s.duration_s == 2 * 86400.0            # the original is unchanged
-    with pytest.raises(ScenarioError, match=r"\[run\]\.duration: must be > 0"):
+    with pytest.raises(ScenarioError, match=r"^override run\.duration='0 s': must be > 0"):
         s.with_overrides(duration="0 s")
-    with pytest.raises(ScenarioError, match=r"\[scale\]\.nope: unknown reaction id"):
+    with pytest.raises(ScenarioError, match=r"^override scale\.nope=2\.0: unknown reaction id"):
         s.with_overrides(scale={"nope": 2.0})
     with pytest.raises(ScenarioError, match="ambiguous"):
         s.with_overrides(pressure="50 hPa")

@@ -126,9 +126,10 @@ def scenario_file(tmp_path):
     # was: no suggestion
     ("location.latitud=-60,-70", "unknown key 'location.latitud' - did you mean 'location.latitude'?"),
     # was: every member ran and failed, then "every member of the sweep failed"
-    ("scale.a_to_bb=1,2", "--vary scale.a_to_bb: s.toml: [scale].a_to_bb: unknown reaction id 'a_to_bb' "
-                          "- did you mean 'a_to_b'?"),
-    ("initial.AA=1ppbv,2ppbv", "--vary initial.AA: s.toml: [initial].AA: unknown species 'AA'"),
+    # (the error names the --vary item; it once named the file's [scale] as well, as if the
+    # typo were in the file)
+    ("scale.a_to_bb=1,2", "--vary scale.a_to_bb: unknown reaction id 'a_to_bb' - did you mean 'a_to_b'?"),
+    ("initial.AA=1ppbv,2ppbv", "--vary initial.AA: unknown species 'AA'"),
 ])
 def test_sweep_bad_vary_fails_before_any_member_runs(capsys, tmp_path, scenario_file, vary, expected):
     out = tmp_path / "sweep.nc"
@@ -222,3 +223,27 @@ def test_unreadable_amount_example_is_an_amount():
     from boxchem.units import parse_amount
     with pytest.raises(UnitError, match=r'\(e\.g\. "2\.8 ppmv"\)'):
         parse_amount("lots", where="[initial].O3")
+
+
+def test_run_scale_typo_names_the_option_not_the_file(capsys, scenario_file):
+    # was: "s.toml: [scale].a_to_bb: unknown reaction id ..." for a typo on the command line
+    err = cli_error(capsys, ["run", str(scenario_file), "--scale", "a_to_bb=1.2", "-q",
+                             "-o", str(scenario_file.with_suffix(".nc"))])
+    assert "--scale a_to_bb=1.2: unknown reaction id 'a_to_bb' - did you mean 'a_to_b'?" in err
+    assert "s.toml" not in err
+
+
+def test_run_set_errors_name_the_option(capsys, scenario_file):
+    err = cli_error(capsys, ["run", str(scenario_file), "--set", 'run.duration="-2 h"',
+                             "--set", "location.latitud=-60", "--set", 'environment.temperature="5 C"',
+                             "-q"])
+    assert '--set run.duration="-2 h": must be > 0' in err
+    assert "--set location.latitud=-60: unknown key 'latitud' - did you mean 'latitude'?" in err
+    assert "--set environment.temperature=\"5 C\": unknown temperature unit 'C'" in err
+    assert "s.toml: [" not in err
+
+
+def test_sweep_member_value_error_names_the_vary_item(scenario_file):
+    from boxchem.analysis.sweep import run_member
+    with pytest.raises(ScenarioError, match=r"^--vary location\.latitude=-95: "):
+        run_member(str(scenario_file), {"location.latitude": -95})

@@ -89,14 +89,19 @@ def _check_keys(keys) -> None:
                              f"scale.<reaction id>, initial.<species>, {TEMPERATURE_OFFSET_KEY}")
 
 
+def vary_label(key: str, value: Any | None = None) -> str:
+    """How errors name one varied value: ``--vary location.latitude=-95``."""
+    return f"--vary {key}" if value is None else f"--vary {key}={value}"
+
+
 def _offset_kelvin(value: Any) -> float:
     text = str(value).strip()
     text = text[:-1].strip() if text.endswith("K") else text
     try:
         return float(text)
     except ValueError:
-        raise ScenarioError(f"{TEMPERATURE_OFFSET_KEY}: cannot read {value!r} as kelvin; "
-                            f"write e.g. -2 or \"-2 K\"") from None
+        raise ScenarioError(f"{vary_label(TEMPERATURE_OFFSET_KEY, value)}: cannot read {value!r} as "
+                            f"kelvin; write e.g. -2 or \"-2 K\"") from None
 
 
 def apply_temperature_offset(scenario, offset_k: float):
@@ -104,14 +109,15 @@ def apply_temperature_offset(scenario, offset_k: float):
     from ..scenario import TimeSeriesSpec
     t = scenario.temperature
     if t is None:
-        raise ScenarioError(f"{scenario.source}: {TEMPERATURE_OFFSET_KEY} needs [environment].temperature "
-                            "in the scenario (it has none: trajectory or standard atmosphere)")
+        raise ScenarioError(f"{vary_label(TEMPERATURE_OFFSET_KEY)}: needs [environment].temperature in "
+                            f"{scenario.source} (it has none: trajectory or standard atmosphere)")
     if isinstance(t, TimeSeriesSpec):
         new = TimeSeriesSpec(t.times_s, np.asarray(t.values, dtype=float) + offset_k)
     else:
         new = float(t) + offset_k
     if np.any(np.asarray(new.values if isinstance(new, TimeSeriesSpec) else new) <= 0):
-        raise ScenarioError(f"{TEMPERATURE_OFFSET_KEY}={offset_k}: temperature would fall to 0 K or below")
+        raise ScenarioError(f"{vary_label(TEMPERATURE_OFFSET_KEY, offset_k)}: temperature would fall "
+                            f"to 0 K or below")
     overrides = dict(scenario.overrides)
     overrides[TEMPERATURE_OFFSET_KEY] = offset_k
     return dataclasses.replace(scenario, temperature=new, overrides=overrides)
@@ -121,13 +127,15 @@ def run_member(scenario: str, assignment: Mapping[str, Any]) -> xr.Dataset:
     """Run one member: the scenario with ``assignment`` (key path -> value) applied."""
     from ..runner import run
     from ..scenario import load_scenario
-    scale = {k.split(".", 1)[1]: float(v) for k, v in assignment.items() if k.startswith("scale.")}
+    scale = {k.split(".", 1)[1]: v for k, v in assignment.items() if k.startswith("scale.")}
     initial = {k.split(".", 1)[1]: v for k, v in assignment.items() if k.startswith("initial.")}
     overrides = {k: v for k, v in assignment.items()
                  if not k.startswith(("scale.", "initial.")) and k != TEMPERATURE_OFFSET_KEY}
     if initial:
         overrides["initial"] = initial
-    scn = load_scenario(scenario).with_overrides(scale=scale or None, **overrides)
+    # errors in a member's values name the --vary item, not the scenario file
+    origins = {k: vary_label(k, v) for k, v in assignment.items()}
+    scn = load_scenario(scenario).with_overrides(scale=scale or None, origins=origins, **overrides)
     if TEMPERATURE_OFFSET_KEY in assignment:
         scn = apply_temperature_offset(scn, _offset_kelvin(assignment[TEMPERATURE_OFFSET_KEY]))
     return run(scn, progress=False)

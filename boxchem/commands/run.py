@@ -117,11 +117,17 @@ def main(args) -> int:
 
     wall0 = time.perf_counter()
     scale = parse_scale(args.scale)
-    overrides = {k: _toml_value(v) for k, v in parse_assignments(args.overrides, "--set").items()}
+    settings = parse_assignments(args.overrides, "--set")
+    overrides = {k: _toml_value(v) for k, v in settings.items()}
+    # errors in these values name the option they came from, not the scenario file
+    origins = {f"scale.{k}": f"--scale {k}={v}" for k, v in parse_assignments(args.scale, "--scale").items()}
+    origins.update({k: f"--set {k}={v}" for k, v in settings.items()})
     scenario = load_scenario(args.scenario)
+    if scale or overrides:
+        scenario = scenario.with_overrides(scale=scale or None, origins=origins, **overrides)
     out = Path(args.output) if args.output else default_output(args.scenario)
     try:
-        ds = run(scenario, scale=scale or None, progress=not args.quiet, **overrides)
+        ds = run(scenario, progress=not args.quiet)
     except IntegrationError as exc:
         partial = exc.partial_result
         if partial is not None:

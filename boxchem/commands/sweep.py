@@ -70,7 +70,7 @@ def check_vary(scenario: str, vary) -> None:
     """
     import difflib
 
-    from ..analysis.sweep import TEMPERATURE_OFFSET_KEY
+    from ..analysis.sweep import TEMPERATURE_OFFSET_KEY, vary_label
     from ..errors import BoxchemError
     from ..scenario import SCENARIO_KEYS, load_scenario
 
@@ -86,10 +86,9 @@ def check_vary(scenario: str, vary) -> None:
                                    f"scale.<reaction id>, initial.<species>")
             continue
         base = base or load_scenario(scenario)
-        try:   # neutral values: only the reaction id or species name is checked here
-            if section == "scale":
-                base.with_overrides(scale={name: 1.0})
-            else:
-                base.with_overrides(initial={name: "0 ppbv"})
-        except BoxchemError as exc:
-            raise BoxchemError(f"--vary {key}: {exc}") from None
+        # neutral values: only the reaction id or species name is checked here
+        origins = {key: vary_label(key)}
+        if section == "scale":
+            base.with_overrides(scale={name: 1.0}, origins=origins)
+        else:
+            base.with_overrides(initial={name: "0 ppbv"}, origins=origins)
