@@ -247,3 +247,13 @@ def test_sweep_member_value_error_names_the_vary_item(scenario_file):
     from boxchem.analysis.sweep import run_member
     with pytest.raises(ScenarioError, match=r"^--vary location\.latitude=-95: "):
         run_member(str(scenario_file), {"location.latitude": -95})
+
+
+@pytest.mark.parametrize("source, expected", [
+    # was: "--day belongs to the scenario form ..., not 'polar-sprin'" with no suggestion
+    ("polar-sprin", "did you mean 'polar-spring' (a shipped scenario)?"),
+    ("stratosfere", "did you mean 'stratosphere' (a shipped mechanism)?"),
+])
+def test_jvalues_misspelt_source_suggests_the_closest_shipped_name_of_either_kind(capsys, source, expected):
+    err = cli_error(capsys, ["jvalues", source, "--day", "2026-09-15"])
+    assert f"no shipped mechanism or scenario named {source!r} - {expected}" in err

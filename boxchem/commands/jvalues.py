@@ -105,7 +105,34 @@ def is_scenario(source: str) -> bool:
     return text in shipped_names("scenarios") and text not in shipped_names("mechanisms")
 
 
+def check_source_name(source: str) -> None:
+    """Refuse a bare SOURCE that names no file and no shipped mechanism or scenario.
+
+    The command takes either kind, so the suggestion is the closest shipped
+    name of either kind (``polar-sprin`` -> the scenario ``polar-spring``).
+    """
+    import difflib
+    from pathlib import Path
+
+    from ..resources import shipped_names
+    text = str(source)
+    if Path(text).suffix or "/" in text or "\\" in text or Path(text).expanduser().exists():
+        return
+    kinds = {name: "mechanism" for name in shipped_names("mechanisms")}
+    kinds.update({name: "scenario" for name in shipped_names("scenarios") if name not in kinds})
+    if text in kinds:
+        return
+    close = difflib.get_close_matches(text, list(kinds), n=1)
+    hint = (f" - did you mean {close[0]!r} (a shipped {kinds[close[0]]})?" if close else
+            f"; shipped mechanisms: {', '.join(shipped_names('mechanisms'))}; shipped scenarios: "
+            f"{', '.join(shipped_names('scenarios'))}")
+    raise BoxchemError(f"no file {text!r} and no shipped mechanism or scenario named "
+                       f"{text!r}{hint}")
+
+
 def run(args) -> int:
+    if args.mechanism and not args.cross_section:
+        check_source_name(args.mechanism)
     if args.mechanism and not args.cross_section and is_scenario(args.mechanism):
         return _run_scenario_day(args)
     for key, value in _GEOMETRY_DEFAULTS.items():
