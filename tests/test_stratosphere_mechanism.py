@@ -223,7 +223,7 @@ def test_photolysis_uses_shared_data_names_and_has_fallbacks(mech):
 def test_heterogeneous_reactions_on_both_surfaces(mech):
     surf = {r.id: r for r in mech.reactions if r.law == "surface"}
     pairs = {("ClONO2", "HCl"), ("ClONO2", "H2O"), ("HOCl", "HCl"), ("N2O5", "H2O"),
-             ("N2O5", "HCl"), ("BrONO2", "H2O"), ("HOBr", "HCl")}
+             ("N2O5", "HCl"), ("BrONO2", "H2O"), ("BrONO2", "HCl"), ("HOBr", "HCl")}
     found = {(r.reactants[0].species, r.reactants[1].species) for r in surf.values()}
     assert pairs == found
     assert {r.parameters["on"] for r in surf.values()} == {"psc", "sulfate", "all"}
@@ -232,6 +232,7 @@ def test_heterogeneous_reactions_on_both_surfaces(mech):
     assert prods["het_clono2_hcl_psc"] == ["Cl2", "HNO3"]
     assert prods["het_n2o5_h2o_sa"] == ["HNO3", "HNO3"]
     assert prods["het_hobr_hcl"] == ["BrCl", "H2O"]
+    assert prods["het_brono2_hcl_psc"] == ["BrCl", "HNO3"]
     # k = gamma v S / 4 with v = sqrt(8RT/(pi M)): N2O5 on 1e-8 cm2 cm-3 sulfate at 200 K
     # (kinetic theory of gases, common practice); M(N2O5) = 108.01 g mol-1 (IUPAC atomic weights)
     k = RateEvaluator(mech).surface(200.0, 0.0, 1e-8)
@@ -239,6 +240,24 @@ def test_heterogeneous_reactions_on_both_surfaces(mech):
     i = mech.reaction_ids.index("het_n2o5_h2o_sa")
     assert k[i] == approx0(0.1 * v * 1e-8 / 4, rel=1e-3)
     assert k[mech.reaction_ids.index("het_n2o5_h2o_psc")] == 0.0
+
+
+def test_brono2_hcl_uptake_on_psc_only(mech):
+    # BrONO2 + HCl -> BrCl + HNO3, gamma = 0.3 on ice (JPL 19-5 Table 5, recalled from
+    # memory; Hanson, D. R. and Ravishankara, A. R. (1992) measured it); no sulfate twin
+    r = mech.reaction("het_brono2_hcl_psc")
+    assert r.parameters["on"] == "psc"
+    assert r.parameters["gamma"] == approx0(0.3)
+    assert [x.id for x in mech.reactions
+            if x.law == "surface" and [t.species for t in x.reactants] == ["BrONO2", "HCl"]] == [r.id]
+    # k = gamma v S / 4, v = sqrt(8RT/(pi M)) (kinetic theory of gases, common practice);
+    # M(BrONO2) = 79.904 + 14.007 + 3 x 15.999 = 141.908 g mol-1 (IUPAC atomic weights, recalled)
+    ev = RateEvaluator(mech)
+    i = mech.reaction_ids.index(r.id)
+    for T in (195.0, 200.0):
+        v = math.sqrt(8 * 8.314462618 * T / (math.pi * 0.141908)) * 100.0  # cm s-1
+        assert ev.surface(T, 1e-8, 0.0)[i] == approx0(0.3 * v * 1e-8 / 4, rel=1e-3)
+        assert ev.surface(T, 0.0, 1e-8)[i] == 0.0  # sulfate area alone: no uptake
 
 
 # ---------------------------------------------------------------- rate coefficients
@@ -269,6 +288,62 @@ def test_bimolecular_rates_against_jpl(k_at, rid, A, E_over_R, k298_table):
     assert k_at[rid][0] == approx0(k298_table, rel=0.04)
     # at 195 K: recomputed from the same recalled parameters
     assert k_at[rid][1] == approx0(A * math.exp(-E_over_R / 195.0), rel=1e-6)
+
+
+# Reactions added after review 2026-12, checked at 298 K and 200 K (the cold end of
+# the polar lower stratosphere).  (id, A, E/R, f298, g, tabulated k(298) or None):
+# JPL 19-5 Table 1, all recalled from memory.
+ADDED_CHECKS = [
+    ("oh_cl2", 2.6e-12, 1100.0, 1.2, 100.0, 6.5e-14),     # OH + Cl2 -> HOCl + Cl
+    ("h_ho2_c", 1.6e-12, 0.0, 2.0, 50.0, 1.6e-12),        # H + HO2 -> H2O + O
+    ("o1d_hcl_a", 0.67 * 1.5e-10, 0.0, 1.2, 0.0, None),   # O(1D) + HCl -> OH + Cl (branching 0.67)
+    ("o1d_hcl_b", 0.24 * 1.5e-10, 0.0, 1.2, 0.0, None),   # O(1D) + HCl -> H + ClO (branching 0.24)
+    ("o1d_hcl_c", 0.09 * 1.5e-10, 0.0, 1.2, 0.0, None),   # O(1D) + HCl -> O(3P) + HCl (0.09)
+]
+
+
+@pytest.fixture(scope="module")
+def k_298_200(mech):
+    """k of every thermal reaction at 298 K and 200 K, 50 hPa: dict id -> array(2)."""
+    T = np.array([298.0, 200.0])
+    k = RateEvaluator(mech).thermal(T, air_density(T))
+    return {rid: k[:, i] for i, rid in enumerate(mech.reaction_ids)}
+
+
+@pytest.mark.parametrize("rid, A, E_over_R, f298, g, k298_table", ADDED_CHECKS)
+def test_added_gas_phase_rates_against_jpl(mech, k_298_200, rid, A, E_over_R, f298, g, k298_table):
+    # source: JPL 19-5 Table 1 (A, E/R, f298, g and k(298) recalled from memory)
+    assert k_298_200[rid][0] == approx0(A * math.exp(-E_over_R / 298.0), rel=1e-6)
+    assert k_298_200[rid][1] == approx0(A * math.exp(-E_over_R / 200.0), rel=1e-6)
+    if k298_table is not None:  # tabulated to two figures
+        assert k_298_200[rid][0] == approx0(k298_table, rel=0.04)
+    r = mech.reaction(rid)
+    assert (r.f298, r.g) == (approx0(f298), approx0(g))
+
+
+def test_oh_cl2_slow_in_the_cold(k_298_200):
+    # OH + Cl2 at 200 K: 2.6e-12 exp(-1100/200) = 1.06e-14 cm3 s-1, hand calculation
+    # from JPL 19-5 Table 1 (recalled from memory)
+    assert k_298_200["oh_cl2"][1] == approx0(1.06e-14, rel=0.01)
+
+
+def test_h_ho2_channels_sum_to_the_evaluated_total(k_298_200):
+    # JPL 19-5 Table 1 (recalled from memory): H + HO2 -> OH + OH 7.2e-11, -> H2 + O2 6.9e-12,
+    # -> H2O + O 1.6e-12, each T-independent; total 8.1e-11, branching 0.89 / 0.09 / 0.02
+    total = k_298_200["h_ho2_a"] + k_298_200["h_ho2_b"] + k_298_200["h_ho2_c"]
+    assert total == approx0(np.full(2, 8.1e-11), rel=0.01)
+    assert k_298_200["h_ho2_a"] / total == approx0(np.full(2, 0.89), rel=0.02)
+    assert k_298_200["h_ho2_b"] / total == approx0(np.full(2, 0.085), rel=0.03)
+    assert k_298_200["h_ho2_c"] / total == approx0(np.full(2, 0.02), rel=0.03)
+
+
+def test_o1d_hcl_channels_sum_to_the_evaluated_total(k_298_200):
+    # JPL 19-5 Table 1 (recalled from memory): O(1D) + HCl -> products 1.5e-10, no T
+    # dependence; the three channels add up to it
+    total = k_298_200["o1d_hcl_a"] + k_298_200["o1d_hcl_b"] + k_298_200["o1d_hcl_c"]
+    assert total == approx0(np.full(2, 1.5e-10), rel=1e-6)
+    # OH + Cl is the dominant channel (JPL 19-5 note, recalled from memory)
+    assert np.all(k_298_200["o1d_hcl_a"] > 0.5 * total)
 
 
 def test_o_o2_m_termolecular_low_pressure_form(mech, k_at):
