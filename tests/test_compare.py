@@ -67,7 +67,7 @@ def test_budget_cli(files, capsys):
 
 @pytest.mark.parametrize("argv, message", [
     (["budget", "{dir}/missing.nc"], "no such file"),
-    (["budget", "{junk}"], "cannot be read as netCDF"),
+    (["budget", "{junk}"], "not a netCDF file"),
     (["budget", "{plain}"], "not a boxchem result"),
     (["budget", "{base}", "--family", "Oy"], "unknown family"),
     (["budget", "{base}", "--species", "XY"], "unknown species"),

@@ -41,6 +41,9 @@ def open_result(path: str | Path) -> xr.Dataset:
     path = Path(path)
     if not path.exists():
         raise ResultError(f"{path}: no such file (expected a netCDF file written by 'boxchem run')")
+    if path.is_dir() or not _looks_like_netcdf(path):
+        raise ResultError(f"{path}: not a netCDF file (boxchem results are written by "
+                          f"'boxchem run ... -o OUT.nc')")
     try:
         ds = xr.load_dataset(path)
     except Exception as exc:  # netCDF4/h5 raise many kinds; the message is what matters
@@ -54,6 +57,26 @@ def open_result(path: str | Path) -> xr.Dataset:
             f"(a result has {', '.join(CORE_VARIABLES)} over time; write one with 'boxchem run')")
     ds.attrs.setdefault("source_file", str(path))
     return ds
+
+
+#: file signatures: netCDF classic ("CDF" + version byte 1, 2 or 5; Unidata, "The NetCDF
+#: Classic Format Specification") and HDF5, the container of netCDF-4 (the HDF Group,
+#: "HDF5 File Format Specification", superblock signature at byte 0, 512, 1024, 2048, ...)
+_CLASSIC_SIGNATURES = (b"CDF\x01", b"CDF\x02", b"CDF\x05")
+_HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+_HDF5_OFFSETS = (0, 512, 1024, 2048, 4096)
+
+
+def _looks_like_netcdf(path: Path) -> bool:
+    """True if the file starts like netCDF classic or netCDF-4 (HDF5); unreadable files pass."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(_HDF5_OFFSETS[-1] + len(_HDF5_SIGNATURE))
+    except OSError:
+        return True     # let the reader report why it cannot be opened
+    if head[:4] in _CLASSIC_SIGNATURES:
+        return True
+    return any(head[o:o + len(_HDF5_SIGNATURE)] == _HDF5_SIGNATURE for o in _HDF5_OFFSETS)
 
 
 def require(ds: xr.Dataset, names, what: str) -> None:
