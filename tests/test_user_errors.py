@@ -257,3 +257,31 @@ def test_sweep_member_value_error_names_the_vary_item(scenario_file):
 def test_jvalues_misspelt_source_suggests_the_closest_shipped_name_of_either_kind(capsys, source, expected):
     err = cli_error(capsys, ["jvalues", source, "--day", "2026-09-15"])
     assert f"no shipped mechanism or scenario named {source!r} - {expected}" in err
+
+
+def test_budget_of_a_non_netcdf_file_says_so_without_xarray_internals(capsys, scenario_file):
+    # was: "did not find a match in any of xarray's currently installed IO backends ..."
+    for command in (["budget", str(scenario_file)], ["compare", str(scenario_file), str(scenario_file)],
+                    ["plot", str(scenario_file)]):
+        err = cli_error(capsys, command)
+        assert (f"{scenario_file}: not a netCDF file (boxchem results are written by "
+                f"'boxchem run ... -o OUT.nc')") in err
+        assert "xarray" not in err and "backends" not in err
+
+
+def test_budget_cycle_table_dashes_line_up_with_its_columns():
+    # was: an empty second column left a 4-space gap after the dashes under "cycle"
+    import re
+
+    from boxchem.commands.budget import render_text
+    records = [{"section": "cycle", "period": "run", "term": name, "equation": "", "value": value,
+                "units": "cm-3 s-1", "fraction": value / 30.0, "accumulated_percent": 1.5}
+               for name, value in (("clo_dimer", 20.0), ("unattributed", 8.0), ("total", 30.0))]
+    lines = render_text(records, "Ox", "x.nc", "recycled").splitlines()
+    header = next(i for i, line in enumerate(lines) if line.lstrip().startswith("cycle"))
+    dashes = lines[header + 1]
+    assert re.fullmatch(r"  -+(  -+)*", dashes), dashes
+    # every column's dashes start where its header starts
+    starts = [m.start() for m in re.finditer(r"-+", dashes)]
+    title = lines[header]
+    assert starts == [title.index(h) for h in ("cycle", "mean", "% of total", "accumulated")]

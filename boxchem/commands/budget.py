@@ -115,9 +115,9 @@ def render_text(records: list[dict], name: str, source: str, basis: str) -> str:
                                     f"\nLargest {kind} terms of {name} (time mean over the run)"))
     cyc = [r for r in records if r["section"] == "cycle"]
     if cyc:
-        rows = [[r["term"], "", f"{r['value']:.3e}", f"{100 * r['fraction']:.1f}", f"{r['accumulated_percent']:.2f}"]
+        rows = [[r["term"], f"{r['value']:.3e}", f"{100 * r['fraction']:.1f}", f"{r['accumulated_percent']:.2f}"]
                 for r in cyc]
-        out.append(format_table(["cycle", "", "mean [cm-3 s-1]", "% of total", "accumulated [% O3]"], rows,
+        out.append(format_table(["cycle", "mean [cm-3 s-1]", "% of total", "accumulated [% O3]"], rows,
                                 "\nLoss by catalytic cycle (unattributed = total - sum of cycles)"))
     daily = [r for r in records if r["section"] == "cycle_daily"]
     if daily:
