@@ -285,3 +285,28 @@ def test_budget_cycle_table_dashes_line_up_with_its_columns():
     starts = [m.start() for m in re.finditer(r"-+", dashes)]
     title = lines[header]
     assert starts == [title.index(h) for h in ("cycle", "mean", "% of total", "accumulated")]
+
+
+def test_every_option_with_a_default_states_it_in_help():
+    # was: "boxchem compare --help" did not say that --top lists 10 (nor --format text)
+    import argparse
+
+    from boxchem.cli import build_parser
+    parser = build_parser()
+    commands = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction)).choices
+    silent = []
+    for name, sub in commands.items():
+        for action in sub._actions:
+            if not action.option_strings or isinstance(action, argparse._HelpAction) or action.required:
+                continue
+            if action.default in (None, False, [], argparse.SUPPRESS):
+                continue        # off / empty unless given: nothing to state
+            if "default" not in (action.help or ""):
+                silent.append(f"{name} {action.option_strings[-1]}")
+    assert not silent, f"options whose --help does not state the default: {silent}"
+
+
+def test_plot_help_lists_the_species_plotted_by_default():
+    from boxchem.commands.plot import DEFAULT_SPECIES as listed
+    from boxchem.plotting import DEFAULT_SPECIES
+    assert tuple(listed) == tuple(DEFAULT_SPECIES)

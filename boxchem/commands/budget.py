@@ -27,13 +27,13 @@ def register(subparsers) -> None:
     p.add_argument("result", metavar="OUT.nc", help="netCDF file written by 'boxchem run'")
     who = p.add_mutually_exclusive_group()
     who.add_argument("--family", default=None, help="family to budget (default Ox)")
-    who.add_argument("--species", default=None, help="budget one species instead of a family")
+    who.add_argument("--species", default=None, help="budget one species instead of a family (default: none, the family)")
     p.add_argument("--period", choices=("total", "daily", "all"), default="total",
                    help="whole run, per UTC day, or both (default total)")
     p.add_argument("--top", type=int, default=8, metavar="N", help="terms per table (default 8)")
     p.add_argument("--basis", choices=("recycled", "gross", "net"), default="recycled",
                    help="definition of the total Ox loss (default recycled; docs/diagnostics.md)")
-    p.add_argument("--format", choices=("text", "csv"), default="text", help="output format")
+    p.add_argument("--format", choices=("text", "csv"), default="text", help="output format (default text)")
     p.set_defaults(func=run)
 
 

@@ -37,9 +37,9 @@ def register(subparsers) -> None:
     p.add_argument("--species", nargs="+", default=None, metavar="X",
                    help=f"species to list (default those of {' '.join(DEFAULT_SPECIES)} present)")
     p.add_argument("--family", default="Ox", help="family whose loss is split by cycle (default Ox)")
-    p.add_argument("--top", type=int, default=10, metavar="N", help="reaction-rate changes to list")
+    p.add_argument("--top", type=int, default=10, metavar="N", help="reaction-rate changes to list (default 10)")
     p.add_argument("--plot", default=None, metavar="FILE", help="also write a figure (.png or .pdf)")
-    p.add_argument("--format", choices=("text", "csv"), default="text", help="output format")
+    p.add_argument("--format", choices=("text", "csv"), default="text", help="output format (default text)")
     p.set_defaults(func=run)
 
 

@@ -52,7 +52,8 @@ def register(subparsers) -> None:
                    help=f"output folder, new or empty (default: ./{DEFAULT_DIR_NAME}, or the "
                         "next free ./boxchem-demo-N)")
     p.add_argument("--days", type=float, default=None, metavar="N",
-                   help="run only the first N days (a shortened run for quick trials and tests)")
+                   help="run only the first N days (a shortened run for quick trials and tests; "
+                        "default: the whole scenario)")
     p.add_argument("--set", metavar="SECTION.KEY=VALUE", action="append", default=[],
                    dest="overrides", help="override a scenario value, as in 'boxchem run' (repeatable)")
     p.add_argument("--format", choices=("png", "pdf"), default="png", help="figure format (default png)")

@@ -60,8 +60,10 @@ def register(subparsers) -> None:
     p.add_argument("--reference", metavar="NAME",
                    help="with --cross-section: shipped data set to compare with (default: the file's "
                         "species, or the shipped name its file name starts with, e.g. Cl2O2_lab.csv -> Cl2O2)")
-    p.add_argument("--ozone-profile", default="midlatitude", choices=("midlatitude", "polar"))
-    p.add_argument("--format", choices=("text", "csv"), default="text")
+    p.add_argument("--ozone-profile", default="midlatitude", choices=("midlatitude", "polar"),
+                   help="shape of the ozone profile for the actinic flux, scaled to --ozone-column "
+                        "(mechanism and --cross-section forms; default midlatitude)")
+    p.add_argument("--format", choices=("text", "csv"), default="text", help="output format (default text)")
     p.add_argument("--fit-lmn", action="store_true",
                    help="also fit l m n of J = l cos^m exp(-n sec) to J on a fine SZA grid")
     p.add_argument("--cross-section", metavar="FILE", help="a cross-section file (our format or a "

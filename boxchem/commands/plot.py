@@ -3,6 +3,8 @@ from __future__ import annotations
 
 import argparse
 
+from .compare import DEFAULT_SPECIES   # the same list as boxchem.plotting's (checked by a test)
+
 EXAMPLE = """examples:
   boxchem plot out.nc                          # PNG figures into ./out-plots/
   boxchem plot out.nc -o figs --species O3 ClO BrO --log --format pdf
@@ -22,7 +24,9 @@ def register(subparsers) -> None:
     p.add_argument("result", metavar="OUT.nc", help="netCDF file written by 'boxchem run'")
     p.add_argument("-o", "--output", default=None, metavar="DIR",
                    help="directory for the figures (default: OUT-plots next to the file)")
-    p.add_argument("--species", nargs="+", default=None, metavar="X", help="species of the mixing-ratio figure")
+    p.add_argument("--species", nargs="+", default=None, metavar="X",
+                   help="species of the mixing-ratio figure (default: those of "
+                        f"{' '.join(DEFAULT_SPECIES)} in the result)")
     p.add_argument("--log", action="store_true", help="mixing ratios on one logarithmic axis")
     p.add_argument("--format", choices=("png", "pdf"), default="png", help="file format (default png)")
     p.set_defaults(func=run)
