@@ -146,8 +146,9 @@ def test_check_strict_judges_the_users_file_not_the_included_shipped_one(capsys,
                     'clo_clo_m  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32 n=4.0 kinf=3.0e-12 m=1.5'
                     '  ref="invented test value"\n')
     assert main(["check", str(mine), "--strict"]) == 0
-    err = capsys.readouterr().err
-    assert "never produced" not in err and "included shipped mechanism not shown" in err
+    captured = capsys.readouterr()
+    assert "never produced" not in captured.err
+    assert "of the included shipped mechanism, not shown: see 'boxchem check stratosphere'" in captured.out
     # a warning in the user's own file is still shown, and is an error under --strict
     mine.write_text(mine.read_text() + "[reactions]\nclo_clo_2  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32"
                     " n=4.0 kinf=3.0e-12 m=1.5  ref=\"invented test value\"\n")
@@ -310,3 +311,18 @@ def test_plot_help_lists_the_species_plotted_by_default():
     from boxchem.commands.plot import DEFAULT_SPECIES as listed
     from boxchem.plotting import DEFAULT_SPECIES
     assert tuple(listed) == tuple(DEFAULT_SPECIES)
+
+
+def test_check_warning_count_matches_the_warnings_shown(capsys, tmp_path):
+    # was: "warnings: 6" with no warning shown (the count included the shipped file's)
+    import re
+    mine = tmp_path / "mine.mech"
+    mine.write_text('include "stratosphere"\n[species]\nXx lumped\n')     # one warning of its own
+    assert main(["check", str(mine)]) == 0
+    captured = capsys.readouterr()
+    shown = captured.err.count(": warning: ")
+    assert shown == 1 and "'Xx' takes part in no reaction" in captured.err
+    line = next(s for s in captured.out.splitlines() if s.strip().startswith("warnings:"))
+    match = re.fullmatch(r"\s*warnings:\s+(\d+) \(and (\d+) of the included shipped mechanism, not shown: "
+                         r"see 'boxchem check stratosphere'\)", line)
+    assert match and int(match.group(1)) == shown and int(match.group(2)) > 0, line

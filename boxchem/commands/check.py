@@ -28,8 +28,12 @@ def register(subparsers) -> None:
     p.set_defaults(func=run)
 
 
-def summary(mechanism: Mechanism) -> str:
-    """Counts of species (variable/fixed/lumped), reactions by law, families and cycles."""
+def summary(mechanism: Mechanism, hidden: tuple[int, str] = (0, "")) -> str:
+    """Counts of species (variable/fixed/lumped), reactions by law, families, cycles, warnings.
+
+    ``hidden`` is (number, what) of warnings not shown, e.g. (6, "boxchem check
+    stratosphere"): they are left out of the count and mentioned beside it.
+    """
     sp = mechanism.species
     n_fixed = sum(s.fixed for s in sp)
     n_lumped = sum(s.lumped for s in sp)
@@ -41,7 +45,9 @@ def summary(mechanism: Mechanism) -> str:
         f"  reactions: {len(mechanism.reactions)}" + (f" ({by_law})" if by_law else ""),
         f"  families:  {len(mechanism.families)}",
         f"  cycles:    {len(mechanism.cycles)}",
-        f"  warnings:  {len(mechanism.warnings)}",
+        f"  warnings:  {len(mechanism.warnings) - hidden[0]}"
+        + (f" (and {hidden[0]} of the included shipped mechanism, not shown: see '{hidden[1]}')"
+           if hidden[0] else ""),
     ])
 
 
@@ -69,15 +75,14 @@ def run(args) -> int:
     # shipped mechanism itself is checked, and never errors under --strict for
     # a user's file that includes it.
     own = [w for w in mechanism.warnings if checking_shipped or not _in_shipped_file(w)]
-    inherited = len(mechanism.warnings) - len(own)
+    inherited = [w for w in mechanism.warnings if w not in own]
+    shipped = sorted({Path(w.location.file).stem for w in inherited})
+    see = f"boxchem check {' '.join(shipped)}"
     if args.strict and own:
         raise MechanismError([dataclasses.replace(w, severity="error",
                                                   message=f"{w.message} (error under --strict)")
                               for w in own])
     for w in own:
         print(w.format(), file=sys.stderr)
-    if inherited:
-        print(f"note: {inherited} warning(s) of the included shipped mechanism not shown "
-              f"(see 'boxchem check' of that mechanism)", file=sys.stderr)
-    print(summary(mechanism))
+    print(summary(mechanism, (len(inherited), see)))
     return 0
