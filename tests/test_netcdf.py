@@ -96,8 +96,8 @@ def test_cli_run_quiet_and_output_option(tmp_path, capsys):
     (["run", "no-such-scenario"], "no shipped scenario named 'no-such-scenario'"),
     (["run", str(CHAIN), "--scale", "a_to_b"], "--scale 'a_to_b': expected KEY=VALUE"),
     (["run", str(CHAIN), "--scale", "a_to_b=fast"], "FACTOR must be a number"),
-    (["run", str(CHAIN), "--scale", "nope=2"], r"[scale].nope: unknown reaction id"),
-    (["run", str(CHAIN), "--set", 'run.duration="-1 d"'], "[run].duration: must be > 0"),
+    (["run", str(CHAIN), "--scale", "nope=2"], "--scale nope=2: unknown reaction id"),
+    (["run", str(CHAIN), "--set", 'run.duration="-1 d"'], '--set run.duration="-1 d": must be > 0'),
 ])
 def test_cli_input_errors_exit_2_with_message(argv, message, tmp_path, monkeypatch, capsys):
     monkeypatch.chdir(tmp_path)
