@@ -196,6 +196,20 @@ def _parse_term(cur: _Cursor, what: str) -> tuple[float, _Token, str]:
     return coef, tok, text
 
 
+def _parse_weighted_sum(cur: "_Cursor", what: str, between: str) -> dict[str, float]:
+    """Read ``[COEF*]NAME + [COEF*]NAME ...`` to the end of the line; repeated names add up."""
+    total: dict[str, float] = {}
+    while True:
+        coef, tok, _ = _parse_term(cur, what)
+        total[tok.text] = total.get(tok.text, 0.0) + coef
+        nxt = cur.peek()
+        if nxt is None:
+            return total
+        if nxt.kind != "plus":
+            raise _LineError(f"expected '+' between {between}, found {nxt.text!r}", nxt.column)
+        cur.take()
+
+
 def _fmt(x: float) -> str:
     return f"{x:g}"
 
@@ -416,16 +430,7 @@ class _Reader:
                                    m.group(1))
             return
         cur = _Cursor(_lex(line, eq + 1), len(line) + 1)
-        members: dict[str, float] = {}
-        while True:
-            coef, tok, _ = _parse_term(cur, "species")
-            members[tok.text] = members.get(tok.text, 0.0) + coef
-            nxt = cur.peek()
-            if nxt is None:
-                break
-            if nxt.kind != "plus":
-                raise _LineError(f"expected '+' between family members, found {nxt.text!r}", nxt.column)
-            cur.take()
+        members = _parse_weighted_sum(cur, "species", "family members")
         self.families[name] = (Family(name, MappingProxyType(members), None, floc), None)
 
     def _line_cycles(self, line: str, loc: SourceLocation) -> None:
@@ -439,16 +444,7 @@ class _Reader:
         if name in self.cycles:
             raise _LineError(f"cycle {name!r} is defined twice", lhs[0].column)
         cur = _Cursor(_lex(line, eq + 1), len(line) + 1)
-        terms: dict[str, float] = {}
-        while True:
-            coef, tok, _ = _parse_term(cur, "reaction id")
-            terms[tok.text] = terms.get(tok.text, 0.0) + coef
-            nxt = cur.peek()
-            if nxt is None:
-                break
-            if nxt.kind != "plus":
-                raise _LineError(f"expected '+' between cycle terms, found {nxt.text!r}", nxt.column)
-            cur.take()
+        terms = _parse_weighted_sum(cur, "reaction id", "cycle terms")
         self.cycles[name] = Cycle(name, family, MappingProxyType(terms),
                                   dc_replace(loc, column=lhs[0].column))
 
