@@ -196,7 +196,7 @@ def _parse_term(cur: _Cursor, what: str) -> tuple[float, _Token, str]:
     return coef, tok, text
 
 
-def _parse_weighted_sum(cur: "_Cursor", what: str, between: str) -> dict[str, float]:
+def _parse_weighted_sum(cur: _Cursor, what: str, between: str) -> dict[str, float]:
     """Read ``[COEF*]NAME + [COEF*]NAME ...`` to the end of the line; repeated names add up."""
     total: dict[str, float] = {}
     while True:
