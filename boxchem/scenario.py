@@ -11,6 +11,14 @@ All mistakes found in one file are collected and raised together as one
 :class:`~boxchem.errors.ScenarioError`; each line names the file and the key
 path (``stratosphere-box.toml: [environment].temperature: ...``), what was
 found and what would be valid.
+
+A file may build on another with a top-level ``extends = "polar-spring"``
+(a shipped name or a path relative to the file): the base is read first and
+the file's sections are merged over it key by key; ``remove = ["section.key",
+"section"]`` deletes keys of the base.  Chains are followed, cycles are
+errors, and every key remembers the file that wrote it, so that its errors
+name that file and relative paths in it are read against that file's
+folder.  Details in ``docs/scenarios.md`` ("Building on another scenario").
 """
 from __future__ import annotations
 
@@ -30,7 +38,8 @@ from .errors import BoxchemError, ScenarioError, UnitError
 from .units import parse_amount, parse_quantity
 
 __all__ = ["Scenario", "TimeSeriesSpec", "ThresholdRuleSpec", "load_scenario",
-           "SCENARIO_KEYS", "SOLVER_METHODS", "PHOTOLYSIS_METHODS"]
+           "split_scenario_text", "SCENARIO_KEYS", "SOLVER_METHODS", "PHOTOLYSIS_METHODS",
+           "EXTENDS_KEY", "REMOVE_KEY", "PROVENANCE_MARKER"]
 
 #: solver methods a scenario may name (see boxchem.solver)
 SOLVER_METHODS = ("rodas3", "ros3")
@@ -41,7 +50,7 @@ PHOTOLYSIS_METHODS = ("spectral", "parametric")
 SCENARIO_KEYS: dict[str, tuple[str, ...]] = {
     "run": ("mechanism", "start", "duration", "output_interval"),
     "location": ("latitude", "longitude", "altitude", "pressure"),
-    "environment": ("temperature", "pressure", "trajectory", "ozone_column",
+    "environment": ("temperature", "temperature_offset", "pressure", "trajectory", "ozone_column",
                     "psc_surface_area", "sulfate_surface_area", "albedo"),
     "solver": ("rtol", "atol", "method", "max_step"),
     "photolysis": ("method", "cross_sections", "ozone_column_follows_box",
@@ -50,6 +59,14 @@ SCENARIO_KEYS: dict[str, tuple[str, ...]] = {
 _FREE_SECTIONS = ("initial", "scale")
 _SERIES_KEYS = ("times", "values", "time_unit", "unit")
 _RULE_KEYS = ("rule", "area", "below", "width")
+
+#: top-level keys (not sections) of a file that builds on another scenario
+EXTENDS_KEY = "extends"
+REMOVE_KEY = "remove"
+#: keys whose values are file paths, read against the folder of the file that wrote them
+_PATH_KEYS = ("[run].mechanism", "[environment].trajectory", "[photolysis].cross_sections")
+#: line that starts each file's text in ``Scenario.text`` when a file extends others
+PROVENANCE_MARKER = "#>>> boxchem scenario file: "
 
 #: defaults (internal units); documented in docs/scenarios.md
 DEFAULT_OUTPUT_INTERVAL_S = 3600.0
@@ -139,6 +156,12 @@ class Scenario:
     #: key path ``"[section].key"`` -> where its overriding value came from (e.g.
     #: ``"--scale clo_clo_m=1.2"``), so that errors in it name that, not the file
     override_origins: Mapping[str, str] = field(default_factory=dict, repr=False, compare=False)
+    #: the files read, the given one first then its bases: ``((source, text), ...)``
+    layers: tuple[tuple[str, str], ...] = field(default=(), repr=False, compare=False)
+    #: key path (``"[initial].HCl"``, ``"[run]"``) -> file that wrote it, where not ``source``
+    key_sources: Mapping[str, str] = field(default_factory=dict, repr=False, compare=False)
+    #: path-valued key (``"[run].mechanism"``) -> folder its relative path is read against
+    key_dirs: Mapping[str, Path] = field(default_factory=dict, repr=False, compare=False)
 
     # -- construction ----------------------------------------------------------
     @classmethod
@@ -147,14 +170,17 @@ class Scenario:
         """Parse and validate TOML ``text``; relative paths are read against ``base_dir``.
 
         ``mechanism`` (a :class:`~boxchem.mechanism.model.Mechanism`) skips
-        loading the mechanism named in ``[run].mechanism``.
+        loading the mechanism named in ``[run].mechanism``.  A top-level
+        ``extends`` reads the base scenario(s) first and merges ``text`` over
+        them (module docstring); ``text`` of the result then holds every file
+        read, each after a :data:`PROVENANCE_MARKER` line.
         """
-        try:
-            data = tomllib.loads(text)
-        except tomllib.TOMLDecodeError as exc:
-            raise ScenarioError(_toml_error_message(exc, text, source)) from None
-        return _build(data, text=text, base_dir=Path(base_dir), source=source,
-                      mechanism=mechanism, overrides={})
+        base_dir = Path(base_dir)
+        own_path = base_dir / source
+        merged = _read_layers(text, base_dir, source, own_path if own_path.is_file() else None, ())
+        return _build(merged.data, text=merged.provenance_text(), base_dir=base_dir, source=source,
+                      mechanism=mechanism, overrides={}, layers=merged.layers,
+                      key_sources=merged.key_sources, key_dirs=merged.key_dirs)
 
     def with_overrides(self, *, scale: Mapping[str, float] | None = None,
                        origins: Mapping[str, str] | None = None, **overrides: Any) -> "Scenario":
@@ -176,8 +202,11 @@ class Scenario:
         data = copy.deepcopy(dict(self.data))
         record = dict(self.overrides)
         labels = dict(self.override_origins)
+        key_dirs = dict(self.key_dirs)
         for key, value in overrides.items():
             section, name = _override_target(key, origins.get(key, f"override {key}={value!r}"))
+            # an overriding path is read against the scenario's own folder, not a base's
+            key_dirs.pop(_where(section, name), None)
             label = origins.get(key, f"override {section}.{name}={value!r}")
             if value is None:
                 data.get(section, {}).pop(name, None)
@@ -202,7 +231,8 @@ class Scenario:
                     table[rid] = factor  # let validation report the bad value
                 record[f"scale.{rid}"] = factor
         return _build(data, text=self.text, base_dir=self.base_dir, source=self.source,
-                      mechanism=self.mechanism, overrides=record, origins=labels)
+                      mechanism=self.mechanism, overrides=record, origins=labels,
+                      layers=self.layers, key_sources=self.key_sources, key_dirs=key_dirs)
 
     # -- derived -----------------------------------------------------------------
     @property
@@ -251,6 +281,163 @@ def load_scenario(path_or_name: str | Path, *, mechanism: Any = None) -> Scenari
     return Scenario.from_text(text, base_dir=path.parent.resolve(), source=path.name, mechanism=mechanism)
 
 
+def split_scenario_text(text: str) -> list[tuple[str, str]]:
+    """``Scenario.text`` (or a result's ``scenario`` attribute) -> ``[(file name, file text), ...]``.
+
+    The text of a scenario that extends others holds each file read after a
+    :data:`PROVENANCE_MARKER` line, the given file first; written out under
+    their names in one folder (and with any ``extends`` path adjusted to that
+    folder) the files reproduce the scenario.  A text without markers is one
+    file: ``[("", text)]``.
+    """
+    if not text.startswith(PROVENANCE_MARKER):
+        return [("", text)]
+    out: list[tuple[str, list[str]]] = []
+    for line in text.splitlines(keepends=True):
+        if line.startswith(PROVENANCE_MARKER):
+            name = line[len(PROVENANCE_MARKER):].split(" (", 1)[0].strip()
+            out.append((name, []))
+        else:
+            out[-1][1].append(line)
+    return [(name, "".join(lines)) for name, lines in out]
+
+
+# ---------------------------------------------------------------------------
+# extends: reading a file and its bases, merging them
+# ---------------------------------------------------------------------------
+@dataclass
+class _Merged:
+    """A file merged over its bases, with the file that wrote each key."""
+
+    data: dict[str, Any]
+    #: ((source, text, note), ...), the given file first; note says how it was reached
+    files: tuple[tuple[str, str, str], ...]
+    key_sources: dict[str, str]
+    key_dirs: dict[str, Path]
+
+    @property
+    def layers(self) -> tuple[tuple[str, str], ...]:
+        return tuple((source, text) for source, text, _ in self.files)
+
+    def provenance_text(self) -> str:
+        """The file's own text, or every file read, each after a marker line."""
+        if len(self.files) == 1:
+            return self.files[0][1]
+        parts = []
+        for source, text, note in self.files:
+            parts.append(f"{PROVENANCE_MARKER}{source}{f' ({note})' if note else ''}\n")
+            parts.append(text if text.endswith("\n") else f"{text}\n")
+        return "".join(parts)
+
+
+def _parse_toml(text: str, source: str) -> dict[str, Any]:
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ScenarioError(_toml_error_message(exc, text, source)) from None
+
+
+def _record_keys(data: Mapping[str, Any], source: str, folder: Path,
+                 key_sources: dict[str, str], key_dirs: dict[str, Path]) -> None:
+    """Note ``source`` as the writer of every section and key in ``data``."""
+    for section, table in data.items():
+        key_sources[_where(section)] = source
+        if isinstance(table, Mapping):
+            for key in table:
+                key_sources[_where(section, key)] = source
+                if _where(section, key) in _PATH_KEYS:
+                    key_dirs[_where(section, key)] = folder
+
+
+def _read_layers(text: str, base_dir: Path, source: str, path: Path | None,
+                 chain: tuple[tuple[str, Path], ...], note: str = "") -> _Merged:
+    """``text`` merged over the scenario its ``extends`` names (recursively).
+
+    ``chain`` holds (source, resolved path) of the files that led here, to
+    detect cycles; ``path`` is this file's own path when it has one.
+    """
+    data = _parse_toml(text, source)
+    own = path.resolve() if path is not None else None
+    extends = data.pop(EXTENDS_KEY, None)
+    remove = data.pop(REMOVE_KEY, None)
+    if extends is None:
+        if remove is not None:
+            raise ScenarioError(f"{source}: {REMOVE_KEY}: only a file with '{EXTENDS_KEY} = ...' can "
+                                f"remove keys of its base; delete the line or add e.g. "
+                                f"{EXTENDS_KEY} = \"polar-spring\" before the first [section]")
+        key_sources: dict[str, str] = {}
+        key_dirs: dict[str, Path] = {}
+        _record_keys(data, source, base_dir, key_sources, key_dirs)
+        return _Merged(data, ((source, text, note),), key_sources, key_dirs)
+
+    if not isinstance(extends, str) or not extends.strip():
+        raise ScenarioError(f"{source}: {EXTENDS_KEY}: expected a shipped scenario name or a path "
+                            f"relative to this file, e.g. {EXTENDS_KEY} = \"polar-spring\", got {extends!r}")
+    from .resources import resolve
+    try:
+        base_path = resolve(extends, "scenarios", relative_to=base_dir).resolve()
+    except BoxchemError as exc:
+        raise ScenarioError(f"{source}: {EXTENDS_KEY}: {exc}") from None
+    visited = chain + (((source, own),) if own is not None else ())
+    if any(p == base_path for _, p in visited):
+        names = [str(p) for _, p in visited] + [str(base_path)]
+        first = names.index(str(base_path))
+        raise ScenarioError(f"{source}: {EXTENDS_KEY}: {extends!r} closes a cycle of extends: "
+                            f"{' -> '.join(names[first:])}; a scenario cannot build on itself, "
+                            f"directly or through its bases")
+    try:
+        base_text = base_path.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise ScenarioError(f"{source}: {EXTENDS_KEY}: cannot read {str(base_path)!r}: {exc}") from None
+    base = _read_layers(base_text, base_path.parent, base_path.name, base_path, visited,
+                        note=f"extended by {source} with {EXTENDS_KEY} = \"{extends}\"")
+
+    merged = base.data
+    _remove_keys(remove, merged, base, source)
+    for section, table in data.items():
+        if isinstance(table, Mapping) and isinstance(merged.get(section), Mapping):
+            merged[section] = {**merged[section], **table}     # a table replaces only the keys it gives
+        else:
+            merged[section] = table
+    _record_keys(data, source, base_dir, base.key_sources, base.key_dirs)
+    return _Merged(merged, ((source, text, note),) + base.files, base.key_sources, base.key_dirs)
+
+
+def _remove_keys(remove: Any, merged: dict[str, Any], base: _Merged, source: str) -> None:
+    """Apply ``remove = ["section.key", "section", ...]`` to the merged base (all errors at once)."""
+    if remove is None:
+        return
+    err = _Errors(source)
+    if not isinstance(remove, list):
+        err.add(REMOVE_KEY, f"expected a list of key paths, e.g. {REMOVE_KEY} = [\"initial.HNO3\", "
+                            f"\"environment.pressure\"], got {remove!r}")
+        err.raise_if_any()
+    base_name = base.files[0][0]
+    for i, item in enumerate(remove):
+        where = f"{REMOVE_KEY}[{i}]"
+        if not isinstance(item, str) or not item:
+            err.add(where, f"expected a key path string such as \"initial.HNO3\" or a section "
+                           f"such as \"scale\", got {item!r}")
+            continue
+        section, _, key = item.partition(".")
+        table = merged.get(section)
+        present = [f"{s}.{k}" for s, t in merged.items() if isinstance(t, Mapping) for k in t] + list(merged)
+        if table is None or (key and (not isinstance(table, Mapping) or key not in table)):
+            hint = difflib.get_close_matches(item, present, n=1)
+            extra = f" - did you mean {hint[0]!r}?" if hint else ""
+            err.add(where, f"{item!r} is not in the base {base_name} (or its bases){extra}")
+            continue
+        prefix = _where(section, key) if key else _where(section)
+        if key:
+            del table[key]
+        else:
+            del merged[section]
+        for mapping in (base.key_sources, base.key_dirs):
+            for path in [p for p in mapping if p == prefix or p.startswith(f"{prefix}.")]:
+                del mapping[path]
+    err.raise_if_any()
+
+
 # ---------------------------------------------------------------------------
 # validation
 # ---------------------------------------------------------------------------
@@ -262,13 +449,15 @@ class _Errors:
     ``--scale ID=1.2: message``.
     """
 
-    def __init__(self, source: str, origins: Mapping[str, str] | None = None):
+    def __init__(self, source: str, origins: Mapping[str, str] | None = None,
+                 key_sources: Mapping[str, str] | None = None):
         self.source = source
         self.origins = dict(origins or {})
+        self.key_sources = dict(key_sources or {})
         self.messages: list[str] = []
 
     def at(self, where: str) -> str:
-        """``source: where``, or the override the value at ``where`` came from."""
+        """``file: where`` (the file that wrote the key), or the override it came from."""
         for path, label in self.origins.items():
             if where == path:
                 return label
@@ -276,7 +465,16 @@ class _Errors:
                 return f"{label}: {where[len(path):].lstrip('.')}"
             if path.startswith(f"{where}."):      # e.g. an unknown [section] the override made
                 return label
-        return f"{self.source}: {where}"
+        return f"{self._writer(where)}: {where}"
+
+    def _writer(self, where: str) -> str:
+        """The file that wrote the longest key path containing ``where`` (``extends``)."""
+        best = ""
+        for path in self.key_sources:
+            if (where == path or (where.startswith(path) and where[len(path)] in ".[")) \
+                    and len(path) > len(best):
+                best = path
+        return self.key_sources[best] if best else self.source
 
     def add(self, where: str, message: str) -> None:
         self.messages.append(f"{self.at(where)}: {message}")
@@ -290,7 +488,9 @@ class _Errors:
         if len(self.messages) == 1:
             raise ScenarioError(self.messages[0])
         body = "\n".join(f"  {m}" for m in self.messages)
-        raise ScenarioError(f"{len(self.messages)} problems in scenario {self.source}:\n{body}")
+        bases = sorted(set(self.key_sources.values()) - {self.source})
+        via = f" (with its base{'s' if len(bases) > 1 else ''} {', '.join(bases)})" if bases else ""
+        raise ScenarioError(f"{len(self.messages)} problems in scenario {self.source}{via}:\n{body}")
 
 
 def _override_target(key: str, label: str) -> tuple[str, str]:
@@ -427,8 +627,13 @@ def _longitude_check(v: float) -> str | None:
 
 def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
            mechanism: Any, overrides: Mapping[str, Any],
-           origins: Mapping[str, str] | None = None) -> Scenario:
-    err = _Errors(source, origins)
+           origins: Mapping[str, str] | None = None,
+           layers: tuple[tuple[str, str], ...] = (),
+           key_sources: Mapping[str, str] | None = None,
+           key_dirs: Mapping[str, Path] | None = None) -> Scenario:
+    key_sources = {k: v for k, v in (key_sources or {}).items() if v != source}
+    key_dirs = dict(key_dirs or {})
+    err = _Errors(source, origins, key_sources)
     sections = tuple(SCENARIO_KEYS) + _FREE_SECTIONS
     for name, value in data.items():
         if name not in sections:
@@ -456,7 +661,8 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         else:
             from .resources import resolve
             try:
-                mechanism_path = resolve(run["mechanism"], "mechanisms", relative_to=base_dir)
+                mechanism_path = resolve(run["mechanism"], "mechanisms",
+                                         relative_to=key_dirs.get("[run].mechanism", base_dir))
             except BoxchemError as exc:
                 err.add("[run].mechanism", str(exc))
     start = None
@@ -514,7 +720,7 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         if not isinstance(env["trajectory"], str):
             err.add("[environment].trajectory", f"expected a file path, got {env['trajectory']!r}")
         else:
-            trajectory = (base_dir / env["trajectory"]).expanduser()
+            trajectory = (key_dirs.get("[environment].trajectory", base_dir) / env["trajectory"]).expanduser()
             if not trajectory.is_file():
                 err.add("[environment].trajectory", f"no file {str(trajectory)!r} (paths are "
                                                     "relative to the scenario file)")
@@ -538,6 +744,8 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
     if "temperature" in env:
         temperature = _series_or_value(env["temperature"], "temperature", "[environment].temperature",
                                        err, start=start, check=_positive("temperature", "K"))
+    if "temperature_offset" in env:
+        temperature = _temperature_offset(env, temperature, err)
     if "pressure" in env:
         pressure = _series_or_value(env["pressure"], "pressure", "[environment].pressure",
                                     err, start=start, check=_positive("pressure", "Pa"))
@@ -597,8 +805,8 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
             err.add("[run].mechanism", f"the mechanism {str(mechanism_path)!r} has errors:\n{exc}")
     initial = _initial(tables["initial"], mechanism, err)
     scale = _scale(tables["scale"], mechanism, err)
-    user_spectra = _cross_sections(phot.get("cross_sections", {}), mechanism, base_dir,
-                                   phot_method, err)
+    user_spectra = _cross_sections(phot.get("cross_sections", {}), mechanism,
+                                   key_dirs.get("[photolysis].cross_sections", base_dir), phot_method, err)
     follows = phot.get("ozone_column_follows_box", False)
     if not isinstance(follows, bool):
         err.add("[photolysis].ozone_column_follows_box", f"expected true or false, got {follows!r}")
@@ -626,7 +834,33 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         scale=scale, photolysis_method=phot_method,
         overrides=dict(overrides), mechanism=mechanism, override_origins=dict(origins or {}),
         photolysis_cross_sections=user_spectra, ozone_column_follows_box=follows,
-        ozone_loss_layer_depth_m=float(layer_depth))
+        ozone_loss_layer_depth_m=float(layer_depth),
+        layers=tuple(layers) or ((source, text),), key_sources=key_sources, key_dirs=key_dirs)
+
+
+def _temperature_offset(env: Mapping[str, Any], temperature: Any, err: _Errors) -> Any:
+    """``[environment].temperature`` shifted by ``temperature_offset`` [K] (constant or series)."""
+    where = "[environment].temperature_offset"
+    offset = _quantity(env["temperature_offset"], "temperature", where, err, default_unit="K")
+    if offset is None:
+        return temperature
+    if "temperature" not in env:
+        err.add(where, "needs [environment].temperature to shift (without it the temperature "
+                       "comes from the trajectory or the standard atmosphere); give a temperature, "
+                       "constant or a time series, or remove the offset")
+        return temperature
+    if temperature is None:          # the temperature itself has an error, reported already
+        return None
+    if isinstance(temperature, TimeSeriesSpec):
+        shifted: float | TimeSeriesSpec = TimeSeriesSpec(temperature.times_s, temperature.values + offset)
+        lowest = float(np.min(shifted.values))
+    else:
+        shifted = lowest = float(temperature) + offset
+    if lowest <= 0:
+        err.add(where, f"{env['temperature_offset']!r} takes the temperature to {lowest:g} K; "
+                       f"the shifted temperature must stay > 0 K")
+        return None
+    return shifted
 
 
 def _mechanism_loader():

@@ -15,7 +15,9 @@ Keys:
   :meth:`boxchem.scenario.Scenario.with_overrides` and validated like the file;
 * ``scale.<reaction id>``: a factor multiplied onto the scenario's ``[scale]``;
 * ``environment.temperature_offset``: kelvin added to the scenario's
-  temperature (constant or time series) after the other overrides.
+  temperature (constant or time series); a key of the scenario format like
+  any other (see docs/scenarios.md), so a varied value replaces an offset the
+  file gives rather than adding to it.
 
 When members start at different times (a ``run.start`` sweep), the time
 dimension becomes ``elapsed_time`` (since each member's start) and each
@@ -24,7 +26,6 @@ member's start is kept in ``start_time``.
 from __future__ import annotations
 
 import concurrent.futures as cf
-import dataclasses
 import itertools
 import os
 import sys
@@ -34,7 +35,7 @@ from typing import Any, Callable, Mapping, Sequence
 import numpy as np
 import xarray as xr
 
-from ..errors import BoxchemError, ScenarioError
+from ..errors import BoxchemError
 
 __all__ = ["SweepError", "parse_vary", "sweep_dim_name", "run_member", "run_sweep",
            "combine_members", "TEMPERATURE_OFFSET_KEY"]
@@ -81,12 +82,12 @@ def _check_keys(keys) -> None:
     from ..scenario import SCENARIO_KEYS
     for key in keys:
         section, name = key.split(".", 1)
-        if key == TEMPERATURE_OFFSET_KEY or section in ("scale", "initial"):
+        if section in ("scale", "initial"):
             continue
         if section not in SCENARIO_KEYS or name not in SCENARIO_KEYS[section]:
             valid = [f"{s}.{k}" for s, ks in SCENARIO_KEYS.items() for k in ks]
             raise SweepError(f"--vary: unknown key {key!r}; valid: {', '.join(valid)}, "
-                             f"scale.<reaction id>, initial.<species>, {TEMPERATURE_OFFSET_KEY}")
+                             f"scale.<reaction id>, initial.<species>")
 
 
 def vary_label(key: str, value: Any | None = None) -> str:
@@ -94,33 +95,14 @@ def vary_label(key: str, value: Any | None = None) -> str:
     return f"--vary {key}" if value is None else f"--vary {key}={value}"
 
 
-def _offset_kelvin(value: Any) -> float:
-    text = str(value).strip()
-    text = text[:-1].strip() if text.endswith("K") else text
-    try:
-        return float(text)
-    except ValueError:
-        raise ScenarioError(f"{vary_label(TEMPERATURE_OFFSET_KEY, value)}: cannot read {value!r} as "
-                            f"kelvin; write e.g. -2 or \"-2 K\"") from None
-
-
 def apply_temperature_offset(scenario, offset_k: float):
-    """The scenario with ``offset_k`` [K] added to its temperature (constant or series)."""
-    from ..scenario import TimeSeriesSpec
-    t = scenario.temperature
-    if t is None:
-        raise ScenarioError(f"{vary_label(TEMPERATURE_OFFSET_KEY)}: needs [environment].temperature in "
-                            f"{scenario.source} (it has none: trajectory or standard atmosphere)")
-    if isinstance(t, TimeSeriesSpec):
-        new = TimeSeriesSpec(t.times_s, np.asarray(t.values, dtype=float) + offset_k)
-    else:
-        new = float(t) + offset_k
-    if np.any(np.asarray(new.values if isinstance(new, TimeSeriesSpec) else new) <= 0):
-        raise ScenarioError(f"{vary_label(TEMPERATURE_OFFSET_KEY, offset_k)}: temperature would fall "
-                            f"to 0 K or below")
-    overrides = dict(scenario.overrides)
-    overrides[TEMPERATURE_OFFSET_KEY] = offset_k
-    return dataclasses.replace(scenario, temperature=new, overrides=overrides)
+    """The scenario with ``offset_k`` [K] as its ``[environment].temperature_offset``.
+
+    The offset is applied where the scenario file's own offset is, in
+    :mod:`boxchem.scenario`; errors name ``--vary environment.temperature_offset=...``.
+    """
+    return scenario.with_overrides(origins={TEMPERATURE_OFFSET_KEY: vary_label(TEMPERATURE_OFFSET_KEY, offset_k)},
+                                   **{TEMPERATURE_OFFSET_KEY: offset_k})
 
 
 def run_member(scenario: str, assignment: Mapping[str, Any]) -> xr.Dataset:
@@ -129,15 +111,12 @@ def run_member(scenario: str, assignment: Mapping[str, Any]) -> xr.Dataset:
     from ..scenario import load_scenario
     scale = {k.split(".", 1)[1]: v for k, v in assignment.items() if k.startswith("scale.")}
     initial = {k.split(".", 1)[1]: v for k, v in assignment.items() if k.startswith("initial.")}
-    overrides = {k: v for k, v in assignment.items()
-                 if not k.startswith(("scale.", "initial.")) and k != TEMPERATURE_OFFSET_KEY}
+    overrides = {k: v for k, v in assignment.items() if not k.startswith(("scale.", "initial."))}
     if initial:
         overrides["initial"] = initial
     # errors in a member's values name the --vary item, not the scenario file
     origins = {k: vary_label(k, v) for k, v in assignment.items()}
     scn = load_scenario(scenario).with_overrides(scale=scale or None, origins=origins, **overrides)
-    if TEMPERATURE_OFFSET_KEY in assignment:
-        scn = apply_temperature_offset(scn, _offset_kelvin(assignment[TEMPERATURE_OFFSET_KEY]))
     return run(scn, progress=False)
 
 
