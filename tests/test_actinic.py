@@ -14,12 +14,14 @@ from boxchem.units import DOBSON_UNIT_CM2
 def test_rayleigh_matches_bodhaine_fit():
     # Bodhaine et al. (1999) J. Atmos. Oceanic Technol. 16, 1854, Eq. (29): their fit of the
     # full formula for 360 ppm CO2, stated accurate to better than 0.01 % from 250 to 850 nm
-    # (fit coefficients recalled from memory)
-    wl = np.array([250.0, 300.0, 350.0, 400.0, 550.0, 700.0])
+    # (fit coefficients recalled from memory).  Checked on a 1 nm grid at the fit's stated
+    # accuracy: a slip of 1e-4 in the standard-air density N_s (sigma ~ 1/N_s^2) fails here;
+    # smaller slips are below what the published fit can resolve.
+    wl = np.arange(250.0, 850.1, 1.0)
     lam = wl * 1e-3
     fit = 1e-28 * (1.0455996 - 341.29061 * lam**-2 - 0.90230850 * lam**2) / (
         1.0 + 0.0027059889 * lam**-2 - 85.968563 * lam**2)
-    np.testing.assert_allclose(rayleigh_cross_section(wl), fit, rtol=2e-4)
+    np.testing.assert_allclose(rayleigh_cross_section(wl), fit, rtol=1e-4, atol=0)
     # 4.5e-27 cm2 at 550 nm (textbook value, recalled from memory)
     assert rayleigh_cross_section(550.0) == pytest.approx(4.51e-27, rel=0.01, abs=0)
 
@@ -74,7 +76,8 @@ def test_diffuse_light_is_positive_and_grows_with_albedo():
     vis = slice(200, None)
     assert np.all(s0[..., vis] > 0.0)
     assert np.all(s1[..., vis] > s0[..., vis])
-    np.testing.assert_allclose(d0, d1)
+    # the direct beam never meets the ground: it does not depend on the albedo (common practice, no source)
+    np.testing.assert_allclose(d0, d1, rtol=1e-12, atol=0)
 
 
 def test_surface_diffuse_fraction_pure_rayleigh():

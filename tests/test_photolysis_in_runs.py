@@ -179,7 +179,9 @@ def test_jvalues_scenario_form_csv_and_plot(tmp_path, capsys):
     # 70 S, 0 E, 15 September: sun far below the horizon at 00 UTC, up at 12 UTC
     # (solar geometry; pvlib reference below)
     assert float(midnight["j"]) == 0.0
-    assert float(noon["j"]) > 1e-3    # J(NO2) ~ 1e-2 s-1 in sunlight (recalled from memory)
+    # J(NO2) ~ 1e-2 s-1 in the sunlit lower stratosphere, nearly flat in SZA up to ~75 deg
+    # (typical published magnitude, recalled from memory); factor 3 each way (was only > 1e-3)
+    assert 3e-3 < float(noon["j"]) < 3e-2
     pvlib = pytest.importorskip("pvlib")
     ref = pvlib.solarposition.get_solarposition(pd.DatetimeIndex(["2026-09-15T12:00:00Z"]), -70.0, 0.0)
     # SZA against the NREL SPA of pvlib (Reda & Andreas 2004), geometric zenith

@@ -158,6 +158,19 @@ def test_horizon_dip_at_20_km():
     np.testing.assert_array_equal(is_sunlit([94.0, 94.6, 89.0], [20000.0, 20000.0, 0.0]), [True, False, True])
 
 
+def test_earth_radius_and_horizon_use_the_mean_earth_radius():
+    # The geometry (horizon, Chapman air mass, sunrise at the box) rests on one radius: the
+    # mean radius R1 = (2a + b)/3 = 6371008.7714 m of the Geodetic Reference System 1980
+    # (Moritz 2000, J. Geodesy 74, 128; recalled from memory).  The tests above take the
+    # radius from the module, so a wrong constant (e.g. the equatorial 6378137 m) would pass
+    # them; here it is pinned to the published value.
+    assert EARTH_RADIUS_M == pytest.approx(6371008.7714, rel=0, abs=0.1)
+    r1 = 6371008.7714
+    for z in (0.0, 10000.0, 20000.0, 30000.0):
+        # dip of the horizon: 90 deg + arccos(R/(R + z)) (spherical geometry; common practice, no source)
+        assert horizon_zenith_angle(z) == pytest.approx(90.0 + np.degrees(np.arccos(r1 / (r1 + z))), rel=0, abs=1e-6)
+
+
 def _ray_column(chi_deg, z, H=7000.0):
     """Slant column / vertical column by brute-force quadrature along the ray (common practice, no source)."""
     r0 = EARTH_RADIUS_M + z
