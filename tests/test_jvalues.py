@@ -114,3 +114,27 @@ def test_jvalues_lab_file_ratio(tmp_path, capsys):
 def test_jvalues_errors_are_reported(capsys):
     assert main(["jvalues", "stratosphere", "--altitude", "20 parsecs"]) == 2
     assert "--altitude" in capsys.readouterr().err
+
+
+def test_j_of_a_flat_cross_section_above_the_atmosphere_is_the_photon_flux_integral(tmp_path):
+    # J = integral sigma phi F dlambda (the definition of a photolysis frequency, e.g. Seinfeld
+    # and Pandis 2016, ch. 4).  With a flat sigma = 1e-20 cm2, phi = 1 and nothing between the
+    # sun and the box, J = sigma x the solar photon flux integrated over the model grid.  The
+    # reference photon flux comes from the ASTM E490-00a table shipped with pyspectral,
+    # converted to photons with E = h c / lambda (exact SI constants), independently of the
+    # binned spectrum; 0.5 % is the accuracy required of the binned spectrum (test_spectrum.py).
+    pyspectral = pytest.importorskip("pyspectral")
+    from pathlib import Path
+    table = np.loadtxt(Path(pyspectral.__file__).resolve().parent / "data" / "e490_00a.dat", comments="#")
+    wl, irr = table[:, 0] * 1000.0, table[:, 1] * 1e-3                       # nm, W m-2 nm-1
+    grid = np.union1d(wl[(wl > EDGES[0]) & (wl < EDGES[-1])], EDGES)
+    photons = np.interp(grid, wl, irr) * grid * 1e-9 / (6.62607015e-34 * 299792458.0) * 1e-4  # cm-2 s-1 nm-1
+    reference = 1e-20 * np.trapezoid(photons, grid)
+    lab = tmp_path / "flat.csv"
+    lab.write_text(f"wavelength (nm),cross section (cm2)\n{EDGES[0]:g},1e-20\n{EDGES[-1]:g},1e-20\n")
+    pairs = [(cross_section_data(lab), quantum_yield_data(1.0))]
+    flux = flux_grid([0.0, 60.0], 20_000.0, [300.0], absorbers=(), rayleigh=False, diffuse=False)[:, 0]
+    j = integrate_j(flux, spectral_product(pairs, EDGES, [220.0]), EDGES)[:, 0, 0]
+    assert j[0] == pytest.approx(reference, rel=5e-3, abs=0)
+    # nothing absorbs or scatters: the sun's elevation does not matter (common practice, no source)
+    assert j[1] == pytest.approx(j[0], rel=1e-12, abs=0)
