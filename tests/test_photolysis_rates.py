@@ -86,8 +86,13 @@ def test_broadcasting_and_distance_factor(rates):
     np.testing.assert_allclose(j2, 1.0339 * j1, rtol=1e-12)
 
 
-def test_scalar_call_shape(rates):
-    assert rates(45.0, 300.0, 220.0).shape == (3,)
+def test_scalar_call_shape_and_value(rates):
+    j = rates(45.0, 300.0, 220.0)
+    assert j.shape == (3,)
+    # the same closed form as above at 45 deg, scalar path (l cos^m exp(-n sec); common practice, no source)
+    c = np.cos(np.radians(45.0))
+    np.testing.assert_allclose(j, [0.0, L1 * c**M1 * np.exp(-N1 / c), 2.0 * L2 * c**M2 * np.exp(-N2 / c)],
+                               rtol=1e-9, atol=0)
 
 
 def test_nan_sza_is_not_silently_zero(rates):

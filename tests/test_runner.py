@@ -222,7 +222,9 @@ def test_location_by_pressure_uses_the_standard_atmosphere():
     # U.S. Standard Atmosphere 1976: 20 km geopotential, 5474.9 Pa, 216.65 K (NOAA/NASA/USAF 1976, Table I)
     np.testing.assert_allclose(ds.pressure, 5475.0, rtol=1e-12)
     np.testing.assert_allclose(ds.temperature, 216.65, atol=0.01)
-    assert 19_900 < float(ds.altitude) < 20_200
+    # 20 km geopotential is z = r0 H / (r0 - H) = 20063 m geometric, r0 = 6356.766 km
+    # (USSA 1976, recalled from memory); 54.75 hPa lies 0.1 m below the layer base
+    assert float(ds.altitude) == pytest.approx(20000.0 * 6356766.0 / (6356766.0 - 20000.0), rel=0, abs=1.0)
 
 
 def test_trajectory_file_drives_the_box(tmp_path):
