@@ -10,8 +10,8 @@ EXAMPLE = """examples:
   boxchem sweep polar-spring --vary run.start=2026-08-15,2026-09-01
 
 KEY is section.key of the scenario file, scale.<reaction id> (a factor on the
-rate coefficient) or environment.temperature_offset (kelvin added to the
-scenario's temperature).  The result has one dimension per varied key; a
+rate coefficient) or environment.temperature_offset (the scenario key: kelvin added to the
+scenario's temperature, replacing an offset the file sets).  The result has one dimension per varied key; a
 member that fails is recorded in member_status / member_error and the others
 complete (exit status 1 if any failed)."""
 
