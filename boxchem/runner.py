@@ -114,16 +114,17 @@ def build_environment(scenario: Scenario):
             p = kwargs["pressure"]
             altitude = float(altitude_from_pressure(p.values[0] if hasattr(p, "values") else p))
         kwargs["temperature"] = float(standard_atmosphere(altitude)[1])
-    psc = scenario.psc_surface_area
-    if isinstance(psc, ThresholdRuleSpec):
-        psc_area = PscThresholdRule(area_cm2_cm3=psc.area, threshold_K=psc.below, width_K=psc.width)
-    else:
-        psc_area = _series(psc, name="[environment].psc_surface_area")
+    def area(value, name):
+        if isinstance(value, ThresholdRuleSpec):
+            return PscThresholdRule(area_cm2_cm3=value.area, threshold_K=value.below, width_K=value.width)
+        return _series(value, name=name)
+
     return Environment(
         scenario.start,
         ozone_column=_series(scenario.ozone_column_du, name="[environment].ozone_column"),
-        psc_area=psc_area,
+        psc_area=area(scenario.psc_surface_area, "[environment].psc_surface_area"),
         sulfate_area=_series(scenario.sulfate_surface_area, name="[environment].sulfate_surface_area"),
+        ice_area=area(scenario.ice_surface_area, "[environment].ice_surface_area"),
         **kwargs)
 
 
@@ -246,6 +247,9 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
                                  "surface area density of polar stratospheric cloud particles"),
         "sulfate_surface_area": tvar(st.sulfate_area, "cm2 cm-3",
                                      "surface area density of sulfate aerosol"),
+        "ice_surface_area": tvar(st.ice_area, "cm2 cm-3",
+                                 "surface area density of ice polar stratospheric cloud particles "
+                                 "(surface reactions on=ice)"),
     }
     attrs: dict[str, Any] = {
         "Conventions": "CF-1.10",

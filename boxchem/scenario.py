@@ -34,6 +34,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from .environment.history import ICE_FROST_POINT_K
 from .errors import BoxchemError, ScenarioError, UnitError
 from .units import parse_amount, parse_quantity
 
@@ -51,7 +52,7 @@ SCENARIO_KEYS: dict[str, tuple[str, ...]] = {
     "run": ("mechanism", "start", "duration", "output_interval"),
     "location": ("latitude", "longitude", "altitude", "pressure"),
     "environment": ("temperature", "temperature_offset", "pressure", "trajectory", "ozone_column",
-                    "psc_surface_area", "sulfate_surface_area", "albedo"),
+                    "psc_surface_area", "sulfate_surface_area", "ice_surface_area", "albedo"),
     "solver": ("rtol", "atol", "method", "max_step"),
     "photolysis": ("method", "cross_sections", "ozone_column_follows_box",
                    "ozone_loss_layer_depth"),
@@ -98,7 +99,7 @@ class TimeSeriesSpec:
 
 @dataclass(frozen=True)
 class ThresholdRuleSpec:
-    """PSC surface area ``area`` [cm2 cm-3] below ``below`` [K], ramped in over ``width`` [K].
+    """PSC (or ice) surface area ``area`` [cm2 cm-3] below ``below`` [K], ramped in over ``width`` [K].
 
     Evaluated by :class:`boxchem.environment.history.PscThresholdRule`
     (smoothstep from 0 at ``below`` to ``area`` at ``below - width``).
@@ -162,6 +163,8 @@ class Scenario:
     key_sources: Mapping[str, str] = field(default_factory=dict, repr=False, compare=False)
     #: path-valued key (``"[run].mechanism"``) -> folder its relative path is read against
     key_dirs: Mapping[str, Path] = field(default_factory=dict, repr=False, compare=False)
+    #: ice PSC surface area ([environment].ice_surface_area; 0 when not given)
+    ice_surface_area: float | TimeSeriesSpec | ThresholdRuleSpec = 0.0
 
     # -- construction ----------------------------------------------------------
     @classmethod
@@ -752,7 +755,10 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
     ozone = _series_or_value(env.get("ozone_column", f"{DEFAULT_OZONE_COLUMN_DU} DU"), "column",
                              "[environment].ozone_column", err, start=start,
                              check=_non_negative("ozone column", "DU"))
-    psc = _psc_area(env.get("psc_surface_area", "0 um2 cm-3"), err, start)
+    psc = _area_or_rule(env.get("psc_surface_area", "0 um2 cm-3"), "[environment].psc_surface_area",
+                        err, start)
+    ice = _area_or_rule(env.get("ice_surface_area", "0 um2 cm-3"), "[environment].ice_surface_area",
+                        err, start, default_below=ICE_FROST_POINT_K)
     sulfate = _series_or_value(env.get("sulfate_surface_area", "0 um2 cm-3"), "surface_area",
                                "[environment].sulfate_surface_area", err, start=start,
                                check=_non_negative("surface area", "cm2 cm-3"))
@@ -835,7 +841,8 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         overrides=dict(overrides), mechanism=mechanism, override_origins=dict(origins or {}),
         photolysis_cross_sections=user_spectra, ozone_column_follows_box=follows,
         ozone_loss_layer_depth_m=float(layer_depth),
-        layers=tuple(layers) or ((source, text),), key_sources=key_sources, key_dirs=key_dirs)
+        layers=tuple(layers) or ((source, text),), key_sources=key_sources, key_dirs=key_dirs,
+        ice_surface_area=ice)
 
 
 def _temperature_offset(env: Mapping[str, Any], temperature: Any, err: _Errors) -> Any:
@@ -886,8 +893,13 @@ def _plain_number(table: Mapping[str, Any], key: str, default: float, where: str
     return float(value)
 
 
-def _psc_area(value: Any, err: _Errors, start) -> Any:
-    where = "[environment].psc_surface_area"
+def _area_or_rule(value: Any, where: str, err: _Errors, start,
+                  default_below: float | None = None) -> Any:
+    """A surface area density (constant, series or threshold rule) at key path ``where``.
+
+    ``default_below`` [K]: the rule's threshold when ``below`` is not given
+    (the ice frost point for ice clouds); None makes ``below`` required.
+    """
     if isinstance(value, Mapping) and "rule" in value:
         for k in value:
             if k not in _RULE_KEYS:
@@ -895,13 +907,16 @@ def _psc_area(value: Any, err: _Errors, start) -> Any:
         if value["rule"] != "threshold":
             err.add(f"{where}.rule", f"unknown rule {value['rule']!r}; valid: \"threshold\"")
             return None
-        missing = [k for k in ("area", "below") if k not in value]
+        missing = [k for k in ("area", "below") if k not in value
+                   and not (k == "below" and default_below is not None)]
         if missing:
+            example = "188 K" if default_below is not None else "195 K"
             err.add(where, f"the threshold rule needs {' and '.join(missing)}, e.g. "
-                           "{ rule = \"threshold\", area = \"2 um2 cm-3\", below = \"195 K\" }")
+                           f"{{ rule = \"threshold\", area = \"2 um2 cm-3\", below = \"{example}\" }}")
             return None
         area = _quantity(value["area"], "surface_area", f"{where}.area", err)
-        below = _quantity(value["below"], "temperature", f"{where}.below", err)
+        below = (_quantity(value["below"], "temperature", f"{where}.below", err)
+                 if "below" in value else default_below)
         if area is not None and area < 0:
             err.add(f"{where}.area", f"must be >= 0, got {value['area']!r}")
             return None

@@ -99,9 +99,15 @@ def test_gamma_outside_unit_interval(gamma):
 
 
 def test_surface_target():
-    line = "r1 ClONO2 + HCl -> Cl2 + HNO3 surface gamma=0.1 on=ice"
+    line = "r1 ClONO2 + HCl -> Cl2 + HNO3 surface gamma=0.1 on=nat"
     p = one(rx(line))
-    assert where(p) == (FIRST, line.index("on=") + 1) and "on=psc, on=sulfate, on=all" in p.message
+    assert where(p) == (FIRST, line.index("on=") + 1) and "on=psc, on=sulfate, on=ice, on=all" in p.message
+
+
+def test_surface_target_ice_is_valid():
+    # on=ice is a surface of its own (ice PSCs); it parses without problems
+    mech = parse_mechanism(rx("r1 ClONO2 + HCl -> Cl2 + HNO3 surface gamma=0.1 on=ice"))
+    assert mech.reactions[0].parameters["on"] == "ice"
 
 
 def test_reverse_of_missing_and_not_reverse():

@@ -23,7 +23,7 @@ carry no k here."""
 
 CSV_COLUMNS = ("id", "equation", "law", "temperature", "pressure", "air_density", "k", "units", "note")
 NOTES = {"photolysis": "J depends on the sun (solar zenith angle, ozone column)",
-         "surface": "depends on the particle surface area (psc/sulfate)"}
+         "surface": "depends on the particle surface area (psc/sulfate/ice)"}
 
 
 def register(subparsers) -> None:

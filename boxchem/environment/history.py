@@ -1,4 +1,4 @@
-"""Time-dependent conditions of the box: time series, the PSC threshold rule, Environment.
+"""Time-dependent conditions of the box: time series, the PSC/ice threshold rule, Environment.
 
 The scenario loader builds an :class:`Environment` from constants, inline
 tables or trajectory files; the time loop calls ``env.at(t)`` every step, so
@@ -155,7 +155,7 @@ class TimeSeries:
 
 @dataclass(frozen=True)
 class PscThresholdRule:
-    """PSC surface area density that appears as the air cools below a threshold.
+    """PSC (or ice) surface area density that appears as the air cools below a threshold.
 
     area(T) = area_cm2_cm3 * s(x),  x = (threshold_K - T) / width_K clipped to [0, 1],
     s(x) = 3 x^2 - 2 x^3 (smoothstep: continuous with a continuous first
@@ -164,7 +164,8 @@ class PscThresholdRule:
     So there is no PSC area at T >= threshold_K and the full area at
     T <= threshold_K - width_K.  The default threshold is the typical NAT
     existence temperature of about 195 K (Hanson & Mauersberger 1988); use
-    ``ICE_FROST_POINT_K`` (about 188 K) for ice clouds.  The default width of
+    ``ICE_FROST_POINT_K`` (about 188 K) for ice clouds (``Environment(ice_area=
+    PscThresholdRule(area, threshold_K=ICE_FROST_POINT_K))``).  The default width of
     1 K is a numerical choice (common practice, no source).
 
     Parameters
@@ -215,6 +216,7 @@ class EnvironmentState:
     ozone_column: object        # DU (overhead column used for photolysis)
     psc_area: object            # cm2 cm-3
     sulfate_area: object        # cm2 cm-3
+    ice_area: object            # cm2 cm-3 (ice clouds, below the frost point)
     distance_factor: object     # (1 AU / r)^2
 
     @property
@@ -274,15 +276,19 @@ class Environment:
     ozone_column : float or TimeSeries
         Overhead ozone column [DU], >= 0.
     psc_area : float, TimeSeries or PscThresholdRule
-        PSC surface area density [cm2 cm-3], >= 0 (default 0).
+        PSC (NAT/STS) surface area density [cm2 cm-3], >= 0 (default 0).
     sulfate_area : float or TimeSeries
         Sulfate aerosol surface area density [cm2 cm-3], >= 0 (default 0).
+    ice_area : float, TimeSeries or PscThresholdRule
+        Ice PSC surface area density [cm2 cm-3], >= 0 (default 0); a rule
+        usually takes ``threshold_K=ICE_FROST_POINT_K``.  Surface reactions
+        with ``on=ice`` (and ``on=all``) see it.
 
     Time series carrying an ``origin`` are moved onto the run's clock.
     """
 
     def __init__(self, start, *, temperature, latitude, longitude, ozone_column,
-                 pressure=None, altitude=None, psc_area=0.0, sulfate_area=0.0):
+                 pressure=None, altitude=None, psc_area=0.0, sulfate_area=0.0, ice_area=0.0):
         self.start = parse_utc(start, "start")
         self._start_days = float(solar.days_since_j2000(self.start))
 
@@ -304,6 +310,8 @@ class Environment:
                                  valid="a surface area density >= 0 cm2 cm-3")
         self.sulfate_area = prepared("sulfate_area", sulfate_area, low=0.0,
                                      valid="a surface area density >= 0 cm2 cm-3")
+        self.ice_area = prepared("ice_area", ice_area, low=0.0, allow_rule=True,
+                                 valid="a surface area density >= 0 cm2 cm-3")
         if pressure is None and altitude is None:
             raise ScenarioError("pressure/altitude: give a pressure [Pa], an altitude [m], or both")
         if pressure is not None:
@@ -362,12 +370,13 @@ class Environment:
         sza, dist = solar._zenith_and_distance_factor(self._start_days + t / 86400.0, lat, lon)
         hz = np.full(t.shape, self._horizon) if self._horizon is not None else solar.horizon_zenith_angle(z)
         psc = self.psc_area(T) if isinstance(self.psc_area, PscThresholdRule) else value(self.psc_area)
+        ice = self.ice_area(T) if isinstance(self.ice_area, PscThresholdRule) else value(self.ice_area)
         return EnvironmentState(
             time_s=t, temperature=T, pressure=p, air_density=air_number_density(p, T),
             latitude=lat, longitude=_wrap_longitude(lon), altitude=z,
             solar_zenith_angle=sza, horizon_zenith_angle=hz,
             ozone_column=value(self.ozone_column), psc_area=psc,
-            sulfate_area=value(self.sulfate_area), distance_factor=dist)
+            sulfate_area=value(self.sulfate_area), ice_area=ice, distance_factor=dist)
 
     def _at_scalar(self, t: float) -> EnvironmentState:
         """``at`` for one time, in float arithmetic (about ten microseconds per call)."""
@@ -391,11 +400,13 @@ class Environment:
             hz = 90.0 + math.degrees(math.acos(solar.EARTH_RADIUS_M / (solar.EARTH_RADIUS_M + max(z, 0.0))))
         psc = (float(self.psc_area(T)) if self.psc_area.__class__ is PscThresholdRule
                else value(self.psc_area))
+        ice = (float(self.ice_area(T)) if self.ice_area.__class__ is PscThresholdRule
+               else value(self.ice_area))
         f64 = np.float64
         return EnvironmentState(
             f64(t), f64(T), f64(p), f64(p / (T * _BOLTZMANN_CM3)), f64(lat),
             f64((lon + 180.0) % 360.0 - 180.0), f64(z), f64(sza), f64(hz),
-            f64(value(self.ozone_column)), f64(psc), f64(value(self.sulfate_area)), f64(dist))
+            f64(value(self.ozone_column)), f64(psc), f64(value(self.sulfate_area)), f64(ice), f64(dist))
 
     def solar_zenith_angle(self, t):
         """Solar zenith angle [deg] at ``t`` [s since start] along the box's path."""

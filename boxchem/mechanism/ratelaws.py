@@ -188,6 +188,7 @@ class RateEvaluator:
         on = [rx[i].parameters["on"] for i in self.surface_index]
         self._surf_psc = np.array([o in ("psc", "all") for o in on], dtype=float)
         self._surf_sulfate = np.array([o in ("sulfate", "all") for o in on], dtype=float)
+        self._surf_ice = np.array([o in ("ice", "all") for o in on], dtype=float)
 
         self.thermal_index = np.sort(np.concatenate(
             [self._const, self._arr, self._fall, self._chem, self._rev])).astype(np.intp)
@@ -218,20 +219,23 @@ class RateEvaluator:
             k[..., self._rev] = k[..., self._rev_of] / equilibrium_constant(T, self._rev_K, self._rev_B)
         return k
 
-    def surface(self, temperature, psc_area, sulfate_area) -> np.ndarray:
+    def surface(self, temperature, psc_area, sulfate_area, ice_area=0.0) -> np.ndarray:
         """k [s-1] of every surface reaction, k = gamma v S / 4; other columns 0.
 
-        temperature [K], psc_area and sulfate_area [cm2 cm-3] (broadcast).
-        ``on=all`` reactions see the sum of both areas.
+        temperature [K], psc_area (NAT/STS clouds), sulfate_area and ice_area
+        (ice clouds) [cm2 cm-3] (broadcast; ice_area defaults to 0).
+        ``on=all`` reactions see the sum of the three areas.
         """
         T = np.asarray(temperature, dtype=float)
         psc = np.asarray(psc_area, dtype=float)
         sulf = np.asarray(sulfate_area, dtype=float)
-        shape = np.broadcast_shapes(T.shape, psc.shape, sulf.shape)
+        ice = np.asarray(ice_area, dtype=float)
+        shape = np.broadcast_shapes(T.shape, psc.shape, sulf.shape, ice.shape)
         k = np.zeros(shape + (self.n_reactions,))
         if self.surface_index.size:
             area = (np.broadcast_to(psc, shape)[..., None] * self._surf_psc
-                    + np.broadcast_to(sulf, shape)[..., None] * self._surf_sulfate)
+                    + np.broadcast_to(sulf, shape)[..., None] * self._surf_sulfate
+                    + np.broadcast_to(ice, shape)[..., None] * self._surf_ice)
             k[..., self.surface_index] = surface_uptake(np.broadcast_to(T, shape)[..., None],
                                                         self._surf_gamma, self._surf_mass, area)
         return k

@@ -20,7 +20,8 @@ from .model import Mechanism, Reaction
 __all__ = ["validate_mechanism", "SURFACE_TARGETS"]
 
 #: values of the surface law's ``on=`` key
-SURFACE_TARGETS = ("psc", "sulfate", "all")
+#: ("all" = psc + sulfate + ice, the sum of the three areas)
+SURFACE_TARGETS = ("psc", "sulfate", "ice", "all")
 
 # (key, lower bound, lower bound inclusive, upper bound or None, what is valid)
 _BOUNDS = {
@@ -149,7 +150,7 @@ def _check_reaction(r: Reaction, species, known, reactions, ignore_reactions, er
     if r.law == "surface":
         on = r.parameters.get("on")
         if on not in SURFACE_TARGETS:
-            err(f"reaction {r.id!r}: on={on} is not a surface; valid: on=psc, on=sulfate, on=all",
+            err(f"reaction {r.id!r}: on={on} is not a surface; valid: on=psc, on=sulfate, on=ice, on=all",
                 _at(loc, "on", suffix="="))
         if r.reactants:
             first = species.get(r.reactants[0].species)

@@ -17,7 +17,7 @@ by order] in mechanism reaction order and the fixed-species number densities
   made only when the air moves into a new grid cell.
 * surface k = gamma v S / 4 (``RateEvaluator.surface``): linear in the
   surface areas and proportional to sqrt(T) through the mean molecular speed,
-  so the model keeps k per unit PSC and sulfate area at the first state and
+  so the model keeps k per unit PSC, sulfate and ice area at the first state and
   scales exactly by sqrt(T/T0).
 * J from ``photolysis_rates(sza, ozone_column, T, distance_factor)`` (a
   :class:`boxchem.photolysis.PhotolysisRates`; any callable with that
@@ -172,7 +172,7 @@ class RateCoefficientModel:
         self._anchor = None             # (T0, ln M0) of the first state
         self._nodes: dict = {}          # (i, j) -> ln k at T0 + i dT, ln M0 + j dlnM
         self._last_thermal = None       # ((T, [M]), k) of the last call
-        self._surface_ref = None        # (T0, k per unit PSC area, k per unit sulfate area)
+        self._surface_ref = None        # (T0, k per unit PSC, sulfate and ice area)
         self.thermal_evaluations = 0
 
     def _node(self, i: int, j: int) -> np.ndarray:
@@ -212,14 +212,15 @@ class RateCoefficientModel:
                     log_k = log_k + w * self._node(i + di, j + dj)
         return np.exp(log_k)
 
-    def _surface_k(self, T: float, psc: float, sulfate: float) -> np.ndarray:
+    def _surface_k(self, T: float, psc: float, sulfate: float, ice: float) -> np.ndarray:
         if self._surface_ref is None:
-            per_psc = np.asarray(self.evaluator.surface(T, 1.0, 0.0), dtype=float)
-            per_sulfate = np.asarray(self.evaluator.surface(T, 0.0, 1.0), dtype=float)
-            self._surface_ref = (T, per_psc, per_sulfate)
-        T0, per_psc, per_sulfate = self._surface_ref
+            per_psc = np.asarray(self.evaluator.surface(T, 1.0, 0.0, 0.0), dtype=float)
+            per_sulfate = np.asarray(self.evaluator.surface(T, 0.0, 1.0, 0.0), dtype=float)
+            per_ice = np.asarray(self.evaluator.surface(T, 0.0, 0.0, 1.0), dtype=float)
+            self._surface_ref = (T, per_psc, per_sulfate, per_ice)
+        T0, per_psc, per_sulfate, per_ice = self._surface_ref
         # k = gamma v S / 4 with v ~ sqrt(T): exact rescaling (mean molecular speed)
-        return np.sqrt(T / T0) * (psc * per_psc + sulfate * per_sulfate)
+        return np.sqrt(T / T0) * (psc * per_psc + sulfate * per_sulfate + ice * per_ice)
 
     def air_density(self, times_s) -> np.ndarray:
         """Air number density [M] [cm-3] at ``times_s`` [s since the run start] (array).
@@ -271,13 +272,13 @@ class RateCoefficientModel:
         nr = len(self.multiplier)
         values = np.empty((n, nr + len(self._fixed_per_air)))
         conditions = np.stack([state.temperature, state.air_density, state.psc_area,
-                               state.sulfate_area], axis=-1).astype(float)
+                               state.sulfate_area, state.ice_area], axis=-1).astype(float)
         for i in range(n):   # n nodes, each a cached thermal lookup: no loop over reactions
             if i and np.array_equal(conditions[i], conditions[i - 1]):
                 values[i] = values[i - 1]
                 continue
-            T, air, psc, sulfate = (float(v) for v in conditions[i])
-            values[i, :nr] = (self._thermal_k(T, air) + self._surface_k(T, psc, sulfate)) \
+            T, air, psc, sulfate, ice = (float(v) for v in conditions[i])
+            values[i, :nr] = (self._thermal_k(T, air) + self._surface_k(T, psc, sulfate, ice)) \
                 * self.multiplier
             values[i, nr:] = air * self._fixed_per_air
         positive = np.all(values > 0.0, axis=0)
@@ -324,7 +325,8 @@ class RateCoefficientModel:
         T = float(state.temperature)
         air = float(state.air_density)
         k = self._thermal_k(T, air) + self._surface_k(T, float(state.psc_area),
-                                                       float(state.sulfate_area))
+                                                       float(state.sulfate_area),
+                                                       float(state.ice_area))
         if self.photolysis_rates is not None and \
                 float(state.solar_zenith_angle) < float(state.horizon_zenith_angle):
             j = np.asarray(self.photolysis_rates(state.solar_zenith_angle, state.ozone_column, T,
