@@ -276,7 +276,7 @@ VARIANTS = {
     "polar-spring-1980": {f"[initial].{sp}" for sp in ("HCl", "ClONO2", "Cl2", "Cl2O2", "HOCl", "OClO",
                                                       "CF2Cl2", "CFCl3", "BrCl", "HOBr", "BrONO2",
                                                       "HBr", "BrO", "Br2")},
-    "polar-spring-cold": {"[environment].temperature_offset"},
+    "polar-spring-cold": {"[environment].temperature_offset", "[environment].ice_surface_area"},
     "polar-spring-warm": {"[environment].temperature_offset"},
 }
 
