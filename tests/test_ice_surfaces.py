@@ -163,6 +163,7 @@ def scenario(extra: str = "", mechanism=None) -> Scenario:
 
 def test_scenario_ice_surface_area_forms(shipped):
     assert scenario(mechanism=shipped).ice_surface_area == 0.0
+    # 1 um2 = 1e-8 cm2 (SI prefixes, exact), so 10 um2 cm-3 = 1e-7 cm2 cm-3
     assert scenario('ice_surface_area = "10 um2 cm-3"', shipped).ice_surface_area == pytest.approx(1e-7)
     s = scenario('ice_surface_area = { times = ["0 h", "24 h"], values = ["0 um2 cm-3", "5 um2 cm-3"] }',
                  shipped)
