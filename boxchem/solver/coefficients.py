@@ -35,6 +35,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..environment.history import PscThresholdRule
 from ..errors import ScenarioError
 from .kinetics import CompiledKinetics
 
@@ -111,6 +112,18 @@ def _lobatto_inverse_vandermonde(n: int) -> np.ndarray:
     (node values -> power-series coefficients; well conditioned for small n)."""
     s = -np.cos(np.pi * np.arange(n) / (n - 1))
     return np.linalg.inv(np.vander(s, n, increasing=True))
+
+
+def _level_crossings(times_s, values, levels) -> np.ndarray:
+    """Times [s] where a piecewise-linear series crosses any of ``levels`` (exact, per segment)."""
+    t = np.asarray(times_s, dtype=float)
+    v = np.asarray(values, dtype=float)
+    out = []
+    for level in levels:
+        d = v - level
+        seg = np.nonzero(d[:-1] * d[1:] < 0.0)[0]          # strict sign change within a segment
+        out.append(t[seg] + (t[seg + 1] - t[seg]) * d[seg] / (d[seg] - d[seg + 1]))
+    return np.concatenate(out) if out else np.zeros(0)
 
 
 class RateCoefficientModel:
@@ -234,10 +247,22 @@ class RateCoefficientModel:
         return np.asarray(self.environment.at(times).air_density, dtype=float).reshape(times.shape)
 
     def smoothness_breaks(self, t0: float, t1: float) -> np.ndarray:
-        """Knots [s] in (t0, t1) of the environment's time series (T, p, position, ozone,
-        surface areas): k(t) has kinks there, so ``interval_table`` windows end on them."""
-        knots = [np.asarray(q.times_s, dtype=float) for q in vars(self.environment).values()
+        """Times [s] in (t0, t1) where k(t) has kinks, so ``interval_table`` windows end on them.
+
+        These are the knots of the environment's time series (T, p, position,
+        ozone, surface areas) and the times the temperature crosses the two
+        kink temperatures of a surface-area threshold rule (where the area
+        starts to form and where it is complete): the rule's smoothstep is
+        not a polynomial across them.
+        """
+        env = self.environment
+        knots = [np.asarray(q.times_s, dtype=float) for q in vars(env).values()
                  if hasattr(q, "times_s")]
+        levels = [level for area in (env.psc_area, env.ice_area) if isinstance(area, PscThresholdRule)
+                  for level in (area.threshold_K, area.threshold_K - area.width_K)]
+        temperature = env.temperature
+        if levels and hasattr(temperature, "times_s"):
+            knots.append(_level_crossings(temperature.times_s, temperature.values, levels))
         if not knots:
             return np.zeros(0)
         k = np.unique(np.concatenate(knots))
