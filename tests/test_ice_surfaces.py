@@ -246,7 +246,7 @@ def test_compiled_and_numpy_paths_agree_with_ice_present(shipped):
     bp = env.horizon_crossings(0.0, t[-1])
     fast = integrate_box(kin, coef, y0, t, breakpoints_s=bp, rtol=1e-4, atol=1e2, compiled=True)
     slow = integrate_box(kin, coef, y0, t, breakpoints_s=bp, rtol=1e-4, atol=1e2, compiled=False)
-    assert fast.success and slow.success and fast.settings.get("compiled") and not slow.settings.get("compiled", False)
+    assert fast.success and slow.success and fast.settings["compiled"] is True and slow.settings["compiled"] is False
     # same method and tolerances: agreement within a few rtol (common practice, no source)
     scale = np.maximum(np.abs(slow.y).max(axis=0), 1e6)
     assert np.max(np.abs(fast.y - slow.y) / scale) < 2e-3

@@ -256,7 +256,7 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
     ks = np.full((n_out, kinetics.n_reactions), np.nan)
     fxs = np.full((n_out, kinetics.n_fixed), np.nan)
     res = TimeLoopResult(out, ys, ks, fxs, kinetics.variable_species,
-                         settings={"method": method.name, "rtol": rtol,
+                         settings={"method": method.name, "rtol": rtol, "compiled": False,
                                    "atol": float(atol.max()) if np.all(atol == atol[0]) else atol.tolist()})
 
     t = tau0 = out[0]
