@@ -220,19 +220,16 @@ def test_ice_area_speeds_chlorine_activation_by_clono2_hydrolysis(shipped):
     np.testing.assert_allclose(ice.rate_coefficient.sel(reaction="het_clono2_h2o_ice"), k, rtol=1e-3)
 
 
-def test_compiled_and_numpy_paths_agree_with_ice_present(shipped):
-    pytest.importorskip("numba")
+def _cooling_day_both_paths(shipped, ice_area):
+    """A day cooling from 190 to 186 K at 70 S in late August (invented demo conditions),
+    integrated on the compiled and the numpy path with the same method and tolerances."""
     from boxchem.photolysis.rates import PhotolysisRates
     from boxchem.solver import CompiledKinetics, RateCoefficientModel, integrate_box
 
-    # invented demo conditions: 70 S in late August, cooling from 190 to 186 K over a day;
-    # the ice area grows linearly from zero after 12 h (a series: its knot ends a k(t)
-    # window, as every series knot does; the rule's case is the next test)
     env = Environment("2026-08-20T00:00:00Z", latitude=-70.0, longitude=0.0, ozone_column=250.0,
                       temperature=TimeSeries([0.0, 86400.0], [190.0, 186.0], "temperature"),
                       pressure=5000.0, altitude=20000.0, psc_area=PscThresholdRule(2e-8),
-                      sulfate_area=5e-9,
-                      ice_area=TimeSeries([0.0, 43200.0, 86400.0], [0.0, 0.0, 1e-7], "ice"))
+                      sulfate_area=5e-9, ice_area=ice_area)
     kin = CompiledKinetics(shipped)
     ev = RateEvaluator(shipped)
     coef = RateCoefficientModel(shipped, ev, PhotolysisRates(shipped, altitude_m=20000.0,
@@ -246,10 +243,20 @@ def test_compiled_and_numpy_paths_agree_with_ice_present(shipped):
     bp = env.horizon_crossings(0.0, t[-1])
     fast = integrate_box(kin, coef, y0, t, breakpoints_s=bp, rtol=1e-4, atol=1e2, compiled=True)
     slow = integrate_box(kin, coef, y0, t, breakpoints_s=bp, rtol=1e-4, atol=1e2, compiled=False)
-    assert fast.success and slow.success and fast.settings["compiled"] is True and slow.settings["compiled"] is False
+    assert fast.success and slow.success
+    assert fast.settings["compiled"] is True and slow.settings["compiled"] is False
     # same method and tolerances: agreement within a few rtol (common practice, no source)
     scale = np.maximum(np.abs(slow.y).max(axis=0), 1e6)
     assert np.max(np.abs(fast.y - slow.y) / scale) < 2e-3
+    return env, ev, coef, kin, y0, t, fast, slow
+
+
+def test_compiled_and_numpy_paths_agree_with_ice_present(shipped):
+    pytest.importorskip("numba")
+    # the ice area grows linearly from zero after 12 h (a series: its knot ends a k(t)
+    # window, as every series knot does; the rule's case is the next test)
+    ice = TimeSeries([0.0, 43200.0, 86400.0], [0.0, 0.0, 1e-7], "ice")
+    env, ev, _, _, _, t, fast, slow = _cooling_day_both_paths(shipped, ice)
     # output k are exact evaluations: the rate evaluator with the environment's three areas
     s = env.at(t)
     i = shipped.reaction_ids.index("het_clono2_hcl_ice")
@@ -263,37 +270,18 @@ def test_threshold_rule_kinks_end_compiled_windows_so_both_paths_agree(shipped):
     # The same cooling with the ice area from the frost-point threshold rule instead of a
     # series: the times T crosses the rule's two kink temperatures end the compiled k(t)
     # windows, so the compiled and numpy paths agree as closely as with a series
-    # (same method and tolerances: within a few rtol; common practice, no source).
+    # (checked in the helper: within a few rtol; common practice, no source).
     pytest.importorskip("numba")
-    from boxchem.photolysis.rates import PhotolysisRates
-    from boxchem.solver import CompiledKinetics, RateCoefficientModel, integrate_box
     from boxchem.solver.coefficients import _level_crossings
 
-    temperature = TimeSeries([0.0, 86400.0], [190.0, 186.0], "temperature")
     rule = PscThresholdRule(1e-7, threshold_K=ICE_FROST_POINT_K)
-    env = Environment("2026-08-20T00:00:00Z", latitude=-70.0, longitude=0.0, ozone_column=250.0,
-                      temperature=temperature, pressure=5000.0, altitude=20000.0,
-                      psc_area=PscThresholdRule(2e-8), sulfate_area=5e-9, ice_area=rule)
-    kin = CompiledKinetics(shipped)
-    ev = RateEvaluator(shipped)
-    coef = RateCoefficientModel(shipped, ev, PhotolysisRates(shipped, altitude_m=20000.0,
-                                                             method="parametric"), env, kinetics=kin)
+    env, _, coef, kin, y0, _, fast, _ = _cooling_day_both_paths(shipped, rule)
     # 190 -> 186 K linearly over a day: 188 K at 12 h, 187 K at 18 h (closed form)
+    temperature = env.temperature
     np.testing.assert_allclose(np.sort(_level_crossings(temperature.times_s, temperature.values,
                                                         [188.0, 187.0])), [43200.0, 64800.0])
     breaks = coef.smoothness_breaks(0.0, 86400.0)
     assert {43200.0, 64800.0} <= set(np.round(breaks, 6))
-    air = float(env.at(0.0).air_density)
-    mixing = {"O3": 2.6e-6, "H2O": 5e-6, "CH4": 1.3e-6, "N2O": 120e-9, "HNO3": 3e-9, "NO2": 20e-12,
-              "HCl": 1.0e-9, "ClONO2": 0.8e-9, "ClO": 0.05e-9, "N2O5": 5e-12, "CO": 15e-9,
-              "BrONO2": 5e-12, "BrO": 5e-12, "HOBr": 2e-12}
-    y0 = np.array([mixing.get(s, 0.0) * air for s in kin.variable_species])
-    t = np.arange(0.0, 86400.0 + 1, 3600.0)
-    bp = env.horizon_crossings(0.0, t[-1])
-    fast = integrate_box(kin, coef, y0, t, breakpoints_s=bp, rtol=1e-4, atol=1e2, compiled=True)
-    slow = integrate_box(kin, coef, y0, t, breakpoints_s=bp, rtol=1e-4, atol=1e2, compiled=False)
-    scale = np.maximum(np.abs(slow.y).max(axis=0), 1e6)
-    assert np.max(np.abs(fast.y - slow.y) / scale) < 2e-3
     # the ice converts chlorine reservoirs: ClONO2 falls by far more than on NAT alone
     j = kin.variable_species.index("ClONO2")
     assert fast.y[-1, j] < 0.5 * y0[j]
