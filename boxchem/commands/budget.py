@@ -2,10 +2,10 @@
 from __future__ import annotations
 
 import argparse
-import csv
-import io
 
 import numpy as np
+
+from ._csv import csv_text
 
 EXAMPLE = """examples:
   boxchem budget out.nc                         # Ox budget over the whole run
@@ -132,14 +132,8 @@ def render_text(records: list[dict], name: str, source: str, basis: str) -> str:
 
 
 def render_csv(records: list[dict]) -> str:
-    fields = ["section", "period", "term", "equation", "value", "units", "fraction",
-              "accumulated_percent", "percent_of_initial_o3", "covered_hours"]
-    buf = io.StringIO()
-    writer = csv.DictWriter(buf, fieldnames=fields, extrasaction="ignore", lineterminator="\n")
-    writer.writeheader()
-    for r in records:
-        writer.writerow({k: (f"{v:.6g}" if isinstance(v, float) else v) for k, v in r.items()})
-    return buf.getvalue()
+    return csv_text(records, ["section", "period", "term", "equation", "value", "units", "fraction",
+                              "accumulated_percent", "percent_of_initial_o3", "covered_hours"])
 
 
 def run(args) -> int:

@@ -2,12 +2,11 @@
 from __future__ import annotations
 
 import argparse
-import csv
-import io
 
 import numpy as np
 import xarray as xr
 
+from ._csv import csv_text
 from .budget import format_table
 
 EXAMPLE = """examples:
@@ -153,13 +152,8 @@ def render_text(rows: list[dict], base_name: str, other_name: str) -> str:
 
 
 def render_csv(rows: list[dict]) -> str:
-    fields = ["section", "time", "term", "equation", "base", "other", "change_percent", "change_points", "units"]
-    buf = io.StringIO()
-    w = csv.DictWriter(buf, fieldnames=fields, extrasaction="ignore", lineterminator="\n")
-    w.writeheader()
-    for r in rows:
-        w.writerow({k: (f"{v:.6g}" if isinstance(v, float) else v) for k, v in r.items()})
-    return buf.getvalue()
+    return csv_text(rows, ["section", "time", "term", "equation", "base", "other", "change_percent",
+                           "change_points", "units"])
 
 
 def run(args) -> int:

@@ -126,7 +126,7 @@ def summarize(ds) -> dict:
     ``deactivation_time``, ``psc_last_time``, ``final_partition`` (fractions
     of Cly in HCl and ClONO2).  Dates are None when the run does not reach them.
     """
-    import boxchem.diagnostics.accessor  # noqa: F401  (registers ds.boxchem)
+    import boxchem.diagnostics  # noqa: F401  (the package registers ds.boxchem)
 
     times = ds["time"].values
     species = [str(s) for s in ds["species"].values]
