@@ -1,4 +1,4 @@
-"""Parsing the mechanism language: forms, defaults, include / replace / remove."""
+"""Parsing the mechanism language: forms, defaults, extends / changed / dropped reactions."""
 import hashlib
 import math
 from pathlib import Path
@@ -111,7 +111,7 @@ def test_air_species_m_is_optional():
     assert mech.reactions[0].third_body
 
 
-def test_include_replace_remove():
+def test_extends_changed_dropped_reactions():
     mech = load_mechanism(DATA / "override.mech")
     ids = mech.reaction_ids
     assert "oclo_make" not in ids and "oclo_loss" not in ids
@@ -129,19 +129,19 @@ def test_include_replace_remove():
 
 
 def test_include_relative_to_base_dir():
-    text = 'include "small.mech"\n[remove]\nclo_het\n'
+    text = 'extends "small.mech"\n[dropped reactions]\nclo_het\n'
     mech = parse_mechanism(text, base_dir=DATA)
     assert "clo_het" not in mech.reaction_ids and "cl_o3" in mech.reaction_ids
 
 
 def test_include_loop_is_an_error():
-    with pytest.raises(MechanismError, match="include loop"):
+    with pytest.raises(MechanismError, match="extends loop"):
         load_mechanism(DATA / "loop_a.mech")
 
 
 def test_include_missing_file():
     with pytest.raises(MechanismError) as info:
-        parse_mechanism('include "nope/missing.mech"\n', base_dir=DATA)
+        parse_mechanism('extends "nope/missing.mech"\n', base_dir=DATA)
     p = info.value.problems[0]
     assert p.location.line == 1 and p.location.column == 10 and "missing.mech" in p.message
 

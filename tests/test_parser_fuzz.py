@@ -15,9 +15,9 @@ VALID = (DATA / "small.mech").read_text()
 LINES = VALID.splitlines()
 # fragments of the language, so that mutations stay close to valid input
 FRAGMENTS = ["->", "+", "*", "=", "hv", "M", "2", "0.5", "1e-12", "-1", "nan", "inf", '"', "#",
-             "[species]", "[reactions]", "[replace]", "[remove]", "[cycles]", "[families]",
+             "[species]", "[reactions]", "[changed reactions]", "[dropped reactions]", "[cycles]", "[families]",
              "atoms(Cl)", "fixed", "lumped", "formula=", "unbalanced", "of=clo_dimer", "on=psc",
-             "gamma=", "A=", "E/R=", "k0=", "Fc=", "data=", "l=", "include \"small.mech\"", "\t", "\n",
+             "gamma=", "A=", "E/R=", "k0=", "Fc=", "data=", "l=", "extends \"small.mech\"", "\t", "\n",
              "O3", "ClO", "Cl2O2", "destroys", "reverse", "falloff", "surface", "photolysis", "é", "\x00"]
 
 FAST = settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow])

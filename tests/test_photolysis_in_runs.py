@@ -48,14 +48,14 @@ def j_shipped(stratosphere):
 
 
 # ---------------------------------------------------------------------------
-# 1. [replace] data=PATH, relative to the mechanism file
+# 1. [changed reactions] data=PATH, relative to the mechanism file
 # ---------------------------------------------------------------------------
 def test_replace_with_relative_path_scales_j_by_the_lab_factor(tmp_path, monkeypatch, j_shipped):
     folder = tmp_path / "lab"
     folder.mkdir()
     _write_lab_file(folder / "dimer.csv", LAB_FACTOR)
     (folder / "mine.mech").write_text(
-        'include "stratosphere"\n[replace]\n'
+        'extends "stratosphere"\n[changed reactions]\n'
         'j_cl2o2  Cl2O2 + hv -> Cl + ClOO  photolysis data=dimer.csv  ref="test lab file"\n',
         encoding="utf-8")
     elsewhere = tmp_path / "elsewhere"
@@ -69,7 +69,7 @@ def test_replace_with_relative_path_scales_j_by_the_lab_factor(tmp_path, monkeyp
     assert np.all(j_shipped[lit] > 0)
     # a constant-ratio cross section on the same grid scales J exactly (common practice, no source)
     np.testing.assert_allclose(j_lab[lit] / j_shipped[lit], LAB_FACTOR, rtol=1e-6)
-    # a reaction the [replace] did not touch is unchanged (common practice, no source)
+    # a reaction the [changed reactions] did not touch is unchanged (common practice, no source)
     stratosphere = load_mechanism("stratosphere")
     np.testing.assert_allclose(_j(mech, "j_no2"), _j(stratosphere, "j_no2"), rtol=1e-12)
 
@@ -84,7 +84,7 @@ def test_shipped_example_lab_spectrum_is_the_stated_factor(monkeypatch, tmp_path
 
 def test_missing_relative_data_file_without_lmn_is_an_error_naming_the_path(tmp_path, stratosphere):
     (tmp_path / "m.mech").write_text(
-        'include "stratosphere"\n[replace]\n'
+        'extends "stratosphere"\n[changed reactions]\n'
         'j_cl2o2  Cl2O2 + hv -> Cl + ClOO  photolysis data=nothere.csv\n', encoding="utf-8")
     mech = load_mechanism(str(tmp_path / "m.mech"))
     with pytest.raises(DataFileError, match=r"nothere\.csv"):

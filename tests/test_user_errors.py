@@ -142,13 +142,13 @@ def test_check_strict_judges_the_users_file_not_the_included_shipped_one(capsys,
     # was: any file including "stratosphere" failed --strict on the shipped file's
     # source-gas warnings (CH4, N2O, CFCs are never produced), and they were all listed
     mine = tmp_path / "mine.mech"
-    mine.write_text('include "stratosphere"\n[replace]\n'
+    mine.write_text('extends "stratosphere"\n[changed reactions]\n'
                     'clo_clo_m  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32 n=4.0 kinf=3.0e-12 m=1.5'
                     '  ref="invented test value"\n')
     assert main(["check", str(mine), "--strict"]) == 0
     captured = capsys.readouterr()
     assert "never produced" not in captured.err
-    assert "of the included shipped mechanism, not shown: see 'boxchem check stratosphere'" in captured.out
+    assert "of the extended shipped mechanism, not shown: see 'boxchem check stratosphere'" in captured.out
     # a warning in the user's own file is still shown, and is an error under --strict
     mine.write_text(mine.read_text() + "[reactions]\nclo_clo_2  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32"
                     " n=4.0 kinf=3.0e-12 m=1.5  ref=\"invented test value\"\n")
@@ -165,13 +165,13 @@ def mechanism_errors(text: str, tmp_path) -> list[str]:
     return [p.message for p in info.value.problems]
 
 
-def test_misspelt_include_gives_only_the_include_error(tmp_path):
-    # was: also "[replace]: no reaction with id 'clo_clo_m' to replace" and "[remove]: no
-    # reaction with id 'clo_o'" for every line that depended on the missing file
+def test_misspelt_extends_gives_only_the_extends_error(tmp_path):
+    # was: also "no reaction with id 'clo_clo_m' to change" and "no reaction with id
+    # 'clo_o'" for every line that depended on the missing file
     messages = mechanism_errors(
-        'include "stratosphre"\n[replace]\n'
+        'extends "stratosphre"\n[changed reactions]\n'
         'clo_clo_m  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32 n=4.0 kinf=3.0e-12 m=1.5\n'
-        '[remove]\nclo_o\n[reactions]\nmine  ClO + O3 -> Cl + O2 + O2  constant k=1e-15\n', tmp_path)
+        '[dropped reactions]\nclo_o\n[reactions]\nmine  ClO + O3 -> Cl + O2 + O2  constant k=1e-15\n', tmp_path)
     assert len(messages) == 1, messages
     assert "did you mean 'stratosphere'?" in messages[0]
 
@@ -179,13 +179,13 @@ def test_misspelt_include_gives_only_the_include_error(tmp_path):
 def test_misspelt_section_header_is_one_error_and_its_lines_are_skipped(tmp_path):
     # was: "expected a section header" on every line after [replce]
     messages = mechanism_errors(
-        'include "stratosphere"\n[replce]\n'
+        'extends "stratosphere"\n[changed reactons]\n'
         'clo_clo_m  ClO + ClO + M -> Cl2O2 + M  falloff k0=2.0e-32 n=4.0 kinf=3.0e-12 m=1.5\n'
         'clo_o  ClO + O -> Cl + O2  arrhenius A=2.8e-11\n'
-        '[remove]\nno_such_id\n', tmp_path)
+        '[dropped reactions]\nno_such_id\n', tmp_path)
     assert len(messages) == 2, messages
-    assert messages[0].startswith("unknown section [replce] - did you mean 'replace'?")
-    assert messages[1].startswith("[remove]: no reaction with id 'no_such_id'")
+    assert messages[0].startswith("unknown section [changed reactons] - did you mean 'changed reactions'?")
+    assert messages[1].startswith("[dropped reactions]: no reaction with id 'no_such_id'")
 
 
 def test_misspelt_species_section_does_not_make_every_species_unknown(tmp_path):
@@ -317,12 +317,12 @@ def test_check_warning_count_matches_the_warnings_shown(capsys, tmp_path):
     # was: "warnings: 6" with no warning shown (the count included the shipped file's)
     import re
     mine = tmp_path / "mine.mech"
-    mine.write_text('include "stratosphere"\n[species]\nXx lumped\n')     # one warning of its own
+    mine.write_text('extends "stratosphere"\n[species]\nXx lumped\n')     # one warning of its own
     assert main(["check", str(mine)]) == 0
     captured = capsys.readouterr()
     shown = captured.err.count(": warning: ")
     assert shown == 1 and "'Xx' takes part in no reaction" in captured.err
     line = next(s for s in captured.out.splitlines() if s.strip().startswith("warnings:"))
-    match = re.fullmatch(r"\s*warnings:\s+(\d+) \(and (\d+) of the included shipped mechanism, not shown: "
+    match = re.fullmatch(r"\s*warnings:\s+(\d+) \(and (\d+) of the extended shipped mechanism, not shown: "
                          r"see 'boxchem check stratosphere'\)", line)
     assert match and int(match.group(1)) == shown and int(match.group(2)) > 0, line

@@ -62,7 +62,7 @@ def test_unbalanced_reaction():
 def test_duplicate_id():
     p = one(rx("r1 Cl + O3 -> ClO + O2 arrhenius A=2.3e-11\nr1 ClO + O -> Cl + O2 arrhenius A=2.8e-11"))
     assert where(p) == (FIRST + 1, 1) and "duplicate reaction id 'r1'" in p.message
-    assert f"t.mech:{FIRST}:1" in p.message and "[replace]" in p.message
+    assert f"t.mech:{FIRST}:1" in p.message and "[changed reactions]" in p.message
 
 
 @pytest.mark.parametrize("params, key, valid", [
@@ -180,7 +180,7 @@ def test_syntax_errors(line, column, words):
 @pytest.mark.parametrize("text, line, column, words", [
     ("O3\n", 1, 1, ["expected a section header"]),
     ("[specis]\n", 1, 2, ["unknown section [specis]", "did you mean 'species'"]),
-    ("[species]\nO3\ninclude \"x.mech\"\n", 3, 1, ["before the first section"]),
+    ("[species]\nO3\nextends \"x.mech\"\n", 3, 1, ["before the first section"]),
     ("[species]\nO3\nO3\n", 3, 1, ["declared twice", ":2:1"]),
     ("[species]\nO(1D) formula=O\n", 2, 2, ["letters, digits and '_'"]),
     ("[species]\nO3 fixed bogus\n", 2, 10, ["unknown species option 'bogus'"]),
@@ -191,8 +191,9 @@ def test_syntax_errors(line, column, words):
     ("[species]\nO2 fixed 1.5\n", 2, 4, ["fixed mole fraction must be in (0, 1]"]),
     ("[species]\nO3\n[families]\nOx O3\n", 4, 1, ["NAME = SPECIES"]),
     ("[species]\nO3\n[cycles]\nc1 eats Ox = r1\n", 4, 1, ["NAME destroys FAMILY"]),
-    ("[species]\nO3\n[remove]\nr9\n", 4, 1, ["no reaction with id 'r9'"]),
-    ("[species]\nO3\n[replace]\nr9 O3 -> O3 constant k=1\n", 4, 1, ["no reaction with id 'r9' to replace"]),
+    ("[species]\nO3\n[dropped reactions]\nr9\n", 4, 1, ["no reaction with id 'r9'"]),
+    ("[species]\nO3\n[changed reactions]\nr9 O3 -> O3 constant k=1\n", 4, 1,
+     ["no reaction with id 'r9' to change"]),
 ])
 def test_line_errors(text, line, column, words):
     p = one(text)

@@ -13,6 +13,9 @@ EXAMPLE = """examples:
   boxchem check stratosphere            # a shipped mechanism, by name
   boxchem check my_run.mech --strict    # warnings count as errors
 
+A file that extends another ('extends "stratosphere"') gets a list of every
+reaction it changed, dropped or added, with the old and new definitions.
+
 Errors are printed as file:line:column with the offending line and a caret;
 the exit status is 0 when the mechanism is valid and 2 when it is not."""
 
@@ -46,7 +49,7 @@ def summary(mechanism: Mechanism, hidden: tuple[int, str] = (0, "")) -> str:
         f"  families:  {len(mechanism.families)}",
         f"  cycles:    {len(mechanism.cycles)}",
         f"  warnings:  {len(mechanism.warnings) - hidden[0]}"
-        + (f" (and {hidden[0]} of the included shipped mechanism, not shown: see '{hidden[1]}')"
+        + (f" (and {hidden[0]} of the extended shipped mechanism, not shown: see '{hidden[1]}')"
            if hidden[0] else ""),
     ])
 
@@ -85,4 +88,22 @@ def run(args) -> int:
     for w in own:
         print(w.format(), file=sys.stderr)
     print(summary(mechanism, (len(inherited), see)))
+    if mechanism.changes:
+        print(changes_report(mechanism))
     return 0
+
+
+def changes_report(mechanism: Mechanism) -> str:
+    """What the files that extend a base changed: one block per reaction, in file order."""
+    counts = Counter(c.kind for c in mechanism.changes)
+    head = ", ".join(f"{counts[k]} {k}" for k in ("changed", "dropped", "added") if counts[k])
+    lines = [f"  changes to the base mechanism: {head}"]
+    for c in mechanism.changes:
+        where = f"{c.location.file}:{c.location.line}" if c.location else ""
+        base = f"{c.base_location.file}:{c.base_location.line}" if c.base_location else ""
+        lines.append(f"    {c.kind:8s} {c.reaction_id:20s} {where}")
+        if c.kind in ("changed", "dropped"):
+            lines.append(f"      was: {c.before}" + (f"   ({base})" if base else ""))
+        if c.kind in ("changed", "added"):
+            lines.append(f"      now: {c.after}")
+    return "\n".join(lines)

@@ -73,6 +73,8 @@ class Reaction:
     unbalanced: bool = False
     equation: str = ""                   # the equation as written, normalised spacing
     location: SourceLocation | None = field(default=None, compare=False, repr=False)
+    #: the law and its KEY=VALUE parameters as written on the line (comment removed)
+    definition: str = field(default="", compare=False)
 
     @property
     def rate_includes_air(self) -> bool:
@@ -127,6 +129,49 @@ class Cycle:
 
 
 @dataclass(frozen=True)
+class MechanismFile:
+    """One file read for a mechanism: its path, its text, and how it was reached.
+
+    ``parent`` is the index (in ``Mechanism.files``) of the file whose
+    ``extends`` line named this one, -1 for the top-level file; ``reference``
+    is the name as written on that line (``"stratosphere"``, ``"../base.mech"``).
+    """
+
+    path: str
+    text: str
+    parent: int = -1
+    reference: str = ""
+
+
+@dataclass(frozen=True)
+class MechanismChange:
+    """A reaction a file changed, dropped or added on top of the mechanism it extends.
+
+    ``kind`` is ``"changed"``, ``"dropped"`` or ``"added"``; ``before`` and
+    ``after`` are the reaction definitions (law and parameters as written),
+    empty where there is none; ``location`` is the line that made the change,
+    ``base_location`` the line of the reaction in the base file.
+    """
+
+    kind: str
+    reaction_id: str
+    location: SourceLocation | None = None
+    before: str = ""
+    after: str = ""
+    base_location: SourceLocation | None = None
+
+    def describe(self) -> str:
+        """One line: ``changed clo_dimer (lab.mech:6): falloff ... (was: falloff ... at base.mech:12)``."""
+        where = f" ({self.location.file}:{self.location.line})" if self.location else ""
+        base = f" at {self.base_location.file}:{self.base_location.line}" if self.base_location else ""
+        if self.kind == "changed":
+            return f"changed {self.reaction_id}{where}: {self.after} (was: {self.before}{base})"
+        if self.kind == "dropped":
+            return f"dropped {self.reaction_id}{where} (was: {self.before}{base})"
+        return f"added {self.reaction_id}{where}: {self.after}"
+
+
+@dataclass(frozen=True)
 class Mechanism:
     species: tuple[Species, ...]
     reactions: tuple[Reaction, ...]
@@ -135,6 +180,8 @@ class Mechanism:
     source: str = ""                     # path of the top-level file
     text: str = ""                       # full text of all files read, in read order (for the hash)
     warnings: tuple = ()                 # Problem objects with severity "warning"
+    files: tuple = ()                    # MechanismFile of every file read, top-level first
+    changes: tuple = ()                  # MechanismChange made by files that extend another
 
     # -- lookups -------------------------------------------------------------
     @property

@@ -18,11 +18,17 @@ from types import MappingProxyType
 
 from ..errors import BoxchemError, MechanismError, Problem, SourceLocation
 from .formula import FormulaError, molar_mass, parse_formula
-from .model import RATE_LAWS, Cycle, Family, Mechanism, Reaction, Species, Term
+from .model import (RATE_LAWS, Cycle, Family, Mechanism, MechanismChange, MechanismFile, Reaction,
+                    Species, Term)
 
-__all__ = ["parse_mechanism", "load_mechanism", "LAW_KEYS", "SECTIONS"]
+__all__ = ["parse_mechanism", "load_mechanism", "parse_stored_mechanism", "LAW_KEYS", "SECTIONS",
+           "EXTENDS_WORD"]
 
-SECTIONS = ("species", "families", "reactions", "cycles", "replace", "remove")
+SECTIONS = ("species", "families", "reactions", "cycles", "changed reactions", "dropped reactions")
+#: first word of the line that builds a mechanism on another (as scenarios do with extends = "...")
+EXTENDS_WORD = "extends"
+#: spellings of earlier versions of the language -> what to write now (docs/mechanism-language.md)
+_OLD_SECTIONS = {"replace": "changed reactions", "remove": "dropped reactions"}
 
 #: keys each law takes: required keys, and defaults the parser stores explicitly
 LAW_KEYS: dict[str, dict[str, object]] = {
@@ -40,7 +46,7 @@ STRING_KEYS = frozenset({"of", "data", "on"})
 #: keys every reaction may carry (stored on the Reaction, not in parameters)
 COMMON_KEYS = ("f298", "g", "ref")
 #: words that cannot name a species
-RESERVED = frozenset({"hv", *RATE_LAWS, "include", "atoms", "destroys"})
+RESERVED = frozenset({"hv", *RATE_LAWS, EXTENDS_WORD, "include", "atoms", "destroys"})
 
 _NAME = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")
 _TOKEN = re.compile(r"""
@@ -72,8 +78,8 @@ def _relative_data_path(value: str, base_dir: Path | None) -> str:
 
     A value with a file suffix or a path separator is a path (the rule of
     ``photolysis.crosssections``); a relative one is read relative to the
-    folder of the mechanism file that says it, like ``include`` paths, so that
-    a ``[replace]`` line in a user's file finds the user's lab spectrum from
+    folder of the mechanism file that says it, like ``extends`` paths, so that
+    a ``[changed reactions]`` line in a user's file finds the user's lab spectrum from
     any working directory.  Bare names (shipped data sets) are kept as given.
     """
     looks_like_path = Path(value).suffix != "" or "/" in value or "\\" in value
@@ -221,9 +227,14 @@ class _Side:
 
 
 class _Reader:
-    """Accumulates the contents of a mechanism and of every file it includes."""
+    """Accumulates the contents of a mechanism and of every file it extends.
 
-    def __init__(self):
+    ``stored`` (a sequence of MechanismFile, as a result file records them)
+    makes ``extends`` lines read the stored texts instead of the disk, so a
+    run can be repeated from its result file alone.
+    """
+
+    def __init__(self, stored=None):
         self.problems: list[Problem] = []
         self.species: dict[str, Species] = {}
         self.families: dict[str, tuple[Family, str | None]] = {}
@@ -232,8 +243,15 @@ class _Reader:
         self.broken_species: set[str] = set()
         self.broken_ids: set[str] = set()
         self.texts: list[str] = []
+        self.files: list[MechanismFile] = []
+        self.changes: list[MechanismChange] = []
+        self.stored = tuple(stored) if stored is not None else None
+        self.stored_current = 0           # index in self.stored of the file being read
+        self.current_file = -1            # index in self.files of the file being read
+        #: files (indices) that have read their extends line: new reactions there are "added"
+        self.extending: set[int] = set()
         self.stack: list[Path] = []
-        #: an include could not be read: the mechanism is incomplete, so unknown names are
+        #: a base (extends) could not be read: the mechanism is incomplete, so unknown names are
         #: follow-on errors of that one problem and are not reported
         self.include_failed = False
         #: reactions whose equation was read but whose keys had errors: their species are
@@ -247,11 +265,11 @@ class _Reader:
         self.problems.append(Problem(message, loc))
 
     # -- files -----------------------------------------------------------------
-    def read_file(self, path: Path, include_loc: SourceLocation | None) -> None:
+    def read_file(self, path: Path, include_loc: SourceLocation | None, reference: str = "") -> None:
         resolved = path.resolve()
         if resolved in self.stack:
             chain = " -> ".join(p.name for p in [*self.stack, resolved])
-            self.problems.append(Problem(f"include loop: {chain}", include_loc))
+            self.problems.append(Problem(f"{EXTENDS_WORD} loop: {chain}", include_loc))
             self.include_failed = True
             return
         try:
@@ -263,17 +281,21 @@ class _Reader:
             return
         self.stack.append(resolved)
         try:
-            self.read_text(text, str(path), path.parent)
+            self.read_text(text, str(path), path.parent, reference)
         finally:
             self.stack.pop()
 
-    def read_text(self, text: str, source: str, base_dir: Path) -> None:
+    def read_text(self, text: str, source: str, base_dir: Path, reference: str = "") -> None:
         outer_dir = getattr(self, "base_dir", None)
+        outer_file = self.current_file
         self.base_dir = base_dir      # data=/qy= file paths are relative to this file's folder
+        self.files.append(MechanismFile(source, text, outer_file, reference))
+        self.current_file = len(self.files) - 1
         try:
             self._read_lines(text, source, base_dir)
         finally:
             self.base_dir = outer_dir
+            self.current_file = outer_file
 
     def _read_lines(self, text: str, source: str, base_dir: Path) -> None:
         self.texts.append(text)
@@ -294,15 +316,20 @@ class _Reader:
                     section = self._section(stripped, col0)
                 elif section == _UNKNOWN_SECTION:
                     self._skip_line(line)
-                elif stripped.startswith("include") and re.match(r"include(\s|\"|\Z)", stripped):
+                elif re.match(r"include(\s|\"|\Z)", stripped):
+                    self.include_failed = True      # its names are unknown: no follow-on errors
+                    raise _LineError(_old_include_message(stripped), col0)
+                elif re.match(rf"{EXTENDS_WORD}(\s|\"|\Z)", stripped):
                     if section is not None:
-                        raise _LineError("include lines must come before the first section", col0)
-                    self._include(line, loc, base_dir)
+                        raise _LineError(f"the {EXTENDS_WORD} line must come before the first "
+                                         f"section", col0)
+                    self._extends(line, loc, base_dir)
                 elif section is None:
                     raise _LineError("expected a section header such as [species] or [reactions] "
-                                     "(or an include \"file.mech\" line) before this line", col0)
+                                     f"(or an {EXTENDS_WORD} \"base.mech\" line) before this line",
+                                     col0)
                 else:
-                    getattr(self, f"_line_{section}")(line, loc)
+                    getattr(self, f"_line_{section.replace(' ', '_')}")(line, loc)
             except _LineError as exc:
                 self.error(exc.message, loc, exc.column)
 
@@ -319,27 +346,56 @@ class _Reader:
             self.broken_ids.add(word)
 
     def _section(self, stripped: str, col0: int) -> str | None:
-        m = re.fullmatch(r"\[\s*([A-Za-z_]*)\s*\]", stripped)
+        m = re.fullmatch(r"\[\s*([A-Za-z_]*(?:\s+[A-Za-z_]+)*)\s*\]", stripped)
         if m is None:
             raise _LineError("a section header is a name in brackets, e.g. [reactions]", col0)
-        name = m.group(1)
+        name = " ".join(m.group(1).split())
+        if name in _OLD_SECTIONS:
+            raise _LineError(f"[{name}] is the old spelling of this section: write "
+                             f"[{_OLD_SECTIONS[name]}] (see docs/mechanism-language.md, "
+                             f"\"Building on a mechanism\")", col0 + 1)
         if name not in SECTIONS:
             raise _LineError(f"unknown section [{name}]{_suggest(name, SECTIONS)}; valid sections: "
                              f"{', '.join(f'[{s}]' for s in SECTIONS)}", col0 + 1)
         return name
 
-    def _include(self, line: str, loc: SourceLocation, base_dir: Path) -> None:
-        m = re.fullmatch(r'(\s*)include\s+"([^"]+)"\s*', line)
+    def _extends(self, line: str, loc: SourceLocation, base_dir: Path) -> None:
+        """``extends "NAME_OR_PATH"`` (or ``extends NAME``): read the base mechanism first."""
+        m = re.fullmatch(rf'(\s*){EXTENDS_WORD}\s+(?:"([^"]+)"|([^\s"]+))\s*', line)
         if m is None:
-            raise _LineError('an include line reads: include "relative/path.mech"', loc.column)
+            raise _LineError(f'an {EXTENDS_WORD} line reads: {EXTENDS_WORD} "stratosphere" '
+                             f'(a shipped name) or {EXTENDS_WORD} "relative/path.mech"', loc.column)
+        if self.current_file in self.extending:
+            raise _LineError(f"a mechanism {EXTENDS_WORD} one base (which may itself extend "
+                             f"another); this file already has an {EXTENDS_WORD} line", loc.column)
+        self.extending.add(self.current_file)
+        reference = m.group(2) or m.group(3)
+        col = m.start(2) + 1 if m.group(2) else m.start(3) + 1
+        if self.stored is not None:
+            self._extends_stored(reference, dc_replace(loc, column=col))
+            return
         from ..resources import resolve
         try:
-            path = resolve(m.group(2), "mechanisms", relative_to=base_dir)
+            path = resolve(reference, "mechanisms", relative_to=base_dir)
         except BoxchemError as exc:
             self.include_failed = True
-            raise _LineError(f"include: {exc} (names it would define are not checked until it "
-                             f"is found)", line.index('"') + 2) from None
-        self.read_file(path, dc_replace(loc, column=line.index('"') + 2))
+            raise _LineError(f"{EXTENDS_WORD}: {exc} (names it would define are not checked "
+                             f"until it is found)", col) from None
+        self.read_file(path, dc_replace(loc, column=col), reference)
+
+    def _extends_stored(self, reference: str, loc: SourceLocation) -> None:
+        """The base named by ``reference`` from the stored files (a re-run of a result file)."""
+        for index, f in enumerate(self.stored):
+            if f.parent == self.stored_current and f.reference == reference:
+                outer, self.stored_current = self.stored_current, index
+                try:
+                    self.read_text(f.text, f.path, Path(f.path).parent, reference)
+                finally:
+                    self.stored_current = outer
+                return
+        self.include_failed = True
+        raise _LineError(f"{EXTENDS_WORD} {reference!r}: the stored mechanism holds no such file",
+                         loc.column)
 
     def _line_species(self, line: str, loc: SourceLocation) -> None:
         name_tok, rest = self._head_word(line, loc, "species")
@@ -451,18 +507,20 @@ class _Reader:
     def _line_reactions(self, line: str, loc: SourceLocation) -> None:
         self._reaction(line, loc, replace=False)
 
-    def _line_replace(self, line: str, loc: SourceLocation) -> None:
+    def _line_changed_reactions(self, line: str, loc: SourceLocation) -> None:
         self._reaction(line, loc, replace=True)
 
-    def _line_remove(self, line: str, loc: SourceLocation) -> None:
+    def _line_dropped_reactions(self, line: str, loc: SourceLocation) -> None:
         for m in re.finditer(r"\S+", line):
             rid = m.group(0)
             if rid in self.reactions:
-                del self.reactions[rid]
+                old = self.reactions.pop(rid)
+                self.changes.append(MechanismChange("dropped", rid, dc_replace(loc, column=m.start() + 1),
+                                                    before=old.definition, base_location=old.location))
             elif rid in self.broken_ids or self.include_failed:
                 continue
             else:
-                self.error(f"[remove]: no reaction with id {rid!r}"
+                self.error(f"[dropped reactions]: no reaction with id {rid!r}"
                            f"{_suggest(rid, self.reactions)}", loc, m.start() + 1)
 
     def _reaction(self, line: str, loc: SourceLocation, replace: bool) -> None:
@@ -486,15 +544,22 @@ class _Reader:
             if rid not in self.reactions:
                 if rid in self.broken_ids or self.include_failed:
                     return
-                raise _LineError(f"[replace]: no reaction with id {rid!r} to replace"
+                raise _LineError(f"[changed reactions]: no reaction with id {rid!r} to change"
                                  f"{_suggest(rid, self.reactions)}; new reactions go in [reactions]",
                                  id_col)
+            old = self.reactions[rid]
+            self.changes.append(MechanismChange("changed", rid, reaction.location, before=old.definition,
+                                                after=reaction.definition, base_location=old.location))
             self.reactions[rid] = reaction
         else:
             if rid in self.reactions:
                 first = self.reactions[rid].location
                 raise _LineError(f"duplicate reaction id {rid!r} (first defined at {first}); "
-                                 f"use [replace] to change a reaction", id_col)
+                                 f"change a reaction of the base mechanism in [changed reactions]",
+                                 id_col)
+            if self.current_file in self.extending:
+                self.changes.append(MechanismChange("added", rid, reaction.location,
+                                                    after=reaction.definition))
             self.reactions[rid] = reaction
 
     def _reaction_body(self, line: str, start: int, rid: str, loc: SourceLocation) -> Reaction:
@@ -524,8 +589,10 @@ class _Reader:
         common: dict[str, float | str] = {}
         unbalanced = False
         key_errors: list[_LineError] = []     # independent of each other: all are reported
+        written = [law_tok.text]              # the definition as written, spacing normalised
         while cur.peek() is not None:
             tok = cur.take()
+            written.append(tok.text)
             if tok.kind == "name" and tok.text == "unbalanced":
                 unbalanced = True
                 continue
@@ -545,7 +612,8 @@ class _Reader:
                 id=rid, reactants=reactants, products=products, law=law,
                 parameters=MappingProxyType(params), third_body=third_body, photolysis=photolysis,
                 f298=common.get("f298"), g=common.get("g"), ref=str(common.get("ref", "")),
-                unbalanced=unbalanced, equation=equation, location=loc)
+                unbalanced=unbalanced, equation=equation, location=loc,
+                definition=" ".join(written))
 
         if key_errors:
             # a missing required key is not reported: it may be the one written wrongly
@@ -649,7 +717,8 @@ def _finish(reader: _Reader, source: str, strict: bool) -> Mechanism:
         reactions.append(r)
     mech = Mechanism(species=tuple(reader.species.values()), reactions=tuple(reactions),
                      families=tuple(families), cycles=tuple(reader.cycles.values()),
-                     source=source, text="".join(reader.texts))
+                     source=source, text="".join(reader.texts), files=tuple(reader.files),
+                     changes=tuple(reader.changes))
     if reader.include_failed:
         found = []      # names from the missing file would all be reported as unknown
     else:
@@ -682,13 +751,29 @@ def _in_file_order(problems: list[Problem]) -> list[Problem]:
 
 def parse_mechanism(text: str, source: str = "<string>", *, base_dir: str | Path | None = None,
                     strict: bool = False) -> Mechanism:
-    """Read mechanism text; ``include`` paths are read relative to ``base_dir`` (default cwd).
+    """Read mechanism text; ``extends`` paths are read relative to ``base_dir`` (default cwd).
 
     Raises MechanismError with every problem found (warnings too when ``strict``).
     """
     reader = _Reader()
     reader.read_text(text, source, Path(base_dir) if base_dir is not None else Path.cwd())
     return _finish(reader, source, strict)
+
+
+def parse_stored_mechanism(files, *, strict: bool = False) -> Mechanism:
+    """Read a mechanism from stored files (``Mechanism.files``, as a result file records them).
+
+    ``files[0]`` is the top-level file; its ``extends`` lines are answered from
+    ``files`` (by parent index and the name as written), never from the disk,
+    so the mechanism is the one that ran even if the files were edited since.
+    """
+    files = tuple(files)
+    if not files:
+        raise MechanismError("no stored mechanism files")
+    reader = _Reader(stored=files)
+    top = files[0]
+    reader.read_text(top.text, top.path, Path(top.path).parent)
+    return _finish(reader, top.path, strict)
 
 
 def load_mechanism(name_or_path: str | Path, *, strict: bool = False) -> Mechanism:
@@ -701,3 +786,12 @@ def load_mechanism(name_or_path: str | Path, *, strict: bool = False) -> Mechani
     reader = _Reader()
     reader.read_file(path, None)
     return _finish(reader, str(path), strict)
+
+
+def _old_include_message(stripped: str) -> str:
+    """The error for an ``include`` line: what to write instead, with the file it named."""
+    m = re.match(r'include\s+"([^"]*)"', stripped) or re.match(r"include\s+(\S+)", stripped)
+    name = m.group(1) if m else "stratosphere"
+    return (f"'include' is the old spelling: a mechanism builds on another with one line "
+            f'before the first section, {EXTENDS_WORD} "{name}" (see docs/mechanism-language.md, '
+            f'"Building on a mechanism")')
