@@ -145,7 +145,8 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
                      number_density: np.ndarray, rate_coefficient: np.ndarray,
                      reaction_rate: np.ndarray, environment_state, counters: Mapping[str, Any],
                      status: str, message: str, wall_time_s: float,
-                     photolysis_sources: Mapping[str, str] | None = None) -> xr.Dataset:
+                     photolysis_sources: Mapping[str, str] | None = None,
+                     photolysis_data: Mapping[str, str] | None = None) -> xr.Dataset:
     """Build the output Dataset (DEVELOPERS.md "Output") from arrays at the output times.
 
     ``number_density`` [cm-3] has shape (time, species) in mechanism species
@@ -275,6 +276,10 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
     for name, value in counters.items():
         attrs[f"solver_{name}"] = int(value)
     attrs["history"] = f"{attrs['date_created']}: created by boxchem {__version__} run"
+    # what ran, so that the file alone reproduces it (docs/provenance.md)
+    from .io.provenance import provenance_attrs, reaction_coordinates
+    coords.update(reaction_coordinates(mechanism, photolysis_data))
+    attrs.update(provenance_attrs(mechanism, scenario))
     return xr.Dataset(data_vars=data_vars, coords=coords, attrs=attrs)
 
 
@@ -363,12 +368,13 @@ def _dataset_from_result(setup: RunSetup, result, *, status: str, message: str) 
     counters = {name: getattr(result, name) for name in COUNTER_NAMES}
     counters["coefficient_evaluations"] = getattr(result, "coefficient_evaluations", 0)
     sources = getattr(setup.photolysis, "source", None)
+    data_used = getattr(setup.photolysis, "data_used", None)
     return assemble_dataset(mechanism=mechanism, scenario=setup.scenario, times_s=times,
                             number_density=number_density, rate_coefficient=k,
                             reaction_rate=rates, environment_state=state, counters=counters,
                             status=status, message=message,
                             wall_time_s=getattr(result, "wall_time_s", 0.0),
-                            photolysis_sources=sources)
+                            photolysis_sources=sources, photolysis_data=data_used)
 
 
 def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] | None = None,

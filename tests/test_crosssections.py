@@ -225,7 +225,7 @@ def test_example_bad_files():
 def test_plain_lab_file_with_units_in_parentheses():
     d = load_spectral_file(SPECTRA / "lab_plain.csv")
     assert d.quantity == "cross_section" and d.units == "cm2" and d.species == "lab_plain"
-    assert "plain" in d.provenance
+    assert "lab file" in d.provenance
     # the file's own rows, linear between them and zero outside (tests/data/spectra/lab_plain.csv)
     np.testing.assert_allclose(d([250.0, 255.0, 270.0, 280.0]), [2e-18, 3e-18, 1e-18, 0.0], rtol=1e-12, atol=0)
 
@@ -236,16 +236,23 @@ def test_plain_lab_file_with_units_in_names():
 
 
 def test_plain_lab_file_wrong_units():
-    expect_error(SPECTRA / "bad_lab_angstrom.csv", 1, "wavelength unit 'angstrom'", "in nm")
     expect_error(SPECTRA / "bad_lab_m2.csv", 1, "cross-section unit 'm2'", "in cm2")
+
+
+def test_lab_file_in_angstrom_is_converted_to_nm():
+    # 1 Angstrom = 0.1 nm (SI definition; common practice, no source)
+    d = load_spectral_file(SPECTRA / "bad_lab_angstrom.csv")
+    np.testing.assert_allclose(d.wavelength_nm[:2], [250.0, 260.0])
+    np.testing.assert_allclose(d(np.array([250.0, 260.0])), [2.0e-18, 4.0e-18])
 
 
 @pytest.mark.parametrize("head,fragment", [
     ("wavelength,sigma", "no unit in column 'wavelength'"),
     ("wavelength_nm,sigma", "no unit in column 'sigma'"),
-    ("wavelength (um),sigma (cm2)", "wavelength unit 'um'"),
-    ("wavelength_nm,sigma_cm-1", "cross-section unit 'cm-1'"),
-    ("wavelength_nm,sigma_cm2,error_cm2", "3 columns"),
+    ("wavelength (cm),sigma (cm2)", "wavelength unit 'cm'"),
+    ("wavelength (nm),sigma (cm-1)", "cross-section unit 'cm-1'"),
+    ("wavelength_nm,sigma_cm2,error", "no unit in column 'error' of an uncertainty column"),
+    ("wavelength_nm,sigma_200K_cm2,sigma_cm2", "names no temperature"),
     ("250,2e-18", "a header line naming the columns"),
 ])
 def test_plain_lab_file_header_problems(tmp_path, head, fragment):

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 
 from boxchem.cli import main
-from boxchem.errors import DataFileError, ScenarioError
+from boxchem.errors import DataFileError, MechanismError, ScenarioError
 from boxchem.mechanism import load_mechanism
 from boxchem.photolysis.crosssections import cross_section_data
 from boxchem.photolysis.rates import PhotolysisRates
@@ -86,9 +86,12 @@ def test_missing_relative_data_file_without_lmn_is_an_error_naming_the_path(tmp_
     (tmp_path / "m.mech").write_text(
         'extends "stratosphere"\n[changed reactions]\n'
         'j_cl2o2  Cl2O2 + hv -> Cl + ClOO  photolysis data=nothere.csv\n', encoding="utf-8")
-    mech = load_mechanism(str(tmp_path / "m.mech"))
-    with pytest.raises(DataFileError, match=r"nothere\.csv"):
-        _j(mech, "j_cl2o2")
+    # an error when the mechanism is read (check and run), at the data= column
+    with pytest.raises(MechanismError) as info:
+        load_mechanism(str(tmp_path / "m.mech"))
+    p = info.value.problems[0]
+    assert p.location.line == 3 and p.location.text[p.location.column - 1:].startswith("data=")
+    assert "nothere.csv" in p.message and "no such file" in p.message
 
 
 # ---------------------------------------------------------------------------
@@ -143,11 +146,12 @@ def test_scenario_cross_sections_key_feeds_the_run(stratosphere):
     ('{ cl_o3 = "lab.csv" }', r"\[photolysis\]\.cross_sections\.cl_o3: no photolysis reaction"),
     ('{ j_cl2o2 = 3 }', r"\[photolysis\]\.cross_sections\.j_cl2o2: expected a file path string"),
     ('"lab.csv"', r"\[photolysis\]\.cross_sections: expected a table"),
-    ('{ j_cl2o2 = "bad.csv" }', r"\[photolysis\]\.cross_sections\.j_cl2o2: .*bad\.csv:3: "),
+    ('{ j_cl2o2 = "bad.csv" }', r"\[photolysis\]\.cross_sections\.j_cl2o2: .*bad\.csv:4: "),
 ])
 def test_scenario_cross_sections_errors_name_the_key(tmp_path, stratosphere, table, message):
     _write_lab_file(tmp_path / "lab.csv", LAB_FACTOR)
-    (tmp_path / "bad.csv").write_text("wavelength_nm,sigma_cm2\n200,1e-18\n190,2e-18\n", encoding="utf-8")
+    (tmp_path / "bad.csv").write_text("wavelength_nm,sigma_cm2\n200,1e-18\n210,2e-18\n205,2e-18\n",
+                                      encoding="utf-8")
     text = _SCENARIO + f"[photolysis]\ncross_sections = {table}\n"
     with pytest.raises(ScenarioError, match=message):
         Scenario.from_text(text, base_dir=tmp_path, source="t.toml", mechanism=stratosphere)

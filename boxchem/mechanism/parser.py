@@ -38,11 +38,11 @@ LAW_KEYS: dict[str, dict[str, object]] = {
     "chemact": {"required": ("k0", "n", "kinf", "m"), "defaults": {"Fc": 0.6, "Tref": 300.0}},
     "reverse": {"required": ("of", "K", "B"), "defaults": {}},
     "photolysis": {"required": (), "defaults": {"qy": 1.0, "scale": 1.0},
-                   "optional": ("data", "l", "m", "n")},
+                   "optional": ("data", "l", "m", "n", "outside")},
     "surface": {"required": ("gamma", "on"), "defaults": {}},
 }
 #: keys whose values are text, not numbers
-STRING_KEYS = frozenset({"of", "data", "on"})
+STRING_KEYS = frozenset({"of", "data", "on", "outside"})
 #: keys every reaction may carry (stored on the Reaction, not in parameters)
 COMMON_KEYS = ("f298", "g", "ref")
 #: words that cannot name a species
@@ -725,6 +725,9 @@ def _finish(reader: _Reader, source: str, strict: bool) -> Mechanism:
         found = validate_mechanism(mech, ignore_species=frozenset(reader.broken_species),
                                    ignore_reactions=frozenset(reader.broken_ids),
                                    names_only=tuple(reader.partial_reactions))
+        # data=/qy= files: missing ones are errors, partial spectra are reported
+        from ..photolysis.datacheck import photolysis_file_problems
+        found += photolysis_file_problems(mech)
     errors = [p for p in reader.problems + found if p.severity == "error"]
     warnings = [p for p in found if p.severity == "warning"]
     if strict:

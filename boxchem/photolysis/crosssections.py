@@ -2,8 +2,9 @@
 
 The file format ("boxchem-spectral 1") is documented in docs/spectral-data.md:
 a block of ``# key: value`` header lines, then a CSV table whose first column
-is ``wavelength_nm``.  Plain two-column lab files (one header line naming the
-units, wavelength in nm and cross section in cm2) are read too.
+is ``wavelength_nm``.  Lab files as labs write them (comma, tab or white-space
+separated, units in the header, nm or Angstrom, several temperature columns,
+uncertainty columns) are read by :mod:`boxchem.photolysis.labfile`.
 
 Public API:
 
@@ -93,6 +94,8 @@ class SpectralData:
     notes: str = ""
     path: str = ""
     header: dict = field(default_factory=dict, repr=False)
+    #: absolute 1-sigma uncertainty [cm2] like ``values`` (NaN where none), from a lab file
+    uncertainty: np.ndarray | None = field(default=None, repr=False)
 
     # -- temperature ------------------------------------------------------
     def _clamped_temperature(self, temperature_K: np.ndarray) -> np.ndarray:
@@ -257,7 +260,7 @@ class ConstantYield:
 # reading files
 
 def load_spectral_file(path: str | Path) -> SpectralData:
-    """Read a spectral data file (our format, or a plain two-column lab file).
+    """Read a spectral data file (our format, or a lab file: docs/spectral-data.md).
 
     Raises DataFileError with ``file:line: what was found; what was expected``.
     """
@@ -276,9 +279,28 @@ def load_spectral_file(path: str | Path) -> SpectralData:
     if first is None:
         raise DataFileError(f"{p}:1: empty file; expected '# format: {FORMAT_NAME}' header "
                             "lines and a table, or a two-column CSV with a header line")
-    if lines[first].lstrip().startswith("#"):
+    if _is_boxchem_format(lines):
         return _read_boxchem_file(p, lines)
-    return _read_plain_file(p, lines, first)
+    from .labfile import read_lab_file
+    return read_lab_file(p, lines)
+
+
+def _is_boxchem_format(lines: list[str]) -> bool:
+    """True when the leading comment block is our header (a format line, or 3+ of our keys).
+
+    Anything else - a lab file with free-text comments, or none - is read as a lab file.
+    """
+    keys = set()
+    for ln in lines:
+        raw = ln.strip()
+        if not raw:
+            continue
+        if not raw.startswith("#"):
+            break
+        m = _HEADER_RE.match(raw)
+        if m and m.group(1) in _KNOWN_KEYS:
+            keys.add(m.group(1))
+    return "format" in keys or len(keys) >= 3
 
 
 def _err(path: Path, line: int, found: str, expected: str) -> DataFileError:
@@ -488,51 +510,6 @@ def _check_values(p: Path, wl: np.ndarray, vals: np.ndarray, quantity: str, dep:
         raise _err(p, linenos[k], f"quantum yield {float(v)!r}", "values in [0, 1]")
 
 
-# plain lab files: 'wavelength_nm,cross_section_cm2' or 'wavelength (nm), sigma (cm^2)'
-_XS_UNITS = {"cm2", "cm^2", "cm**2", "cm²"}
-
-
-def _unit_of(name: str) -> str | None:
-    """Unit named in a column header: '(nm)', '[nm]', '_nm', ' nm' or '/nm'."""
-    s = name.strip().lower()
-    m = re.search(r"[\(\[]\s*([^\)\]]+?)\s*[\)\]]\s*$", s)
-    if m:
-        return m.group(1).replace(" ", "")
-    m = re.search(r"(?:[_ /]|^)([a-zµå²^*0-9\-]+)$", s)
-    if m and m.group(1) != s:
-        return m.group(1)
-    return None
-
-
-def _read_plain_file(p: Path, lines: list[str], first: int) -> SpectralData:
-    head = lines[first]
-    columns = [c.strip() for c in head.split(",")]
-    expected_head = "'wavelength_nm,cross_section_cm2' or 'wavelength (nm), sigma (cm^2)'"
-    if len(columns) != 2:
-        raise _err(p, first + 1, f"{len(columns)} columns in header {head.strip()!r}",
-                   f"'# format: {FORMAT_NAME}' header lines, or a plain two-column file with "
-                   f"header {expected_head}")
-    if _is_float(columns[0]):
-        raise _err(p, first + 1, f"numbers {head.strip()!r} on the first line",
-                   f"a header line naming the columns and units, e.g. {expected_head}")
-    wl_unit, xs_unit = _unit_of(columns[0]), _unit_of(columns[1])
-    if wl_unit != "nm":
-        found = f"wavelength unit {wl_unit!r}" if wl_unit else f"no unit in column {columns[0]!r}"
-        raise _err(p, first + 1, found, "wavelength in nm, e.g. 'wavelength_nm' or 'wavelength (nm)'")
-    if xs_unit not in _XS_UNITS:
-        found = f"cross-section unit {xs_unit!r}" if xs_unit else f"no unit in column {columns[1]!r}"
-        raise _err(p, first + 1, found,
-                   "cross section in cm2, e.g. 'cross_section_cm2' or 'sigma (cm^2)'")
-    wl, vals, linenos = _read_rows(p, lines, first + 1, 2)
-    _check_values(p, wl, vals, "cross_section", "none", linenos)
-    return SpectralData(
-        species=p.stem, channel="", quantity="cross_section", units="cm2",
-        temperature_dependence="none", source=f"user file {p}",
-        provenance="plain two-column file (no header block)", wavelength_nm=_frozen(wl),
-        temperatures=_frozen(np.array([], dtype=float)), values=_frozen(vals.T.copy()),
-        outside_range="zero", path=str(p), header={})
-
-
 # --------------------------------------------------------------------------
 # shipped data sets by name
 
@@ -565,6 +542,9 @@ def _resolve(name_or_path, quantity: str) -> SpectralData:
         lower = {n.lower(): n for n in names}
         hints = [lower[h] for h in difflib.get_close_matches(text.lower(), list(lower), n=3,
                                                               cutoff=0.5)]
+        if looks_like_path:
+            raise DataFileError(f"no {label} file {text!r} (no such file); expected a readable "
+                                f"file (docs/spectral-data.md) or the name of a shipped data set")
         msg = f"no {label} file {text!r} and no shipped {label} data set named {text!r}"
         if hints:
             msg += f"; close matches: {', '.join(hints)}"

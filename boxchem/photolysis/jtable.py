@@ -67,14 +67,23 @@ def integrate_j(flux, sigma_phi, edges_nm):
 
 
 def load_reaction_data(reaction, cross_sections=None, quantum_yields=None):
-    """(cross section, quantum yield) data of a ``data=`` reaction (user overrides first)."""
-    from .crosssections import SpectralData, cross_section_data, quantum_yield_data
+    """(cross section, quantum yield) data of a ``data=`` reaction (user overrides first).
 
-    xs = (cross_sections or {}).get(reaction.id, reaction.parameters.get("data"))
+    A user spectrum that covers only part of the shipped one is spliced or
+    refused by the reaction's ``outside=`` rule (:mod:`boxchem.photolysis.splice`).
+    """
+    return load_reaction_data_noted(reaction, cross_sections, quantum_yields)[:2]
+
+
+def load_reaction_data_noted(reaction, cross_sections=None, quantum_yields=None):
+    """(cross section, quantum yield, note): ``note`` says what a partial spectrum did, else None."""
+    from .crosssections import quantum_yield_data
+    from .splice import reaction_cross_section
+
+    xs, note = reaction_cross_section(reaction, (cross_sections or {}).get(reaction.id))
     qy = (quantum_yields or {}).get(reaction.id, reaction.parameters.get("qy", 1.0))
-    xs = xs if isinstance(xs, SpectralData) else cross_section_data(xs)
     qy = qy if hasattr(qy, "bin_average") else quantum_yield_data(qy)
-    return xs, qy
+    return xs, qy, note
 
 
 class JTable:
@@ -154,9 +163,10 @@ def build_jtable(reactions, *, altitude_m, albedo, temperature_grid=None, ozone_
                  quantum_yields=None, ozone_profile="midlatitude"):
     """J table for the ``data=`` reactions at the box.
 
-    Returns ``(JTable, failures)``; ``failures`` maps reaction id -> message for
-    reactions whose data sets could not be loaded (they are absent from the
-    table's columns: the table has one column per reaction that loaded).
+    Returns ``(JTable, notes)``; ``notes`` maps reaction id -> what a partial
+    user spectrum did (spliced onto the shipped one, or zero outside).  A data
+    set that cannot be loaded raises DataFileError naming the reaction: a
+    run never falls back silently.
     """
     from ..environment.solar import horizon_zenith_angle
     from .actinic import flux_grid
@@ -171,14 +181,17 @@ def build_jtable(reactions, *, altitude_m, albedo, temperature_grid=None, ozone_
             raise BoxchemError(f"{name}: expected at least two increasing values, got {grid!r}")
     edges = model_wavelength_edges() if wavelength_edges_nm is None else np.asarray(wavelength_edges_nm, float)
 
-    data, ids, failures = [], [], {}
+    data, ids, notes = [], [], {}
     for r in reactions:
         try:
-            data.append(load_reaction_data(r, cross_sections, quantum_yields))
-            ids.append(r.id)
+            xs, qy, note = load_reaction_data_noted(r, cross_sections, quantum_yields)
         except DataFileError as exc:
-            failures[r.id] = str(exc)
+            raise DataFileError(f"reaction {r.id!r}: {exc}") from None
+        data.append((xs, qy))
+        ids.append(r.id)
+        if note:
+            notes[r.id] = note
     flux = flux_grid(sza, altitude_m, ozone, albedo=albedo, wavelength_edges_nm=wavelength_edges_nm,
                      ozone_profile=ozone_profile)
     j = integrate_j(flux, spectral_product(data, edges, temps), edges)   # (n_sza, n_oz, n_T, n_r)
-    return JTable(sza, ozone, temps, j, horizon, ids), failures
+    return JTable(sza, ozone, temps, j, horizon, ids), notes

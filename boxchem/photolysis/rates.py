@@ -7,8 +7,9 @@ ozone column, temperature) is precomputed at construction:
 * ``method="spectral"``: reactions with ``data=`` get J from a table of
   spectrally integrated J-values on a (SZA, ozone column, temperature) grid
   (:mod:`boxchem.photolysis.jtable`), interpolated at call time.  Reactions
-  with only ``l= m= n=`` use the parametric form below; a reaction whose data
-  set cannot be loaded falls back to its ``l m n`` with a warning.
+  with only ``l= m= n=`` use the parametric form below.  A data set that
+  cannot be loaded is an error (DataFileError naming the reaction), also when
+  the reaction has ``l m n``: a run never swaps its J silently.
 * ``method="parametric"``: every photolysis reaction uses ``l m n``.
 
 The parametric form and its extension to grazing sun
@@ -44,11 +45,9 @@ spring) values of 0.6-0.9 are more realistic: set it per scenario.
 """
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 
-from ..errors import BoxchemError, DataFileError
+from ..errors import BoxchemError
 
 #: default Lambertian albedo below the box (see module docstring)
 DEFAULT_ALBEDO = 0.3
@@ -57,10 +56,6 @@ METHODS = ("spectral", "parametric")
 _AIRMASS_STEP_DEG = 0.01
 #: below this SZA [deg] the parametric form uses sec(chi) exactly
 SEC_LIMIT_DEG = 75.0
-
-
-class PhotolysisWarning(UserWarning):
-    """A photolysis data set could not be used; the parametric form is used instead."""
 
 
 def _lmn(reaction):
@@ -138,6 +133,13 @@ class PhotolysisRates:
         spectral_cols, spectral_reactions = [], []
         param_cols, param_lmn = [], []
         self.source: dict[str, str] = {}      # reaction id -> "spectral" / "parametric"
+        #: reaction id -> what a partial user spectrum did (spliced / zero outside)
+        self.data_notes: dict[str, str] = {}
+        #: reaction id -> the cross-section data set its J came from, with any note
+        self.data_used: dict[str, str] = {}
+        #: the same for the user spectra given here (cross_sections=), not in the mechanism:
+        #: (reaction id, note) for the caller to report (the mechanism's own are its warnings)
+        self.notices: list[tuple[str, str]] = []
         scale = np.zeros(self.n_reactions)
         for i, r in enumerate(mechanism.reactions):
             if r.law != "photolysis":
@@ -159,28 +161,20 @@ class PhotolysisRates:
         self.table = None
         if spectral_reactions:
             from .jtable import build_jtable
-            table, failures = build_jtable(
+            table, notes = build_jtable(
                 spectral_reactions, altitude_m=altitude_m, albedo=self.albedo,
                 temperature_grid=temperature_grid, ozone_grid_DU=ozone_grid_DU,
                 sza_grid_deg=sza_grid_deg, wavelength_edges_nm=wavelength_edges_nm,
                 cross_sections=cross_sections, quantum_yields=quantum_yields)
-            kept = []
-            for col, r in zip(spectral_cols, spectral_reactions):
-                if r.id in failures:
-                    lmn = _lmn(r)
-                    if lmn is None:
-                        raise DataFileError(f"reaction {r.id!r}: {failures[r.id]}; and it has no "
-                                            f"l= m= n= fallback")
-                    warnings.warn(f"reaction {r.id!r}: {failures[r.id]}; using its l m n form",
-                                  PhotolysisWarning, stacklevel=2)
-                    param_cols.append(col)
-                    param_lmn.append(lmn)
-                    self.source[r.id] = "parametric"
-                else:
-                    kept.append(col)
-                    self.source[r.id] = "spectral"
+            for r in spectral_reactions:
+                self.source[r.id] = "spectral"
+            self.data_notes = dict(notes)
+            for r in spectral_reactions:
+                used = str(cross_sections.get(r.id, r.parameters.get("data")))
+                self.data_used[r.id] = used + (f" ({notes[r.id]})" if r.id in notes else "")
+            self.notices = [(rid, note) for rid, note in notes.items() if rid in cross_sections]
             self.table = table
-            self._spectral_cols = np.asarray(kept, dtype=np.intp)
+            self._spectral_cols = np.asarray(spectral_cols, dtype=np.intp)
             self._spectral_scale = scale[self._spectral_cols]
         else:
             self._spectral_cols = np.zeros(0, dtype=np.intp)
