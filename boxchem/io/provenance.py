@@ -15,7 +15,9 @@ A run's Dataset gets (docs/provenance.md):
 * ``photolysis_data`` (reaction, str): the cross-section data set each J
   came from, and what a partial user spectrum did;
 * ``scenario_data`` (JSON): the scenario table that ran (its files merged,
-  overrides applied, file paths made absolute); ``command_line``.
+  overrides applied, file paths made absolute); ``command_line``;
+  ``input_files`` (JSON): the user data files read, with their sha256 and
+  (up to ``MAX_STORED_FILE_BYTES``) their text.
 
 :func:`mechanism_files` and :func:`scenario_data` read them back
 (``boxchem rerun`` uses them).
@@ -34,6 +36,8 @@ __all__ = ["MECHANISM_FILE_MARKER", "provenance_attrs", "reaction_coordinates", 
            "scenario_data", "command_line"]
 
 MECHANISM_FILE_MARKER = "#>>> boxchem mechanism file "
+#: user data files up to this size are stored in the result (input_files), bigger ones by hash only
+MAX_STORED_FILE_BYTES = 2_000_000
 
 
 def command_line() -> str:
@@ -70,10 +74,44 @@ def _scenario_table(scenario) -> dict:
     return data
 
 
+def _sha256(path: Path) -> str:
+    import hashlib
+    try:
+        return hashlib.sha256(path.read_bytes()).hexdigest()
+    except OSError:
+        return ""
+
+
+def input_files(mechanism, scenario) -> list[dict]:
+    """User data files the run read (data=/qy= paths, scenario files), with their sha256."""
+    from ..photolysis.crosssections import DATA_DIR
+    paths: list[str] = []
+    for r in mechanism.reactions:
+        for key in ("data", "qy"):
+            value = r.parameters.get(key)
+            if isinstance(value, str) and Path(value).is_absolute() and \
+                    not value.startswith(str(DATA_DIR)):
+                paths.append(value)
+    paths += [str(p) for p in scenario.photolysis_cross_sections.values()]
+    if scenario.trajectory is not None:
+        paths.append(str(scenario.trajectory))
+    out = []
+    for p in dict.fromkeys(paths):
+        entry = {"path": p, "sha256": _sha256(Path(p))}
+        try:
+            if Path(p).stat().st_size <= MAX_STORED_FILE_BYTES:
+                entry["text"] = Path(p).read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError):
+            pass
+        out.append(entry)
+    return out
+
+
 def provenance_attrs(mechanism, scenario) -> dict[str, str]:
     """Global attributes: mechanism files and changes, scenario table, command line."""
     text, index = _mechanism_text_and_index(mechanism)
     return {
+        "input_files": json.dumps(input_files(mechanism, scenario)),
         "mechanism_text": text,
         "mechanism_files": json.dumps(index),
         "mechanism_changes": "\n".join(c.describe() for c in mechanism.changes),
