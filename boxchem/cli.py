@@ -41,6 +41,8 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    from .invocation import record
+    record(list(sys.argv[1:] if argv is None else argv))    # provenance of result files
     if not getattr(args, "func", None):
         parser.print_help()
         return 0

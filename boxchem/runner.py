@@ -430,5 +430,9 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
             bar.close()
     ds = _dataset_from_result(setup, result, status="success", message=result.message)
     ds.attrs["wall_time_s"] = _time.perf_counter() - wall0
+    # partial user spectra given in the scenario (the mechanism's own are its warnings)
+    ds.attrs["photolysis_notes"] = "\n".join(
+        f"[photolysis].cross_sections.{rid}: {note}"
+        for rid, note in getattr(setup.photolysis, "notices", ()))
     ds.attrs["solver_breakpoints"] = int(setup.breakpoints_s.size)
     return ds

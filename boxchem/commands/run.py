@@ -110,6 +110,17 @@ def partial_path(out: Path) -> Path:
     return out.with_name(f"{out.stem}.partial.nc")
 
 
+def print_mechanism_warnings(mechanism) -> None:
+    """The warnings of the user's own mechanism files (file:line:col: warning: ...) on stderr.
+
+    Those of an extended shipped mechanism are left out, as ``boxchem check`` does.
+    """
+    from .check import _in_shipped_file
+    for w in getattr(mechanism, "warnings", ()):
+        if not _in_shipped_file(w):
+            print(w.format(), file=sys.stderr)
+
+
 def main(args) -> int:
     from ..io.netcdf import write_dataset
     from ..runner import run
@@ -126,6 +137,7 @@ def main(args) -> int:
     if scale or overrides:
         scenario = scenario.with_overrides(scale=scale or None, origins=origins, **overrides)
     out = Path(args.output) if args.output else default_output(args.scenario)
+    print_mechanism_warnings(scenario.mechanism)
     try:
         ds = run(scenario, progress=not args.quiet)
     except IntegrationError as exc:
@@ -137,6 +149,8 @@ def main(args) -> int:
         else:
             print(f"boxchem run: integration failed: {exc}", file=sys.stderr)
         return 1
+    for note in filter(None, str(ds.attrs.get("photolysis_notes", "")).split("\n")):
+        print(f"{scenario.source}: warning: {note}", file=sys.stderr)
     write_dataset(ds, out)
     if not args.quiet:
         print(summary(ds, out, time.perf_counter() - wall0))

@@ -25,8 +25,6 @@ A run's Dataset gets (docs/provenance.md):
 from __future__ import annotations
 
 import json
-import shlex
-import sys
 from pathlib import Path
 from typing import Any, Mapping
 
@@ -41,11 +39,8 @@ MAX_STORED_FILE_BYTES = 2_000_000
 
 
 def command_line() -> str:
-    """The command that is running: ``boxchem run ...`` for the CLI, else the Python command."""
-    argv = list(sys.argv)
-    if argv and (Path(argv[0]).name in ("boxchem", "__main__.py")):
-        return shlex.join(["boxchem", *argv[1:]])
-    return shlex.join([Path(sys.executable).name, *argv])
+    from ..invocation import command_line as current
+    return current()
 
 
 def _mechanism_text_and_index(mechanism) -> tuple[str, list[dict]]:
