@@ -67,7 +67,7 @@ def register(subparsers) -> None:
     p.add_argument("--fit-lmn", action="store_true",
                    help="also fit l m n of J = l cos^m exp(-n sec) to J on a fine SZA grid")
     p.add_argument("--cross-section", metavar="FILE", help="a cross-section file (our format or a "
-                   "two-column lab CSV: wavelength nm, cross section cm2)")
+                   "lab file: docs/spectral-data.md, 'Lab files')")
     p.add_argument("--quantum-yield", metavar="FILE|VALUE", default="1",
                    help="quantum yield for --cross-section (file or number, default 1)")
     p.set_defaults(func=run)
@@ -213,9 +213,21 @@ def _lab_rows(args, sza, altitude, ozone, temperature):
     if args.reference and args.reference not in shipped_cross_sections():
         raise BoxchemError(f"--reference {args.reference!r}: no shipped cross-section data set of that "
                            f"name; valid: {', '.join(shipped_cross_sections())}")
+    spliced = None
     if ref_name:
         reference = (cross_section_data(ref_name), qy)
         pairs.append(reference)
+        from ..photolysis.splice import SplicedSpectrum, uncovered_ranges
+        missing = uncovered_ranges(xs, reference[0])
+        if missing and xs.outside_range == "zero":
+            # what a run uses by default (outside=splice): the file there, the shipped set elsewhere
+            spliced = (SplicedSpectrum(xs, reference[0]), qy)
+            pairs.append(spliced)
+            gaps = " and ".join(f"{a:g}-{b:g} nm" for a, b in missing)
+            print(f"{args.cross_section}: warning: the file covers {xs.wavelength_nm[0]:g}-"
+                  f"{xs.wavelength_nm[-1]:g} nm, but shipped {ref_name} also absorbs at {gaps}: "
+                  f"the file's J alone leaves that out; a run splices the shipped values in "
+                  f"(row 'spliced'; docs/spectral-data.md, \"Partial spectra\")", file=sys.stderr)
     j = _j_direct(pairs, sza, altitude, ozone, temperature, args.albedo, args.ozone_profile)
     rows = []
     for s_i, s in enumerate(sza):
@@ -223,6 +235,10 @@ def _lab_rows(args, sza, altitude, ozone, temperature):
         if reference is not None:
             ratio = j[s_i, 0] / j[s_i, 1] if j[s_i, 1] > 0 else float("nan")
             rows.append((f"{ref_name} (shipped)", f"ratio file/shipped = {ratio:.6g}", s, j[s_i, 1],
+                         "spectral"))
+        if spliced is not None:
+            ratio = j[s_i, 2] / j[s_i, 1] if j[s_i, 1] > 0 else float("nan")
+            rows.append((f"{label} spliced", f"ratio spliced/shipped = {ratio:.6g}", s, j[s_i, 2],
                          "spectral"))
     fits = []
     if args.fit_lmn:
