@@ -254,3 +254,16 @@ def test_partial_spectrum_warning_is_a_boxchem_message_not_a_python_warning(tmp_
     err = capsys.readouterr().err
     assert f"{tmp_path / 'm.mech'}:3:46: warning: reaction 'j_cl2o2':" in err and "spliced" in err
     assert main(["check", str(tmp_path / "m.mech"), "--strict"]) == 2      # refused under --strict
+
+
+def test_run_prints_the_splice_of_the_users_spectrum_with_file_and_line(tmp_path, capsys):
+    from boxchem.commands.run import print_mechanism_warnings
+    from boxchem.mechanism import load_mechanism
+    _write(tmp_path, "part.csv", _shipped_on(240.0, 300.0, factor=1.3))
+    (tmp_path / "m.mech").write_text('extends "stratosphere"\n[changed reactions]\n'
+                                     'j_cl2o2  Cl2O2 + hv -> Cl + ClOO  photolysis data=part.csv\n',
+                                     encoding="utf-8")
+    print_mechanism_warnings(load_mechanism(tmp_path / "m.mech"))
+    err = capsys.readouterr().err
+    assert err.startswith(f"{tmp_path / 'm.mech'}:3:46: warning: reaction 'j_cl2o2':") and "spliced" in err
+    assert "never produced" not in err       # the shipped file's warnings are check's business

@@ -374,6 +374,8 @@ def scenario_day_jvalues(scenario, day, step_s: float = 600.0) -> dict:
                                                 scenario.photolysis_cross_sections.items()})
     for w in caught:
         print(f"warning: {w.message}", file=sys.stderr)
+    for rid, note in rates.notices:
+        print(f"{scenario.source}: warning: [photolysis].cross_sections.{rid}: {note}", file=sys.stderr)
     j = rates(state.solar_zenith_angle, state.ozone_column, state.temperature, state.distance_factor)
     return {"time": times, "sza": np.asarray(state.solar_zenith_angle, float),
             "horizon": np.asarray(state.horizon_zenith_angle, float),

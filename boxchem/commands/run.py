@@ -111,13 +111,16 @@ def partial_path(out: Path) -> Path:
 
 
 def print_mechanism_warnings(mechanism) -> None:
-    """The warnings of the user's own mechanism files (file:line:col: warning: ...) on stderr.
+    """Warnings about the mechanism's data files (partial lab spectra) as file:line:col messages.
 
-    Those of an extended shipped mechanism are left out, as ``boxchem check`` does.
+    Only those: the other warnings of a mechanism (species never produced, ...)
+    are the business of ``boxchem check``, but what a run does with a user's
+    spectrum must be seen by whoever runs it.
     """
+    from ..photolysis.datacheck import photolysis_file_problems
     from .check import _in_shipped_file
-    for w in getattr(mechanism, "warnings", ()):
-        if not _in_shipped_file(w):
+    for w in photolysis_file_problems(mechanism):
+        if w.severity == "warning" and not _in_shipped_file(w):
             print(w.format(), file=sys.stderr)
 
 
