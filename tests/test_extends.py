@@ -64,8 +64,9 @@ def test_extends_changes_drops_and_adds_by_id():
 
 
 def test_extends_without_quotes_and_a_second_extends_is_an_error(tmp_path):
-    mech = parse_mechanism("extends small.mech\n[dropped reactions]\nclo_het\n", base_dir=DATA)
-    assert "clo_het" not in mech.reaction_ids
+    for line in ("extends small.mech", 'extends = "small.mech"'):     # the scenario spelling too
+        mech = parse_mechanism(f"{line}\n[dropped reactions]\nclo_het\n", base_dir=DATA)
+        assert "clo_het" not in mech.reaction_ids
     problems = _problems('extends "stratosphere"\nextends "stratosphere"\n', tmp_path)
     assert problems[0].location.line == 2 and "one base" in problems[0].message
 
@@ -93,3 +94,14 @@ def test_shipped_files_use_the_new_spelling():
         for line in f.read_text().splitlines():
             word = line.split("#", 1)[0].strip()
             assert not word.startswith("include") and word not in ("[replace]", "[remove]"), (f, line)
+
+
+def test_stored_files_answer_extends_without_the_disk(tmp_path):
+    from boxchem.mechanism.parser import parse_stored_mechanism
+    (tmp_path / "base.mech").write_text((DATA / "small.mech").read_text())
+    (tmp_path / "top.mech").write_text('extends "base.mech"\n[dropped reactions]\nclo_het\n')
+    mech = load_mechanism(tmp_path / "top.mech")
+    (tmp_path / "base.mech").unlink()                    # gone: the stored copy must be used
+    again = parse_stored_mechanism(mech.files)
+    assert again.reaction_ids == mech.reaction_ids and again.text_sha256 == mech.text_sha256
+    assert [c.kind for c in again.changes] == ["dropped"]

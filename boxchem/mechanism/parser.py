@@ -319,7 +319,7 @@ class _Reader:
                 elif re.match(r"include(\s|\"|\Z)", stripped):
                     self.include_failed = True      # its names are unknown: no follow-on errors
                     raise _LineError(_old_include_message(stripped), col0)
-                elif re.match(rf"{EXTENDS_WORD}(\s|\"|\Z)", stripped):
+                elif re.match(rf"{EXTENDS_WORD}(\s|\"|=|\Z)", stripped):
                     if section is not None:
                         raise _LineError(f"the {EXTENDS_WORD} line must come before the first "
                                          f"section", col0)
@@ -361,7 +361,8 @@ class _Reader:
 
     def _extends(self, line: str, loc: SourceLocation, base_dir: Path) -> None:
         """``extends "NAME_OR_PATH"`` (or ``extends NAME``): read the base mechanism first."""
-        m = re.fullmatch(rf'(\s*){EXTENDS_WORD}\s+(?:"([^"]+)"|([^\s"]+))\s*', line)
+        # 'extends = "x"', as scenarios write it, reads the same
+        m = re.fullmatch(rf'(\s*){EXTENDS_WORD}(?:\s*=\s*|\s+)(?:"([^"]+)"|([^\s"=]+))\s*', line)
         if m is None:
             raise _LineError(f'an {EXTENDS_WORD} line reads: {EXTENDS_WORD} "stratosphere" '
                              f'(a shipped name) or {EXTENDS_WORD} "relative/path.mech"', loc.column)
