@@ -124,6 +124,24 @@ def print_mechanism_warnings(mechanism) -> None:
             print(w.format(), file=sys.stderr)
 
 
+def print_scenario_spectrum_warnings(scenario) -> None:
+    """What ``[photolysis].cross_sections`` files that miss part of the shipped range will do.
+
+    Said before the integration starts (a refused file is an error here); the
+    run records the same notes in its ``photolysis_notes`` attribute.
+    """
+    from ..errors import DataFileError
+    from ..photolysis.splice import reaction_cross_section
+    for rid, path in scenario.photolysis_cross_sections.items():
+        where = f"{scenario.source}: [photolysis].cross_sections.{rid}"
+        try:
+            _, note = reaction_cross_section(scenario.mechanism.reaction(rid), str(path))
+        except DataFileError as exc:
+            raise DataFileError(f"{where}: {exc}") from None
+        if note:
+            print(f"{where}: warning: {note}", file=sys.stderr)
+
+
 def main(args) -> int:
     from ..io.netcdf import write_dataset
     from ..runner import run
@@ -141,6 +159,7 @@ def main(args) -> int:
         scenario = scenario.with_overrides(scale=scale or None, origins=origins, **overrides)
     out = Path(args.output) if args.output else default_output(args.scenario)
     print_mechanism_warnings(scenario.mechanism)
+    print_scenario_spectrum_warnings(scenario)
     try:
         ds = run(scenario, progress=not args.quiet)
     except IntegrationError as exc:
@@ -152,8 +171,6 @@ def main(args) -> int:
         else:
             print(f"boxchem run: integration failed: {exc}", file=sys.stderr)
         return 1
-    for note in filter(None, str(ds.attrs.get("photolysis_notes", "")).split("\n")):
-        print(f"{scenario.source}: warning: {note}", file=sys.stderr)
     write_dataset(ds, out)
     if not args.quiet:
         print(summary(ds, out, time.perf_counter() - wall0))
