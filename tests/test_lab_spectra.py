@@ -267,3 +267,25 @@ def test_run_prints_the_splice_of_the_users_spectrum_with_file_and_line(tmp_path
     err = capsys.readouterr().err
     assert err.startswith(f"{tmp_path / 'm.mech'}:3:46: warning: reaction 'j_cl2o2':") and "spliced" in err
     assert "never produced" not in err       # the shipped file's warnings are check's business
+
+
+# ------------------------------------------------------------------ no traceback for any lab file
+from hypothesis import HealthCheck, given, settings, strategies as st  # noqa: E402
+
+_PIECES = ["wavelength (nm)", "lambda [A]", "sigma (1e-20 cm2)", "sigma_200K (cm2)", "298 K [cm^2]",
+           "uncertainty (%)", "error (1e-20 cm2)", ",", "\t", " ", "\n", "#", "!", "240", "2400", "6.5e-18",
+           "650", "-1", "nan", "inf", "1e400", "(", ")", "[", "]", "cm2", "K", "%", "x", "10^-20", "é", "\r"]
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+                                                                  HealthCheck.function_scoped_fixture])
+@given(st.lists(st.sampled_from(_PIECES), max_size=60))
+def test_any_lab_text_reads_or_gives_a_data_file_error(tmp_path, pieces):
+    path = tmp_path / "fuzz.csv"
+    path.write_text("".join(pieces), encoding="utf-8")
+    try:
+        data = load_spectral_file(path)
+    except DataFileError as exc:
+        assert str(exc).startswith(str(path)), str(exc)
+    else:
+        assert np.all(np.isfinite(data.values)) and np.all(np.diff(data.wavelength_nm) > 0)
