@@ -55,7 +55,7 @@ def summary(mechanism: Mechanism, hidden: tuple[int, str] = (0, "")) -> str:
 
 
 def _in_shipped_file(problem) -> bool:
-    """True for a problem located in a shipped mechanism file (an ``include``d one)."""
+    """True for a problem located in a shipped mechanism file (an extended one)."""
     from ..resources import shipped_dir
     if problem.location is None:
         return False
@@ -73,10 +73,10 @@ def run(args) -> int:
     from ..errors import SourceLocation, Problem
     from ..resources import resolve
     checking_shipped = _in_shipped_file(Problem("", SourceLocation(str(resolve(args.mechanism, "mechanisms")), 1)))
-    # Warnings of an included shipped mechanism (e.g. its source gases, never
+    # Warnings of an extended shipped mechanism (e.g. its source gases, never
     # produced) are the shipped file's, not the user's: listed only when the
     # shipped mechanism itself is checked, and never errors under --strict for
-    # a user's file that includes it.
+    # a user's file that extends it.
     own = [w for w in mechanism.warnings if checking_shipped or not _in_shipped_file(w)]
     inherited = [w for w in mechanism.warnings if w not in own]
     shipped = sorted({Path(w.location.file).stem for w in inherited})

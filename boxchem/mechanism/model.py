@@ -6,8 +6,9 @@ a Mechanism is built by :mod:`boxchem.mechanism.parser` and never mutated.
 
 Conventions
 -----------
-* Reaction order in ``Mechanism.reactions`` is file order after include /
-  replace / remove; this is the order of the ``reaction`` output dimension.
+* Reaction order in ``Mechanism.reactions`` is file order after extends /
+  changed / dropped reactions (a changed reaction keeps its place); this is
+  the order of the ``reaction`` output dimension.
 * Species order in ``Mechanism.species`` is declaration order; the variable
   (integrated) species are those with ``fixed == False``.
 * ``M`` (the third body) and ``hv`` never appear in ``reactants``/``products``.
