@@ -26,8 +26,10 @@ __all__ = ["OUTSIDE_CHOICES", "DEFAULT_OUTSIDE", "NEGLIGIBLE", "MAX_JOIN_RATIO",
 
 OUTSIDE_CHOICES = ("splice", "error", "zero")
 DEFAULT_OUTSIDE = "splice"
-#: shipped absorption below this fraction of its peak does not count as missing (common practice)
-NEGLIGIBLE = 1e-3
+#: shipped absorption below this fraction of its peak does not count as missing.  Small on
+#: purpose: weak long-wave tails (the O3 Chappuis band at ~5e-4 of the Hartley peak, the Cl2O2
+#: tail beyond 350 nm) carry much of J, because the actinic flux there is large.
+NEGLIGIBLE = 1e-5
 #: a file/shipped ratio at a join beyond this factor (either way) refuses the splice
 MAX_JOIN_RATIO = 10.0
 #: wavelengths [nm] closer than this to the file's ends count as covered
