@@ -289,3 +289,17 @@ def test_any_lab_text_reads_or_gives_a_data_file_error(tmp_path, pieces):
         assert str(exc).startswith(str(path)), str(exc)
     else:
         assert np.all(np.isfinite(data.values)) and np.all(np.diff(data.wavelength_nm) > 0)
+
+
+def test_a_uv_only_ozone_file_misses_the_chappuis_band(tmp_path):
+    # the O3 Chappuis band (about 410-750 nm, peak near 5e-21 cm2 at 600 nm, against 1.1e-17 cm2
+    # at the Hartley peak near 255 nm; JPL 19-5, recalled from memory) is weak but carries much of
+    # J(O3 -> O(3P)): a file over the Hartley and Huggins bands only must count as partial
+    from boxchem.photolysis.splice import uncovered_ranges
+    o3 = cross_section_data("O3")
+    wl = o3.wavelength_nm
+    keep = (wl >= 200.0) & (wl <= 360.0)
+    rows = "\n".join(f"{w},{s}" for w, s in zip(wl[keep].tolist(), np.ravel(o3.at_temperature(218.0))[keep].tolist()))
+    lab = load_spectral_file(_write(tmp_path, "o3uv.csv", "wavelength (nm),sigma_218K (cm2)\n" + rows))
+    gaps = uncovered_ranges(lab, o3)
+    assert any(a <= 420.0 and b >= 700.0 for a, b in gaps), gaps
