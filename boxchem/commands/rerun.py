@@ -159,6 +159,11 @@ def main(args) -> int:
         from ..errors import BoxchemError
         raise BoxchemError(f"{path}: no such result file")
     old = open_result(path)
+    if old.attrs.get("boxchem_result_kind") == "members":
+        from ..errors import BoxchemError
+        raise BoxchemError(f"{path}: a member file (sweep or ensemble); rerun re-runs single-run "
+                           f"files - repeat the command that made it (attribute command_line: "
+                           f"{old.attrs.get('command_line', 'not recorded')})")
     stored = {e["path"] for e in json.loads(str(old.attrs.get("input_files", "[]"))) if "text" in e}
     for file, note in changed_inputs(old.attrs):
         use = ("the file as it is now is used" if args.data_from_disk or file not in stored else
