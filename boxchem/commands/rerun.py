@@ -14,8 +14,9 @@ EXAMPLE = """examples:
 The mechanism (every file, as it was when the run was made), the scenario
 table (files merged, overrides applied) and the user data files (lab spectra,
 trajectories up to 2 MB) are read from RESULT.nc itself, so later edits of
-those files do not matter (a data file that changed since is named).  Exit status 0 when the new result
-matches, 1 when it differs (or the integration failed), 2 for input errors."""
+those files do not matter (a data file that changed since is named).
+Exit status 0 when the new result matches, 1 when it differs (or the
+integration failed), 2 for input errors."""
 
 #: relative difference below which two results count as the same (same machine: bitwise, usually)
 DEFAULT_RTOL = 1e-9
