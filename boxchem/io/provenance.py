@@ -60,7 +60,9 @@ def _mechanism_text_and_index(mechanism) -> tuple[str, list[dict]]:
 
 def _scenario_table(scenario) -> dict:
     """The scenario table that ran, file paths absolute (they were relative to their files)."""
-    data = json.loads(json.dumps(dict(scenario.data), default=str))
+    # TOML dates and times (unquoted in the file) become ISO 8601 strings, which scenarios read too
+    data = json.loads(json.dumps(dict(scenario.data),
+                                 default=lambda v: v.isoformat() if hasattr(v, "isoformat") else str(v)))
     if scenario.trajectory is not None:
         data.setdefault("environment", {})["trajectory"] = str(scenario.trajectory)
     if scenario.photolysis_cross_sections:
