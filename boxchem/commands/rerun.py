@@ -96,6 +96,16 @@ def stored_scenario(attrs, data_dir: Path | None = None):
         env = table.get("environment", {})
         if isinstance(env.get("trajectory"), str):
             env["trajectory"] = moved.get(env["trajectory"], env["trajectory"])
+    run_table = table.get("run", {})
+    if isinstance(run_table.get("mechanism"), str):
+        # the stored mechanism is used; a [run].mechanism file deleted since must not stop that
+        from ..errors import BoxchemError
+        from ..resources import resolve
+        try:
+            resolve(run_table["mechanism"], "mechanisms",
+                    relative_to=Path(str(attrs.get("scenario_base_dir", "."))))
+        except BoxchemError:
+            run_table.pop("mechanism")
     text = scenario_toml(table)
     return Scenario.from_text(text, base_dir=str(attrs.get("scenario_base_dir", ".")),
                               source=str(attrs.get("scenario_source", "<stored scenario>")),
