@@ -32,7 +32,8 @@ LAYOUTS = {
     "tab, 1e-20 cm2, comment lines": (
         "# ClO dimer, invented test data\n! instrument: diode array\n"
         "wavelength_nm\tcross section (1e-20 cm2)\n"
-        + "\n".join(f"{w:g}\t{s / 1e-20:.6g}" for w, s in zip(WL.tolist(), SIGMA.tolist())) + "\n# end of table\n"),
+        + "\n".join(f"{w:g}\t{s / 1e-20:.6g}" for w, s in zip(WL.tolist(), SIGMA.tolist()))
+        + "\n# end of table\nEnd of data\n"),
     "white space, Angstrom, free text, 10^-20 cm^2": (
         "Dimer spectrum measured in our lab, 2026\nPath length 1 m, 200 K\n"
         "lambda [A]    sigma [10^-20 cm^2]\n"
@@ -83,6 +84,7 @@ def test_free_text_lines_become_notes_and_the_layout_is_recorded(tmp_path):
     ("wavelength (nm),sigma (cm2),uncertainty\n240,6e-18,1\n250,6e-18,1\n", 1, "uncertainty column"),
     ("wavelength (nm),sigma_200K (cm2),sigma_200K (cm2)\n240,1,1\n250,1,1\n", 1, "with repeats"),
     ("wavelength (nm),sigma (cm2)\n240,6e-18\n230,6e-18\n260,6e-18\n", 3, "strictly increasing"),
+    ("wavelength (nm),sigma (cm2)\n240,6e-18\n250,6e-18\n260,6e-1B\nthe end\n", 4, "'6e-1B' is not a number"),
 ])
 def test_bad_lab_files_name_file_and_line(tmp_path, text, line, fragment):
     path = _write(tmp_path, "bad.csv", text)

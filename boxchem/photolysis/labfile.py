@@ -5,7 +5,8 @@ The layouts read (docs/spectral-data.md, "Lab files"):
 * columns separated by commas, tabs or white space (one separator per file,
   taken from the first data row);
 * comment lines starting with ``#``, ``!``, ``%``, ``;`` or ``//`` anywhere,
-  and free-text lines before the header line (kept as notes);
+  and free-text lines before the header line or (without digits) after the
+  table (kept as notes);
 * one header line naming the columns with their units: the wavelength first
   (``nm`` or Angstrom: ``A``, ``Å``, ``angstrom``), then one cross-section
   column per temperature (``sigma_298K (1e-20 cm2)``, ``298 K [cm^2]``) in
@@ -222,7 +223,11 @@ def read_lab_file(path: Path, lines: list[str]):
     wl_factor, columns = _classify_columns(path, head_lineno, cells)
     ncol = 1 + len(columns)
     rows, linenos = [], []
-    for lineno, ln in content[first_row:]:
+    body = content[first_row:]
+    # free text after the table ("end of data", a note) holds no digit, so no row is lost to it
+    last_digit = max(k for k, (_, ln) in enumerate(body) if any(ch.isdigit() for ch in ln))
+    notes = " ".join([notes, *(ln.strip() for _, ln in body[last_digit + 1:])]).strip()
+    for lineno, ln in body[:last_digit + 1]:
         row = _split(ln, sep)
         if len(row) != ncol:
             raise _err(path, lineno, f"{len(row)} values in {ln.strip()!r}",
