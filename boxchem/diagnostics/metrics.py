@@ -178,7 +178,7 @@ class Metric:
 
     @property
     def units(self) -> str:
-        return "1" if self.kind != "loss" else "mol mol-1"
+        return "1" if self.kind == "share" else "mol mol-1"
 
     @property
     def long_name(self) -> str:
