@@ -184,6 +184,11 @@ def _initial_states(task: BatchTask, group: _Group) -> np.ndarray:
         j = species.index(column.split(".", 1)[1])
         for i, value in enumerate(task.initial_values[c]):
             if isinstance(value, str):
+                try:                      # a number in a text column is still a mole fraction
+                    value = float(value)
+                except ValueError:
+                    pass
+            if isinstance(value, str):
                 amount, kind = parse_amount(value, where=f"{task.table_where[i]}, column {column}"
                                             if task.table_where else column)
                 y0[i, j] = amount * group.air0 if kind == "mole_fraction" else amount

@@ -44,10 +44,14 @@ from .batches import DEFAULT_SAVE, SAVEABLE, BatchOutput, BatchTask, transferabl
 from .members import (LABEL_COLUMN, MemberTable, MemberTableError, apply_setup_overrides,
                       member_table, validate_table)
 
-__all__ = ["ensemble", "EnsembleInterrupted", "MemberProgress", "DEFAULT_BATCH_SIZE", "plan_batches"]
+__all__ = ["ensemble", "EnsembleError", "EnsembleInterrupted", "MemberProgress", "DEFAULT_BATCH_SIZE", "plan_batches"]
 
 #: members per batch when not given (a batch's outputs are what the parent holds per worker)
 DEFAULT_BATCH_SIZE = 32
+
+
+class EnsembleError(BoxchemError):
+    """An ensemble that cannot run at all (e.g. no member has a valid setup)."""
 
 
 class EnsembleInterrupted(KeyboardInterrupt):
@@ -135,13 +139,7 @@ class _Plan:
 
 def _origins(table: MemberTable, rows: np.ndarray, keys) -> dict[str, str]:
     row = int(rows[0])
-    out = {}
-    for key in keys:
-        value = table.value(row, key)
-        out[key] = f"{table.where(row, key)} = {value!r}"
-        if key.startswith("initial."):
-            out[key] = out[key]
-    return out
+    return {key: table.origin_of(row, key) for key in keys}
 
 
 def _plan(scenario, table: MemberTable) -> _Plan:
@@ -240,6 +238,7 @@ def _template(setup, plan: _Plan, table: MemberTable, save: Sequence[str], scena
         "ensemble_setup_groups": len(plan.groups),
         "history": f"{template.attrs.get('date_created', '')}: created by boxchem ensemble",
     })
+    template.attrs.update(table.attrs or {})
     return template, variables
 
 
@@ -403,7 +402,7 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
     if status is None:
         if not valid:
             messages = "; ".join(e for _, _, e in plan.groups)
-            raise BoxchemError(f"no member can run: {messages}")
+            raise EnsembleError(f"no member can run: {messages}")
         # the template needs one setup: built here (and kept for in-process batches)
         first, _ = _group(tasks[0])
         template, variables = _template(first.setup, plan, table, save, plan.groups[valid[0][0]][1])

@@ -76,6 +76,11 @@ class MemberTable:
     source: str = "<table>"
     #: 1-based line of each row in the source file (CSV), for error messages
     lines: np.ndarray | None = None
+    #: optional ``origin(row, column) -> str``: how errors in a setup value name it
+    #: (a sweep says ``--vary location.latitude=-95``); default :meth:`where` = value
+    origin: Any = None
+    #: extra global attributes for the member file (a sweep records its grid here)
+    attrs: dict | None = None
 
     def __len__(self) -> int:
         return int(self.labels.size)
@@ -88,6 +93,12 @@ class MemberTable:
         if column in self.factors:
             return float(self.numeric[row, self.factors.index(column)])
         return self.text[row, self.text_factors.index(column)]
+
+    def origin_of(self, row: int, column: str) -> str:
+        """How errors in one setup value name it (see ``origin``)."""
+        if self.origin is not None:
+            return self.origin(row, column)
+        return f"{self.where(row, column)} = {self.value(row, column)!r}"
 
     def where(self, row: int, column: str) -> str:
         """How errors name one cell: ``table.csv:4: column scale.x`` or ``member 3, column scale.x``."""
@@ -331,7 +342,7 @@ def validate_table(table: MemberTable, scenario) -> None:
             bad = ~np.isfinite(values) | (values < 0)
             if bad.any():
                 row = int(np.argmax(bad))
-                raise MemberTableError(f"{table.where(row, column)}: got {values[row]!r}; valid: "
+                raise MemberTableError(f"{table.where(row, column)}: got {float(values[row])!r}; valid: "
                                        f"a finite {'factor' if column.startswith('scale.') else 'mole fraction'} >= 0")
 
 

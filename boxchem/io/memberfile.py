@@ -177,6 +177,13 @@ def create_member_file(path: str | Path, template: xr.Dataset,
     folder = path.parent if str(path.parent) else Path(".")
     folder.mkdir(parents=True, exist_ok=True)
     remove_stale_temporaries(path)
+    # netCDF classic reads a dimension of size 0 as the record dimension: leave out empty
+    # dimensions (e.g. a mechanism without families) and what uses them
+    empty = [d for d, n in template.sizes.items() if n == 0]
+    if empty:
+        template = template.drop_vars([n for n, v in template.variables.items()
+                                       if set(v.dims) & set(empty)]).drop_dims(empty, errors="ignore")
+        variables = {n: v for n, v in variables.items() if not set(v[0]) & set(empty)}
     sizes = dict(template.sizes)
     largest = max((8 * int(np.prod([sizes[d] for d in dims])) for dims, _ in variables.values()),
                   default=0)
@@ -272,6 +279,8 @@ def write_members(path: str | Path, rows: Sequence[int], arrays: Mapping[str, np
         with netCDF4.Dataset(path, "a") as nc:
             nc.set_auto_mask(False)
             for name, values in arrays.items():
+                if name not in nc.variables:      # a variable over an empty dimension
+                    continue
                 values = np.array(values, dtype=float)[order]
                 values[failed] = np.nan
                 var = nc.variables[name]
@@ -312,8 +321,7 @@ def read_member_state(path: str | Path) -> dict[str, Any]:
                              if "text_factor" in ds.dims else ()),
             "text": (ds["member_table_text"].values.astype(str) if "member_table_text" in ds
                      else np.zeros((ds.sizes["member"], 0), dtype=object)),
-            "variables": tuple(n for n, v in ds.data_vars.items()
-                               if v.dims[:1] == ("member",) and v.ndim >= 2),
+            "variables": tuple(str(ds.attrs.get("ensemble_saved_variables", "")).split()),
             "attrs": dict(ds.attrs),
         }
     return state
