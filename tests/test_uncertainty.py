@@ -66,7 +66,9 @@ def test_summary_quantiles_and_contributions_of_the_chain(tmp_path):
     s = np.array([K1 * db1, K2 * db2]) / chain_b(t)
     sigma = np.log([_f(1.2, 100.0, 220.0), _f(1.5, 0.0, 220.0)])
     share = (s * sigma) ** 2 / np.sum((s * sigma) ** 2)
-    np.testing.assert_allclose(mc["contribution"].sel(metric="B at end").values, share, atol=0.05)
+    # (a share too small to tell from sampling noise is left out of the regression: NaN)
+    np.testing.assert_allclose(np.nan_to_num(mc["contribution"].sel(metric="B at end").values),
+                               share, atol=0.05)
     assert float(mc["contribution_r2"].sel(metric="B at end")) > 0.95
     # and the 1-sigma spread of ln B is sqrt(sum (S_i sigma_i)^2) to first order
     assert float(mc["metric_log_std"].sel(metric="B at end")) == \

@@ -41,6 +41,7 @@ QUANTILES = (0.05, 0.5, 0.95)
 #: chosen by |Spearman correlation| (a regression on more predictors than the sample
 #: supports over-fits; common practice, no source)
 MAX_REGRESSORS = 30
+SIGNIFICANT_RHO = 2.0
 
 
 class UncertaintyError(BoxchemError):
@@ -97,7 +98,11 @@ def monte_carlo(scenario, metrics, *, members: int = 200, seed: int | None = 0,
         "mc_wall_time_s": wall,
     })
     summary = summarize(ds, parsed, species=species)
-    return xr.merge([ds, summary], combine_attrs="override")
+    out = xr.merge([ds, summary], combine_attrs="override")
+    out.attrs.update(summary.attrs)
+    for var in out.variables.values():
+        var.encoding = {}          # the member file's on-disk layout does not carry over
+    return out
 
 
 def _statistics_members(ds: xr.Dataset) -> np.ndarray:
@@ -115,7 +120,8 @@ def rank_regression(x: np.ndarray, y: np.ndarray, names: Sequence[str]):
     """Squared standardised rank regression coefficients and R^2 of the rank regression.
 
     ``x`` (n, p) inputs, ``y`` (n,) output.  Predictors are pre-selected by
-    |Spearman correlation| (at most MAX_REGRESSORS and n/5); the others get NaN.
+    |Spearman correlation| (at most MAX_REGRESSORS and n/5, and only where
+    |rho| > 2/sqrt(n)); the others get NaN.
     Returns (srrc2 (p,), r2).
     """
     from scipy import stats
@@ -133,6 +139,11 @@ def rank_regression(x: np.ndarray, y: np.ndarray, names: Sequence[str]):
     spearman = np.abs(rxs.T @ ry) / n
     keep = min(MAX_REGRESSORS, max(1, n // 5), int(varying.sum()))
     chosen = np.argsort(-spearman)[:keep]
+    # only correlations distinguishable from sampling noise (|rho| > 2/sqrt(n), about the
+    # 5 % two-sided level for independent ranks; common practice, no source)
+    chosen = chosen[spearman[chosen] > SIGNIFICANT_RHO / np.sqrt(n)]
+    if chosen.size == 0:
+        return srrc2, 0.0
     beta, *_ = np.linalg.lstsq(rxs[:, chosen], ry, rcond=None)
     fitted = rxs[:, chosen] @ beta
     r2 = 1.0 - np.sum((ry - fitted) ** 2) / np.sum(ry ** 2)
