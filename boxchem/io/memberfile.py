@@ -327,13 +327,23 @@ def read_member_state(path: str | Path) -> dict[str, Any]:
     return state
 
 
+def _have_dask() -> bool:
+    try:
+        import dask.array  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
 def open_member_file(path: str | Path, *, load: bool = False) -> xr.Dataset:
     """Open a member file; rows of members not marked success read as NaN.
 
     The one reader of member files: it checks the kind and masks rows of
     pending or failed members, whatever a crash may have left in them.
     Lazy (dask arrays chunked by member, so ``ds.isel(member=i)`` reads one
-    chunk) unless ``load``; memory then does not grow with the file.
+    chunk) unless ``load``; memory then does not grow with the file.  Without
+    dask the lazy arrays are not masked (pending rows are NaN unless a kill
+    cut a write short; ``load=True`` always masks).
     """
     ds = xr.open_dataset(path, engine="netcdf4")
     if ds.attrs.get("boxchem_result_kind") != RESULT_KIND:
@@ -347,7 +357,10 @@ def open_member_file(path: str | Path, *, load: bool = False) -> xr.Dataset:
     for name, var in list(ds.data_vars.items()):
         if var.dims[:1] == ("member",) and var.ndim >= 2 and var.dtype.kind == "f" \
                 and name not in ("member_table",):
-            ds[name] = (var.load() if load else var.chunk({"member": 8})).where(ok)
+            if load:
+                ds[name] = var.load().where(ok)
+            elif _have_dask():
+                ds[name] = var.chunk({"member": 8}).where(ok)
     if load:
         loaded = ds.load()
         ds.close()
