@@ -128,8 +128,8 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
     parsed = [m.check(context) for m in parsed]
     if species is None:
         species = [s for s in DEFAULT_SERIES if s in context.species]
-    from ..diagnostics.metrics import _name_or_error
-    species = [_name_or_error(s, context.species, "species", "time-resolved sensitivities",
+    from ..diagnostics.metrics import check_name
+    species = [check_name(s, context.species, "species", "time-resolved sensitivities",
                               context) for s in species]
     columns, nominal = parameter_columns(scenario, reactions=reactions, initial=initial)
     table, labels, plan = finite_difference_table(columns, step=step, scheme=scheme,

@@ -50,7 +50,7 @@ class UncertaintyError(BoxchemError):
 
 def monte_carlo(scenario, metrics, *, members: int = 200, seed: int | None = 0,
                 sampling: str = "lhs", f_sigma: float = 1.0, temperature_K: float | None = None,
-                reactions="all", defaults=None, species: Sequence[str] = ("O3",),
+                reactions="all", defaults=None, species: Sequence[str] | None = None,
                 **engine) -> xr.Dataset:
     """Run a Monte Carlo sample on the ensemble engine and summarise it.
 
@@ -65,6 +65,9 @@ def monte_carlo(scenario, metrics, *, members: int = 200, seed: int | None = 0,
     parsed = metrics if metrics and isinstance(metrics[0], Metric) else parse_metrics(metrics)
     context = context_from_scenario(scenario)
     parsed = [m.check(context) for m in parsed]
+    from ..diagnostics.metrics import check_name
+    species = ([s for s in ("O3",) if s in context.species] if species is None else
+               [check_name(s, context.species, "species", "bands", context) for s in species])
     T = float(temperature_K) if temperature_K is not None else run_mean_temperature(scenario)
     table = uncertainty_table(scenario.mechanism, T, defaults=defaults)
     if reactions != "all":

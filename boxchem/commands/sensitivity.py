@@ -80,8 +80,8 @@ def register(subparsers) -> None:
                    help="finite-difference step in ln k (default 0.05)")
     p.add_argument("--scheme", choices=("central", "forward"), default="central",
                    help="central (default, 2N+1 members) or forward differences (N+1 members)")
-    p.add_argument("--species", default="O3", metavar="SPECIES,...",
-                   help="species whose time-resolved sensitivities are written (default O3)")
+    p.add_argument("--species", default=None, metavar="SPECIES,...",
+                   help="species whose time-resolved sensitivities are written (default O3, if any)")
     p.add_argument("--top", type=int, default=20, metavar="N", help="rows printed and plotted (default 20)")
     p.add_argument("-o", "--output", default=None, metavar="OUT.nc",
                    help="output file (default SCENARIO-STEM-sensitivity.nc)")
@@ -122,7 +122,8 @@ def main(args) -> int:
     result = local_sensitivities(scenario, args.metric, reactions=reactions,
                                  initial=_names(args.initial) or (),
                                  step=args.step or DEFAULT_STEP, scheme=args.scheme,
-                                 species=_names(args.species) or (), **engine_options(args))
+                                 species=None if args.species is None else list(_names(args.species)),
+                                 **engine_options(args))
     out = Path(args.output) if args.output else Path(f"{Path(str(args.scenario)).stem}-sensitivity.nc")
     result.attrs["command"] = " ".join(["boxchem", *sys.argv[1:]]) if sys.argv else ""
     metrics = [str(m) for m in result["metric"].values]

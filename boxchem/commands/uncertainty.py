@@ -45,7 +45,8 @@ def register(subparsers) -> None:
                    help="standard deviations of ln k that f spans (default 1; 2 = f is a 95 %% bound)")
     p.add_argument("--temperature", default=None, metavar="T",
                    help='temperature at which f(T) is evaluated, e.g. "195 K" (default: run mean)')
-    p.add_argument("--species", default="O3", metavar="SPECIES,...", help="species with bands (default O3)")
+    p.add_argument("--species", default=None, metavar="SPECIES,...",
+                   help="species with bands (default O3, if any)")
     p.add_argument("-o", "--output", default=None, metavar="OUT.nc",
                    help="output file (default SCENARIO-STEM-uncertainty.nc)")
     p.add_argument("--no-plot", action="store_true", help="do not write the figures")
@@ -154,12 +155,15 @@ def main(args) -> int:
             raise BoxchemError("uncertainty: give SCENARIO and --metric (or --baseline MC.nc); "
                                "e.g. boxchem uncertainty polar-spring --metric \"O3 at end\"")
         base = load_with_overrides(args.scenario, args.overrides)
+        if args.changed or args.changed_scale:
+            _changed_scenario(base, args)       # a bad --changed fails before the Monte Carlo
         temperature = None
         if args.temperature:
             temperature = parse_quantity(args.temperature, "temperature", default_unit="K", where="--temperature")
         mc = monte_carlo(base, args.metric, members=args.members, seed=args.seed,
                          sampling=args.sampling, f_sigma=args.f_sigma, temperature_K=temperature,
-                         species=[s for s in args.species.split(",") if s], **engine_options(args))
+                         species=None if args.species is None else
+                         [s for s in args.species.split(",") if s], **engine_options(args))
         import json
         mc.attrs["command"] = " ".join(["boxchem", *sys.argv[1:]])
         mc.attrs["mc_scenario_argument"] = str(args.scenario)
@@ -168,7 +172,8 @@ def main(args) -> int:
         write_dataset(mc, out)
         written = [str(out)]
         if not args.no_plot:
-            written += _figures(mc, out, [s for s in args.species.split(",") if s])
+            written += _figures(mc, out, [str(v).removeprefix("band_") for v in mc.data_vars
+                                          if str(v).startswith("band_") and v != "band_cycle_loss"])
         print(summary_text(mc))
         print(f"{mc.sizes['member']} members in {time.perf_counter() - wall0:.1f} s; wrote "
               f"{', '.join(written)}")

@@ -45,7 +45,7 @@ from ..errors import BoxchemError
 
 __all__ = ["MetricError", "Metric", "RunContext", "parse_metric", "parse_metrics",
            "context_from_scenario", "context_from_dataset", "evaluate_metric",
-           "evaluate_metrics", "metric_series", "required_variables", "AGGREGATES"]
+           "evaluate_metrics", "metric_series", "required_variables", "check_name", "AGGREGATES"]
 
 #: reductions of a species over a period
 AGGREGATES = ("mean", "noon", "max", "min")
@@ -200,10 +200,10 @@ class Metric:
         where = f"metric {self.text!r}"
         out = self
         if self.species is not None:
-            out = replace(out, species=_name_or_error(self.species, context.species, "species",
+            out = replace(out, species=check_name(self.species, context.species, "species",
                                                       where, context))
         if self.cycle is not None:
-            out = replace(out, cycle=_name_or_error(self.cycle, context.cycles, "cycle", where,
+            out = replace(out, cycle=check_name(self.cycle, context.cycles, "cycle", where,
                                                     context))
             if out.family is None:
                 out = replace(out, family=context.cycle_family.get(out.cycle, "Ox"))
@@ -212,7 +212,7 @@ class Metric:
                                   f"{context.cycle_family[out.cycle]}, not {out.family}")
         if out.kind in ("loss", "share"):
             fam = out.family or "Ox"
-            out = replace(out, family=_name_or_error(fam, context.families, "family", where,
+            out = replace(out, family=check_name(fam, context.families, "family", where,
                                                      context))
         for t, label in self._times(context):
             if not (context.start <= t <= context.end):
@@ -234,7 +234,8 @@ class Metric:
             yield self.period.last.resolve(context.start, context.end), "period end"
 
 
-def _name_or_error(name: str, valid: Sequence[str], what: str, where: str, context) -> str:
+def check_name(name: str, valid: Sequence[str], what: str, where: str, context) -> str:
+    """``name`` if it is in ``valid``, else MetricError with did-you-mean and the valid names."""
     if name in valid:
         return name
     # names are case-sensitive (CO is not Co): a case-only difference is suggested, not taken
