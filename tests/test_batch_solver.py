@@ -132,6 +132,7 @@ def test_sparse_lu_solves_like_dense_lu_on_the_shipped_jacobian(polar):
     from boxchem.solver.sparselu import sparse_lu_structure
     kin, coef = polar.kinetics, polar.coefficients
     lu = sparse_lu_structure(kin)
+    perm, ptr, col, diag, l_pos, l_pivot, op_ptr, op_src, op_dst = lu.arrays()
     rng = np.random.default_rng(2)
     k, fixed = coef(43200.0)
     y = polar.y0 * rng.uniform(0.5, 2.0, kin.n_variable) + 1e3
@@ -142,12 +143,12 @@ def test_sparse_lu_solves_like_dense_lu_on_the_shipped_jacobian(polar):
     w, piv, cols = np.empty((nv, nv)), np.empty(nv, np.int64), np.empty(nv, np.int64)
     for h in (1e-3, 10.0, 600.0, 1e5):
         shift = 1.0 / (h * 0.5)
-        mode = cm._factor_w(jv, shift, lu.ptr, lu.col, lu.diag, lu.l_pos, lu.l_pivot, lu.op_ptr,
-                            lu.op_src, lu.op_dst, a, rowmax, w, piv, cols, cm.PIVOT_TOLERANCE)
+        mode = cm._factor_w(jv, shift, ptr, col, diag, l_pos, l_pivot, op_ptr, op_src, op_dst, a,
+                            rowmax, w, piv, cols, cm.PIVOT_TOLERANCE)
         assert mode == 1                     # the static pivots were good enough (no fallback)
         b = rng.normal(size=nv) * 1e6
         x = b.copy()
-        cm._solve_w(mode, a, lu.ptr, lu.col, lu.diag, lu.perm, w, piv, x, np.empty(nv))
+        cm._solve_w(mode, a, ptr, col, diag, perm, w, piv, x, np.empty(nv))
         dense = np.linalg.solve(np.eye(nv) * shift - jac, b)
         np.testing.assert_allclose(x, dense, rtol=1e-12, atol=1e-12 * np.abs(dense).max())
     # fewer stored entries than the dense matrix, and fill-in far below it
@@ -175,6 +176,7 @@ b_a   B -> A   constant  k=4e-3  ref="invented test value"
                       altitude=19000.0, temperature=200.0, pressure=5500.0)
     k, fixed = RateCoefficientModel(mech, None, None, env, kinetics=kin)(0.0)
     lu = sparse_lu_structure(kin)
+    perm, ptr, col, diag, l_pos, l_pivot, op_ptr, op_src, op_dst = lu.arrays()
     y = np.array([1.0, 1.0])
     jv = cm.compiled_sparse_jacobian(kin, y, k, fixed)
     jac = cm.compiled_jacobian(kin, y, k, fixed)
@@ -183,10 +185,10 @@ b_a   B -> A   constant  k=4e-3  ref="invented test value"
     nv = kin.n_variable
     a, colmax = np.empty(lu.nnz), np.empty(nv)
     w, piv, cols = np.empty((nv, nv)), np.empty(nv, np.int64), np.empty(nv, np.int64)
-    mode = cm._factor_w(jv, shift, lu.ptr, lu.col, lu.diag, lu.l_pos, lu.l_pivot, lu.op_ptr,
-                        lu.op_src, lu.op_dst, a, colmax, w, piv, cols, cm.PIVOT_TOLERANCE)
+    mode = cm._factor_w(jv, shift, ptr, col, diag, l_pos, l_pivot, op_ptr, op_src, op_dst, a, colmax,
+                        w, piv, cols, cm.PIVOT_TOLERANCE)
     assert mode == 2
     b = np.array([1.0, -2.0])
     x = b.copy()
-    cm._solve_w(mode, a, lu.ptr, lu.col, lu.diag, lu.perm, w, piv, x, np.empty(nv))
+    cm._solve_w(mode, a, ptr, col, diag, perm, w, piv, x, np.empty(nv))
     np.testing.assert_allclose(x, np.linalg.solve(np.eye(nv) * shift - jac, b), rtol=1e-12)

@@ -64,8 +64,13 @@ class SparseLUStructure:
 
     def arrays(self) -> tuple:
         """The arrays in the order the compiled kernels take them."""
-        return (self.perm, self.ptr, self.col, self.diag, self.l_pos, self.l_pivot, self.op_ptr,
-                self.op_src, self.op_dst)
+        return tuple(np.ascontiguousarray(a, dtype=np.uint64) for a in (
+            self.perm, self.ptr, self.col, self.diag, self.l_pos, self.l_pivot, self.op_ptr,
+            self.op_src, self.op_dst))
+
+    @property
+    def jac_pos_unsigned(self) -> np.ndarray:
+        return np.ascontiguousarray(self.jac_pos, dtype=np.uint64)
 
 
 def _pattern(kinetics) -> np.ndarray:

@@ -290,16 +290,20 @@ def _validated_multipliers(kinetics, log_multiplier, n_members) -> np.ndarray:
 
 def _window_edges(coefficients, out, breaks, feedback: bool) -> np.ndarray:
     """Edges of the k(t) table windows: breakpoints, series knots, splits to MAX_TABLE_INTERVAL_S."""
-    from .coefficients import MAX_TABLE_INTERVAL_S
+    from .coefficients import MAX_DARK_TABLE_INTERVAL_S, MAX_TABLE_INTERVAL_S
     t0, t_end = float(out[0]), float(out[-1])
     edges = np.union1d(np.union1d(breaks, coefficients.smoothness_breaks(t0, t_end)), [t0, t_end])
-    longest = MAX_TABLE_INTERVAL_S
+    longest = np.full(max(edges.size - 1, 0), MAX_TABLE_INTERVAL_S)
     if feedback:
         edges = np.union1d(edges, out)
-        longest = min(longest, FEEDBACK_INTERVAL_S)
+        longest = np.full(max(edges.size - 1, 0), min(MAX_TABLE_INTERVAL_S, FEEDBACK_INTERVAL_S))
+    elif hasattr(coefficients, "sunlit") and edges.size > 1:
+        # windows end at every sunrise and sunset: one dark at its mid-point is dark throughout
+        dark = ~coefficients.sunlit(0.5 * (edges[:-1] + edges[1:]))
+        longest[dark] = MAX_DARK_TABLE_INTERVAL_S
     window_edges = [t0]
-    for a, b in zip(edges[:-1], edges[1:]):
-        n_split = max(1, int(math.ceil((b - a) / longest)))
+    for a, b, cap in zip(edges[:-1], edges[1:], longest):
+        n_split = max(1, int(math.ceil((b - a) / cap)))
         window_edges.extend(a + (b - a) * np.arange(1, n_split + 1) / n_split)
     window_edges = np.array(window_edges)
     window_edges[-1] = t_end
@@ -317,7 +321,8 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                     breakpoints_s=(), rtol: float = DEFAULT_RTOL, atol=DEFAULT_ATOL,
                     first_step: float | None = None, max_step: float = np.inf,
                     method: RosenbrockMethod = RODAS3, progress=None,
-                    breakpoint_width_s: float = BREAKPOINT_WIDTH_S, on_accept=None) -> BatchResult:
+                    breakpoint_width_s: float = BREAKPOINT_WIDTH_S, on_accept=None,
+                    lu: str = "sparse") -> BatchResult:
     """Integrate a batch of members through shared output times with one compiled loop.
 
     Members share the kinetics, the k(t) tables of ``coefficients`` (a
@@ -339,9 +344,14 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         as :func:`integrate_box`
     progress : callable(t_s) called after each output time
     on_accept : callable(t_s, y), single-member batches only: called with the start
-        state and at the start of every k(t) window, which then ends on every output
-        time and lasts at most FEEDBACK_INTERVAL_S (state-dependent k, e.g.
-        ``photolysis.ozonefollow``, sees the state lagged by at most one window)
+        state and at every landing time (before the k(t) table of the next window and
+        the output k); windows then end on every output time and last at most
+        FEEDBACK_INTERVAL_S, so state-dependent k (``photolysis.ozonefollow``) sees
+        the state lagged by at most one window (instead of one step in the numpy
+        reference loop)
+    lu : "sparse" (default): the fixed-pattern sparse LU (``sparselu``) with the dense
+        pivoting LU where a pivot is too small; "dense": the dense pivoting LU at every
+        step (the earlier kernel; for benchmarks)
 
     Returns
     -------
@@ -365,6 +375,8 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     if on_accept is not None and n_members != 1:
         raise ValueError(f"on_accept: only for a batch of one member (state-dependent k), got "
                          f"{n_members} members")
+    if lu not in ("sparse", "dense"):
+        raise ValueError(f"lu: expected 'sparse' or 'dense', got {lu!r}")
     if not hasattr(coefficients, "interval_table"):
         raise ValueError("coefficients: integrate_batch needs interval_table (a RateCoefficientModel); "
                          "plain callables run on the numpy reference loop (integrate_box)")
@@ -376,22 +388,27 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     break_set = set(breaks.tolist())
     n_out = out.size
     nv = kinetics.n_variable
-    ys = np.full((n_members, n_out, nv), np.nan)
+    ys = np.full((n_members, n_out, nv), np.nan)   # filled by the compiled loop
     ks = np.full((n_out, kinetics.n_reactions), np.nan)
     fxs = np.full((n_out, kinetics.n_fixed), np.nan)
     if on_accept is not None:
         on_accept(t0, y[0])
     ks[0], fxs[0] = coefficients(t0)
     coefficient_evaluations = 1
+    # state-dependent k must be evaluated right after the state is observed
+    exact_per_output = on_accept is not None or not hasattr(coefficients, "at_times")
     ys[:, 0] = y
     outputs_reached = np.ones(n_members, dtype=np.int64)
-    next_out = 1
+    output_position = {float(v): q for q, v in enumerate(out)}
+    out_index = np.array([output_position.get(float(v), -1) for v in landing[1:]], dtype=np.int64)
 
     kin_arrays = cm.kinetics_arrays(kinetics)
-    lu = sparse_lu_structure(kinetics)
+    structure = sparse_lu_structure(kinetics)
+    lu_arrays = (structure.jac_pos_unsigned,) + structure.arrays()   # computed once per call
     m_arrays = cm.method_arrays(method)
     params = np.array([SAFETY, FACTOR_MIN, FACTOR_MAX, MIN_STEP_ABSOLUTE, MIN_STEP_RELATIVE,
-                       FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP, FIXED_DIFFERENCE, cm.PIVOT_TOLERANCE])
+                       FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP, FIXED_DIFFERENCE,
+                       cm.PIVOT_TOLERANCE if lu == "sparse" else -1.0])
     counters = np.zeros((n_members, len(COUNTERS)), dtype=np.int64)
     info = np.zeros((n_members, 3))
     status = np.zeros(n_members, dtype=np.int64)
@@ -399,50 +416,50 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     h = np.full(n_members, np.inf if first_step is None else float(first_step))
     restart = np.full(n_members, 1 if first_step is None else 0, dtype=np.int64)
     h_max = float(max_step)
-    window = 0
-    table = None
-    t = t0
 
     def side(tt, end_of_interval):
         if half > 0.0 and tt in break_set:
             return tt - half if end_of_interval else tt + half
         return tt
 
-    for i_land in range(1, landing.size):
-        t_next = float(landing[i_land])
-        if table is None or t >= window_edges[window + 1]:
-            while t >= window_edges[window + 1]:
-                window += 1
-            wa, wb = float(window_edges[window]), float(window_edges[window + 1])
-            if on_accept is not None and wa > t0:
-                on_accept(wa, y[0])
-            table = coefficients.interval_table(wa, wb, side(wa, False), side(wb, True))
-            coefficient_evaluations += 1
+    start = 0                    # index in landing of the current window's start
+    for window in range(window_edges.size - 1):
+        wa, wb = float(window_edges[window]), float(window_edges[window + 1])
+        stop = int(np.searchsorted(landing, wb))       # landing[stop] == wb
+        if wa in break_set:
+            restart[:] = 1       # first step after a jump of J: as at the start
+        table = coefficients.interval_table(wa, wb, side(wa, False), side(wb, True))
+        coefficient_evaluations += 1
         running_before = status == 0
-        cm.advance_batch(t, t_next, y, h, restart, status, h_max, table.t_a, table.t_b, table.poly,
+        cm.advance_batch(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
+                         outputs_reached, y, h, restart, status, h_max, table.t_a, table.t_b, table.poly,
                          table.log_col, table.sza_poly, table.sgrid, table.lnj, table.phot_cols,
-                         table.horizon, lm, fm, float(air_rate[i_land - 1]), rtol, atol, *m_arrays,
-                         *kin_arrays[:8], lu.jac_pos, *lu.arrays(), kinetics.n_fixed, counters, info,
+                         table.horizon, lm, fm, rtol, atol, *m_arrays, *kin_arrays[:8],
+                         lu_arrays[0], *lu_arrays[1:], kinetics.n_fixed, counters, info,
                          params)
         newly_failed = running_before & (status != 0)
         if newly_failed.any():
             failure[newly_failed] = info[newly_failed]
             y[newly_failed] = np.nan
-        t = t_next
-        if t in break_set:
-            restart[:] = 1          # first step after a jump of J: as at the start
-            table = None            # the next window starts here (one-sided k)
-        while next_out < n_out and out[next_out] <= t:
-            ks[next_out], fxs[next_out] = coefficients(side(t, False))
-            coefficient_evaluations += 1
-            running = status == 0
-            ys[running, next_out] = y[running]
-            outputs_reached[running] = next_out + 1
-            next_out += 1
+        if on_accept is not None and status[0] == 0:
+            on_accept(wb, y[0])      # before the output k and the next window's table
+        for q in out_index[start:stop]:
+            if q < 0:
+                continue
+            if exact_per_output:
+                ks[q], fxs[q] = coefficients(side(float(out[q]), False))
+                coefficient_evaluations += 1
             if progress is not None:
-                progress(t)
+                progress(float(out[q]))
+        start = stop
         if not np.any(status == 0):
             break
+    next_out = int(outputs_reached.max())
+    if not exact_per_output and next_out > 1:
+        # exact k at the output times reached, in one vectorised evaluation
+        sides = np.array([side(float(tt), False) for tt in out[1:next_out]])
+        ks[1:next_out], fxs[1:next_out] = coefficients.at_times(sides)
+        coefficient_evaluations += 1
 
     message = np.empty(n_members, dtype=object)
     species = np.empty(n_members, dtype=object)
@@ -462,8 +479,10 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                        wall_time_s=_time.perf_counter() - wall0,
                        settings={"method": method.name, "rtol": rtol, "atol": atol_setting,
                                  "compiled": True, "step_control": "per member",
-                                 "lu": f"sparse, fixed pattern ({lu.order_name} order, {lu.nnz} "
-                                       f"non-zeros, {lu.operations} multiply-adds)"})
+                                 "lu": (f"sparse, fixed pattern ({structure.order_name} order, "
+                                        f"{structure.nnz} non-zeros, {structure.operations} "
+                                        f"multiply-adds), dense pivoting fallback")
+                                 if lu == "sparse" else "dense, partial pivoting"})
 
 
 def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(),
