@@ -120,6 +120,9 @@ def test_several_metrics_labels_and_needs():
                          "2026-09-23T00:00Z)"),
     ("mean O3 over 2026-09-19..2026-09-21", "period start 2026-09-19T00:00Z is outside the run"),
     ("mean O3 over end..start", "ends before it starts"),
+    # local noon at 166.7 E is 00:53 UTC: none between 02:00 and 20:00; the next is named
+    ("noon ClO over 2026-09-21T02:00..2026-09-21T20:00", "no local noon (12:00 mean solar time "
+                                                         "at longitude 166.7, i.e. 2026-09-22T00:53Z"),
 ])
 def test_errors_name_what_is_valid(text, expected):
     ds, _ = _result()

@@ -127,6 +127,7 @@ class RunContext:
     start: np.datetime64 = np.datetime64("NaT")
     end: np.datetime64 = np.datetime64("NaT")
     source: str = "the run"
+    longitude: float = 0.0            # degrees east, at the start (local noon)
 
     def period_text(self) -> str:
         return f"{_fmt(self.start)} to {_fmt(self.end)}"
@@ -139,10 +140,12 @@ def _fmt(t: np.datetime64) -> str:
 def context_from_scenario(scenario) -> RunContext:
     """The :class:`RunContext` of a :class:`~boxchem.scenario.Scenario` (before running it)."""
     mech = scenario.mechanism
+    lon = scenario.longitude
+    lon = float(np.ravel(lon.values)[0]) if hasattr(lon, "values") else float(lon or 0.0)
     return RunContext(tuple(mech.species_names), tuple(f.name for f in mech.families),
                       tuple(c.name for c in mech.cycles), {c.name: c.family for c in mech.cycles},
                       np.datetime64(scenario.start, "ns"), np.datetime64(scenario.end, "ns"),
-                      str(scenario.source))
+                      str(scenario.source), lon)
 
 
 def context_from_dataset(ds: xr.Dataset) -> RunContext:
@@ -154,8 +157,10 @@ def context_from_dataset(ds: xr.Dataset) -> RunContext:
     if "cycle_family" in ds.coords:
         families = dict(zip(cycles, (str(v) for v in ds["cycle_family"].values)))
     t = ds["time"].values.astype("datetime64[ns]")
+    lon = float(ds["longitude"].values.ravel()[0]) if "longitude" in ds.variables else 0.0
     return RunContext(names("species"), names("family"), cycles, families, t[0], t[-1],
-                      str(ds.attrs.get("source_file", ds.attrs.get("scenario_source", "the result"))))
+                      str(ds.attrs.get("source_file", ds.attrs.get("scenario_source", "the result"))),
+                      lon)
 
 
 # ---------------------------------------------------------------------------
@@ -224,6 +229,11 @@ class Metric:
             if not hi > lo:
                 raise MetricError(f"{where}: the period {out.period.text!r} ends before it starts "
                                   f"({_fmt(lo)} to {_fmt(hi)})")
+            if out.kind == "noon" and _noon_times(context.start, context.longitude, lo, hi).size == 0:
+                raise MetricError(f"{where}: no local noon (12:00 mean solar time at longitude "
+                                  f"{context.longitude:g}, i.e. "
+                                  f"{_fmt(_noon_times(context.start, context.longitude, lo, lo + np.timedelta64(1, 'D'))[0])} "
+                                  f"and daily) falls inside {_fmt(lo)} to {_fmt(hi)}")
         return out
 
     def _times(self, context: RunContext):
@@ -457,16 +467,22 @@ def evaluate_metric(ds: xr.Dataset, metric: Metric) -> xr.DataArray:
                         attrs={"units": metric.units, "long_name": metric.text})
 
 
+def _noon_times(start: np.datetime64, longitude: float, lo: np.datetime64,
+                hi: np.datetime64) -> np.ndarray:
+    """UTC instants of 12:00 local mean solar time (UTC + longitude/15 h) in [lo, hi]."""
+    day0 = np.datetime64(start, "D").astype("datetime64[ns]")
+    shift = np.timedelta64(int(round((12.0 - float(longitude) / 15.0) * 3600e9)), "ns")
+    n_days = int((np.datetime64(hi, "ns") - day0) / np.timedelta64(1, "D")) + 3
+    noons = day0 + shift + np.arange(-2, n_days) * np.timedelta64(1, "D")
+    return noons[(noons >= np.datetime64(lo, "ns")) & (noons <= np.datetime64(hi, "ns"))]
+
+
 def _mean_of_noons(ds, v, t, lo, hi, metric) -> np.ndarray:
-    lon = ds["longitude"].values.ravel()[0] if "longitude" in ds.variables else 0.0
+    ctx = context_from_dataset(ds)
     t0 = ds["time"].values.astype("datetime64[ns]")[0]
-    day0 = t0.astype("datetime64[D]").astype("datetime64[ns]")
-    first = (day0 - t0).astype(np.float64) * 1e-9 + (12.0 - float(lon) / 15.0) * 3600.0
-    noons = first + 86400.0 * np.arange(-2, int((hi - first) // 86400.0) + 3)
-    noons = noons[(noons >= lo) & (noons <= hi)]
-    if noons.size == 0:
-        raise MetricError(f"metric {metric.text!r}: no local noon (12:00 mean solar time at "
-                          f"longitude {float(lon):g}) falls inside the period")
+    lo_t = t0 + np.timedelta64(int(round(lo * 1e9)), "ns")
+    hi_t = t0 + np.timedelta64(int(round(hi * 1e9)), "ns")
+    noons = (_noon_times(t0, ctx.longitude, lo_t, hi_t) - t0).astype(np.float64) * 1e-9
     return _interp(v, t, noons).mean(axis=-1)
 
 
