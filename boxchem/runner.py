@@ -153,9 +153,15 @@ def derived_outputs(number_density: np.ndarray, reaction_rate: np.ndarray, air_d
     """
     with np.errstate(divide="ignore", invalid="ignore"):
         mole_fraction = number_density / np.asarray(air_density, dtype=float)[:, None]
+
+    def flat(fn, values, matrix):   # one 2-D product (a stacked 3-D matmul is ~3x slower)
+        values = np.asarray(values, dtype=float)
+        if values.size == 0:
+            return np.zeros(values.shape[:-1] + (np.shape(matrix)[1],))
+        return fn(values.reshape(-1, values.shape[-1]), matrix).reshape(values.shape[:-1] + (-1,))
     return {"mole_fraction": mole_fraction,
-            "family_number_density": family_number_density(number_density, family_weights),
-            "cycle_rate": cycle_rate(reaction_rate, cycle_coefficients)}
+            "family_number_density": flat(family_number_density, number_density, family_weights),
+            "cycle_rate": flat(cycle_rate, reaction_rate, cycle_coefficients)}
 
 
 def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,

@@ -137,12 +137,16 @@ class LocalWorkers:
             raise BoxchemError(f"--workers: expected at least 1, got {n}")
         self.n = int(n)
         self.workers: list[_Worker] = []
+        self._env = _worker_env()
+        # start them now: their imports overlap with the parent's own setup
+        self._fresh = [self._spawn(self._env) for _ in range(self.n)]
 
     def run(self, tasks: Iterable[BatchTask]) -> Iterator[tuple[BatchTask, BatchOutput | BatchFault]]:
         queue = collections.deque()
         source = iter(tasks)
-        env = _worker_env()
-        idle: list[_Worker] = []
+        env = self._env
+        idle: list[_Worker] = list(self._fresh)
+        self._fresh = []
         busy: dict[int, _Worker] = {}
         try:
             while True:

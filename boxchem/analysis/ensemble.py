@@ -283,12 +283,13 @@ class _TaskQueue:
 def _backend(workers, scheduler, client):
     from . import backends
     if client is not None or scheduler:
-        return backends.DaskBackend(scheduler=scheduler, client=client).run, "dask"
+        return backends.DaskBackend(scheduler=scheduler, client=client).run, "dask", None
     if workers is not None and int(workers) > 1:
-        return backends.LocalWorkers(int(workers)).run, f"{int(workers)} local workers"
+        pool = backends.LocalWorkers(int(workers))
+        return pool.run, f"{int(workers)} local workers", pool.close
     if workers is not None and int(workers) < 1:
         raise BoxchemError(f"workers: expected at least 1, got {workers}")
-    return backends.in_process, "in-process"
+    return backends.in_process, "in-process", None
 
 
 def _check_resume(path: Path, table: MemberTable, save, scenario) -> np.ndarray:
@@ -354,9 +355,8 @@ def ensemble(scenario, members, *, output=None, save=None, workers=None, schedul
         raise BoxchemError(f"batch_size: expected at least 1, got {batch_size}")
     if member_time_limit_s is not None and not float(member_time_limit_s) > 0:
         raise BoxchemError(f"member_time_limit_s: expected a time > 0 s, got {member_time_limit_s!r}")
-    run_backend, backend_name = _backend(workers, scheduler, client)
-
     plan = _plan(scn, table)
+    run_backend, backend_name, close_backend = _backend(workers, scheduler, client)
     valid = [(gi, s) for gi, (_, s, _) in enumerate(plan.groups) if s is not None]
     temporary = None
     if output is None:
@@ -368,6 +368,8 @@ def ensemble(scenario, members, *, output=None, save=None, workers=None, schedul
         return _run(scn, table, plan, valid, save, path, int(batch_size), resume and output is not None,
                     run_backend, backend_name, progress, member_time_limit_s, keep=temporary is None)
     finally:
+        if close_backend is not None:
+            close_backend()
         if temporary is not None:
             shutil.rmtree(temporary, ignore_errors=True)
 
