@@ -66,7 +66,7 @@ def tornado(result: xr.Dataset, metric: str | None = None, top: int = 20):
                   fontsize=8)
     ax.axvline(0.0, color="black", lw=0.8)
     ax.set_xlabel("sensitivity  d ln(metric) / d ln(parameter)")
-    ax.set_title(f"{metric}\nlargest {len(rows)} local sensitivities "
+    ax.set_title(f"{result.attrs.get('scenario_source', '')}: {metric}\nlargest {len(rows)} local sensitivities "
                  f"({result.attrs.get('finite_difference_scheme', '')} differences, "
                  f"h = {result.attrs.get('finite_difference_step_ln', float('nan')):g} in ln p)",
                  fontsize=9)

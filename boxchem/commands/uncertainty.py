@@ -67,6 +67,8 @@ def summary_text(mc) -> str:
              f"{a.get('mc_sampling')} sampling, seed {a.get('mc_seed')}, f at "
              f"{float(a.get('mc_temperature_K', float('nan'))):.1f} K read as "
              f"{float(a.get('mc_f_sigma', 1)):g} sigma",
+             f"  f298 defaulted (no f298 in the mechanism): "
+             f"{_shorten(str(a.get('mc_defaulted_reactions', '(none)')))}",
              f"  {'metric':44s} {'nominal':>11s} {'median':>11s} {'5 %':>11s} {'95 %':>11s} {'1-sigma':>8s}"]
     for m in mc["metric"].values:
         q = mc["metric_quantile"].sel(metric=m).values
@@ -81,6 +83,11 @@ def summary_text(mc) -> str:
             r2 = float(mc["contribution_r2"].sel(metric=m))
             lines.append(f"      variance from (SRRC^2, R^2 = {r2:.2f}): {top}")
     return "\n".join(lines)
+
+
+def _shorten(names: str, limit: int = 8) -> str:
+    items = [n.strip() for n in names.split(",") if n.strip()]
+    return names if len(items) <= limit else ", ".join(items[:limit]) + f", ... ({len(items)} in all)"
 
 
 def change_text(rows) -> str:
