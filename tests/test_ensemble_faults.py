@@ -168,3 +168,24 @@ def test_sigkill_of_the_parent_takes_its_workers_and_leaves_a_valid_file(tmp_pat
     ok = ds["member_status"].values == mf.STATUS_SUCCESS
     assert np.isfinite(ds["mole_fraction"].values[ok]).all()
     assert np.isnan(ds["mole_fraction"].values[~ok]).all()
+
+
+def test_interrupts_during_a_write_are_delivered_after_it():
+    done = []
+    with pytest.raises(KeyboardInterrupt):
+        with mf.deferred_interrupts():
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(0.05)
+            done.append("the write finished")
+    assert done == ["the write finished"]
+    assert signal.getsignal(signal.SIGINT) is signal.default_int_handler
+
+
+def test_single_run_files_remove_temporaries_of_crashed_writers(tmp_path):
+    import xarray as xr
+    from boxchem.io.netcdf import write_dataset
+    out = tmp_path / "run.nc"
+    stale = tmp_path / f".run.nc.{2**22 + 777}.k3j.tmp"     # beyond pid_max: its writer is gone
+    stale.write_bytes(b"cut short")
+    write_dataset(xr.Dataset({"x": ("t", np.arange(3.0))}), out)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["run.nc"]
