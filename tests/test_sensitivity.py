@@ -31,7 +31,7 @@ def chain_sensitivities(tmp_path_factory):
     path = write_chain(tmp_path_factory.mktemp("chain"))
     metrics = ["B at end", "A at end", "C at start+5h", "loss AB by conversion over start..end"]
     # step 5e-4: truncation ~h^2/6 ~ 4e-8 relative, integrator noise ~rtol/h ~ 2e-7
-    return local_sensitivities(path, metrics, step=5e-4, species=["B"])
+    return local_sensitivities(path, metrics, step=5e-4, species=["B"], initial=["A"])
 
 
 def test_closed_form_chain_sensitivities(chain_sensitivities):
@@ -72,7 +72,9 @@ def test_closed_form_loss_metric_and_time_resolved(chain_sensitivities):
     np.testing.assert_allclose(series[0, 1:], K1 * db1[1:] / b[1:], atol=1e-6)
     np.testing.assert_allclose(series[1, 1:], K2 * db2[1:] / b[1:], atol=1e-6)
     assert np.isnan(series[0, 0])        # B = 0 at the start: ln B undefined, not 0
-    assert r.attrs["finite_difference_scheme"] == "central" and r.attrs["members"] == 5
+    assert r.attrs["finite_difference_scheme"] == "central" and r.attrs["members"] == 7
+    # first-order kinetics: every amount is proportional to A0, so d ln m / d ln A0 = 1
+    np.testing.assert_allclose(r["sensitivity"].sel(parameter="initial.A").values, 1.0, atol=1e-6)
 
 
 def test_forward_differences_are_first_order(tmp_path):
