@@ -180,6 +180,8 @@ def test_csv_member_table_and_its_errors(tmp_path):
     assert ":2: 1 values, the header has 2 columns" in error("scale.a_to_b,scale.b_to_c\n1\n")
     assert "unknown column - did you mean 'location.latitude'" in error("location.latitud\n1\n")
     assert "expected section.key" in error("latitude\n1\n")
+    assert ":3: column 1 (initial.A): '2 ppbx' needs an amount unit" in \
+        error('initial.A\n1e-9\n2 ppbx\n')
     path = tmp_path / "latin1.csv"
     path.write_bytes("scale.a_to_b\n1\n# caf\xe9\n".encode("latin-1"))
     with pytest.raises(MemberTableError, match=r"latin1.csv:3: not UTF-8"):

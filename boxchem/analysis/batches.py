@@ -189,8 +189,8 @@ def _initial_states(task: BatchTask, group: _Group) -> np.ndarray:
                 except ValueError:
                     pass
             if isinstance(value, str):
-                amount, kind = parse_amount(value, where=f"{task.table_where[i]}, column {column}"
-                                            if task.table_where else column)
+                amount, kind = parse_amount(value, where=task.table_where[i] if task.table_where
+                                            else column)
                 y0[i, j] = amount * group.air0 if kind == "mole_fraction" else amount
             else:
                 y0[i, j] = float(value) * group.air0
@@ -269,7 +269,11 @@ def run_batch(task: BatchTask) -> BatchOutput:
         # the whole batch could not be integrated (e.g. absurd factors): every member failed
         return _all_failed(task, f"{type(exc).__name__}: {exc}", wall0, fault="error")
     status = np.where(np.asarray(result.status) == 0, 1, 2).astype(np.int8)
-    k = result.k[None, :, :] * np.exp(log_multiplier)[:, None, :]
+    # each member's k at the output times: the shared exact k times its factors (only when saved
+    # or needed for rates: (members, times, reactions) is the largest array of a batch)
+    needs_k = {"rate_coefficient", "reaction_rate", "cycle_rate"} & set(task.save)
+    k = (result.k[None, :, :] * np.exp(log_multiplier)[:, None, :] if needs_k
+         else np.zeros((n, 0, 0)))
     with np.errstate(invalid="ignore", over="ignore"):   # failed members are NaN after failing
         arrays = _outputs(group, np.asarray(result.y, dtype=float), k, task.save)
     return BatchOutput(task.batch_id, task.rows, arrays, status,

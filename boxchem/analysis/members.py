@@ -336,6 +336,23 @@ def validate_table(table: MemberTable, scenario) -> None:
             raise MemberTableError(f"{column_where(column)}: unknown column{hint}; valid: "
                                    f"scale.<reaction id>, initial.<species>, {', '.join(keys)}, "
                                    f"{LABEL_COLUMN}")
+    from ..units import parse_amount
+    for column in table.text_factors:
+        if column.startswith("initial."):
+            for row in range(len(table)):
+                cell = table.value(row, column)
+                try:
+                    float(cell)
+                    continue          # a number: a mole fraction, checked below
+                except ValueError:
+                    pass
+                try:
+                    value, _ = parse_amount(cell, where=table.where(row, column))
+                except BoxchemError as exc:
+                    raise MemberTableError(str(exc)) from None
+                if not math.isfinite(value) or value < 0:
+                    raise MemberTableError(f"{table.where(row, column)}: got {cell!r}; valid: a "
+                                           f"finite amount >= 0 (e.g. 2 ppbv, 1e9 cm-3)")
     for column in table.factors:
         if column.startswith(("scale.", "initial.")):
             values = table.numeric[:, table.factors.index(column)]
