@@ -408,6 +408,10 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
         # the template needs one setup: built here (and kept for in-process batches)
         first, _ = _group(tasks[0])
         template, variables = _template(first.setup, plan, table, save, plan.groups[valid[0][0]][1])
+        if not in_process:        # the workers build their own; do not hold it here
+            from .batches import _SETUPS
+            _SETUPS.clear()
+            del first
         mf.create_member_file(path, template, variables)
         status = np.zeros(len(table), dtype=int)
         for group, gscn, error in plan.groups:
