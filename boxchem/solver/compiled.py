@@ -1,15 +1,15 @@
-"""Compiled (numba) single-box kernels and the Rosenbrock step loop between two stops.
+"""Compiled (numba) kernels and the Rosenbrock step loop of the time loop.
 
-Why: the numpy path pays 0.3-0.5 ms of per-call overhead per attempted step
-for a 45-species system (LU, Jacobian, RHS and k(t) are each a handful of
-small numpy calls; see DEVELOPERS.md, "Solver").  Here one compiled call
-advances the box over a whole stop interval (between two output times or
-breakpoints): RHS, analytic Jacobian, a hand-written LU with partial
-pivoting, the Rosenbrock stages, the error test and step-size control, and
-k(t) from a per-interval table (``RateCoefficientModel.interval_table``),
-all without returning to Python.
+One compiled call (``advance_batch``) takes every running member of a batch
+through one k(t) window: per member and landing time, ``_advance_member``
+runs the steps - RHS, analytic Jacobian written into the sparse LU pattern
+(``sparselu``), the LU without pivoting on that fixed pattern (dense partial
+pivoting as the fallback where a pivot is too small), the Rosenbrock stages,
+the error test and step-size control, and k(t) from the window's table
+(``RateCoefficientModel.interval_table``) with the member's multipliers - all
+without returning to Python.  The Python side is ``timeloop.integrate_batch``.
 
-The formulas are those of the numpy path, written as loops:
+The formulas are those of the numpy kernels, written as loops:
 
 * rates, RHS and Jacobian: ``kinetics.CompiledKinetics`` (the same slot,
   saturation and scatter tables, so both give the same numbers to rounding;
@@ -20,13 +20,14 @@ The formulas are those of the numpy path, written as loops:
   proposal across them, clipping of small negatives, rejection of larger
   ones, the exact air-density factor exp(r h) / R(r h)).
 
-Differences from the numpy path: k(t) and its time derivative come from
-the interval table (analytic derivative, no finite difference of k), and k
-is evaluated at every stage time the method asks for.
+k(t) and its time derivative come from the window table (analytic derivative),
+and k is evaluated at every stage time the method asks for; d f/d t is exact
+(rates are linear in k and multilinear in the fixed-species slots).
 
-numba compiles each function on first use (seconds) and caches the machine
-code next to this file (``cache=True``), so later processes load it in a
-fraction of a second.  Set ``BOXCHEM_JIT=0`` to use the numpy path.
+numba compiles each function on first use (tens of seconds for all of them)
+and caches the machine code next to this file (``cache=True``), so later
+processes load it in a fraction of a second.  ``BOXCHEM_JIT=0`` (or a missing
+numba) makes ``integrate_box`` use the numpy reference loop (``reference``).
 """
 from __future__ import annotations
 
@@ -160,27 +161,36 @@ def _kinetics_dt(y, k, fixed, dk, dfixed, mass, sat, sat_half, st_ptr, st_idx, s
     for i in range(nf):
         c[nv + i] = fixed[i]
     c[nv + nf] = 1.0
+    one_slot = np.uint64(nv + nf)         # padding slots point at the constant one
     for r in range(nr):
         mprod = 1.0
         for p in range(width):
             mprod *= c[mass[r, p]]
+        # real saturation slots come first; padding has half = 0 (factor exactly 1): skipped
+        n_sat = 0
         sprod = 1.0
         for q in range(swidth):
+            half = sat_half[r, q]
+            if half == 0.0:
+                break
             b = c[sat[r, q]]
-            sprod *= b / (b + sat_half[r, q])
+            sprod *= b / (b + half)
+            n_sat += 1
         rate[r] = k[r] * mprod * sprod
         if want_jac:
             for p in range(width):
+                if mass[r, p] == one_slot:    # padding: no derivative is ever read
+                    break
                 v = k[r] * sprod
                 for q in range(width):
                     if q != p:
                         v *= c[mass[r, q]]
                 d[r * nslot + p] = v
-            for p in range(swidth):
+            for p in range(n_sat):
                 b = c[sat[r, p]]
                 half = sat_half[r, p]
                 v = k[r] * mprod * (half / ((b + half) * (b + half)))
-                for q in range(swidth):
+                for q in range(n_sat):
                     if q != p:
                         bq = c[sat[r, q]]
                         v *= bq / (bq + sat_half[r, q])

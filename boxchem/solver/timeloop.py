@@ -28,19 +28,14 @@ at most w, i.e. J w ~ 1e-5 of a photolysis lifetime at the horizon).  The
 first step after a breakpoint is limited by the same estimate as the very
 first step, so the night-time step size is not tried on the sunrise.
 
-Time dependence of the rate coefficients: k and the fixed densities are
-evaluated once per attempted step, at its end (the end value is reused as
-the start of the next step).  RODAS3 evaluates f only at the step's ends
-(alpha = 0, 1), where k is exact; other methods see k interpolated linearly
-between the ends.  The df/dt term of the stages needs dk/dt at the step
-start: it comes from the parabola through k at the previous step start, the
-current start and the current end (second order, no extra evaluation); at
-the run start and after a breakpoint, where there is no history on the same
-side, one extra evaluation a small fraction of the step ahead gives a
-forward difference.  (A secant over the step alone is only first order: a
-test with k(t) = k0 (1 + sin(omega t)) and its closed form showed errors of
-0.6 % at rtol 1e-4 that way.)  Since rates are linear in k, the k part of
-df/dt is rhs(y, dk/dt, fixed) exactly.
+Time dependence of the rate coefficients: k and the fixed densities come
+from one table per window (``RateCoefficientModel.interval_table``: ln k as
+polynomials in time through Chebyshev-Lobatto nodes, ln J linear in SZA),
+evaluated with its analytic time derivative at every stage time the method
+asks for; the df/dt term of the stages is exact (rates are linear in k and
+multilinear in the fixed-species slots).  The reference loop (``reference``)
+instead evaluates the exact k at every step end and takes dk/dt from a
+parabola through three evaluations.  Output k are exact evaluations.
 
 Air density changes: when the box's air expands or is compressed ([M]
 changes through a temperature or pressure series or a trajectory), number
@@ -114,7 +109,7 @@ FALLBACK_FIRST_STEP = 1e-3
 FIRST_STEP_FRACTION = 0.01
 #: with ``on_accept`` (k depending on the box's state) the k(t) windows are at most this
 #: long [s] and end on every output time: the state is observed at each window's start
-FEEDBACK_INTERVAL_S = 3600.0
+FEEDBACK_INTERVAL_S = 1800.0
 
 #: work counters of every member (the compiled loop's ``counters`` columns)
 COUNTERS = ("steps", "rejected_steps", "rhs_evaluations", "jacobian_evaluations", "lu_decompositions",
