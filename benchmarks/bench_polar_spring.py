@@ -42,13 +42,13 @@ def season() -> None:
 def sweep(days: float) -> None:
     vary = {"location.latitude": LATITUDES, "run.duration": [f"{days:g} d"]}
     t0 = time.perf_counter()
-    serial = run_sweep("polar-spring", vary, workers=1, quiet=True)
+    serial = run_sweep("polar-spring", vary, workers=1, quiet=True, save=["number_density"])
     t_serial = time.perf_counter() - t0
     cores = os.cpu_count() or 1
     t0 = time.perf_counter()
-    parallel = run_sweep("polar-spring", vary, workers=cores, quiet=True)
+    parallel = run_sweep("polar-spring", vary, workers=cores, quiet=True, save=["number_density"])
     t_parallel = time.perf_counter() - t0
-    ok = int((parallel.member_status == "ok").sum())
+    ok = int((parallel.member_status == 1).sum())
     same = bool((abs(serial.number_density - parallel.number_density)
                  <= 1e-9 * abs(serial.number_density) + 1e-30).all())
     print(f"latitude sweep: {len(LATITUDES)} members x {days:g} days, {ok} ok, "

@@ -5,6 +5,7 @@ Public API (imported lazily so that ``import boxchem`` stays fast):
 * ``load_mechanism(path_or_name)``      -> Mechanism
 * ``load_scenario(path_or_name)``       -> Scenario
 * ``run(scenario_or_path, **overrides)`` -> xarray.Dataset
+* ``ensemble(scenario, members, ...)``  -> member-file xarray.Dataset (many runs, one engine)
 * ``solar_zenith_angle(time, latitude, longitude)`` -> degrees
 * ``actinic_flux(...)``                 -> spectral actinic flux at the box
 """
@@ -17,6 +18,7 @@ _LAZY = {
     "parse_mechanism": ("boxchem.mechanism.parser", "parse_mechanism"),
     "load_scenario": ("boxchem.scenario", "load_scenario"),
     "run": ("boxchem.runner", "run"),
+    "ensemble": ("boxchem.analysis.ensemble", "ensemble"),
     "solar_zenith_angle": ("boxchem.environment.solar", "solar_zenith_angle"),
     "actinic_flux": ("boxchem.photolysis.actinic", "actinic_flux"),
     "MechanismError": ("boxchem.errors", "MechanismError"),

@@ -15,7 +15,8 @@ from . import __version__
 from .errors import BoxchemError
 
 #: sub-command modules, in the order ``boxchem --help`` lists them
-COMMANDS = ("check", "rates", "run", "rerun", "jvalues", "budget", "compare", "sweep", "plot", "demo")
+COMMANDS = ("check", "rates", "run", "rerun", "jvalues", "budget", "compare", "sweep", "ensemble", "sensitivity",
+            "uncertainty", "plot", "demo")
 
 
 def build_parser() -> argparse.ArgumentParser:

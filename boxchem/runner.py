@@ -27,8 +27,9 @@ from .diagnostics import (cycle_coefficient_matrix, cycle_rate, family_number_de
 from .errors import IntegrationError, ScenarioError
 from .scenario import Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
 
-__all__ = ["run", "prepare", "RunSetup", "initial_state", "build_environment",
-           "assemble_dataset", "COUNTER_NAMES", "CF_MOLE_FRACTION_NAMES"]
+__all__ = ["run", "prepare", "integrate", "RunSetup", "initial_state", "build_environment",
+           "assemble_dataset", "derived_outputs", "species_number_density", "solver_options",
+           "COUNTER_NAMES", "CF_MOLE_FRACTION_NAMES"]
 
 #: work counters the integrator reports (DEVELOPERS.md, "Solver")
 COUNTER_NAMES = ("steps", "rejected_steps", "rhs_evaluations", "jacobian_evaluations",
@@ -141,6 +142,28 @@ def _species_attrs(mechanism) -> dict[str, np.ndarray]:
     }
 
 
+def derived_outputs(number_density: np.ndarray, reaction_rate: np.ndarray, air_density: np.ndarray,
+                    family_weights: np.ndarray, cycle_coefficients: np.ndarray) -> dict[str, np.ndarray]:
+    """Mole fractions, family densities and cycle rates from the state at the output times.
+
+    ``number_density`` (..., time, species) [cm-3], ``reaction_rate`` (..., time,
+    reaction) [cm-3 s-1], ``air_density`` (time,) [cm-3]; leading member
+    dimensions are allowed (the ensemble engine passes a batch).  One
+    implementation for single runs and member files.
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mole_fraction = number_density / np.asarray(air_density, dtype=float)[:, None]
+
+    def flat(fn, values, matrix):   # one 2-D product (a stacked 3-D matmul is ~3x slower)
+        values = np.asarray(values, dtype=float)
+        if values.size == 0:
+            return np.zeros(values.shape[:-1] + (np.shape(matrix)[1],))
+        return fn(values.reshape(-1, values.shape[-1]), matrix).reshape(values.shape[:-1] + (-1,))
+    return {"mole_fraction": mole_fraction,
+            "family_number_density": flat(family_number_density, number_density, family_weights),
+            "cycle_rate": flat(cycle_rate, reaction_rate, cycle_coefficients)}
+
+
 def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
                      number_density: np.ndarray, rate_coefficient: np.ndarray,
                      reaction_rate: np.ndarray, environment_state, counters: Mapping[str, Any],
@@ -156,12 +179,12 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
     """
     times = scenario.start + np.round(np.asarray(times_s) * 1e9).astype("timedelta64[ns]")
     air = np.asarray(environment_state.air_density, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        mole_fraction = number_density / air[:, None]
     weights = family_weight_matrix(mechanism)
     cycle_coefficients = cycle_coefficient_matrix(mechanism)
-    families = family_number_density(number_density, weights)
-    cycles = cycle_rate(reaction_rate, cycle_coefficients)
+    derived = derived_outputs(number_density, reaction_rate, air, weights, cycle_coefficients)
+    mole_fraction = derived["mole_fraction"]
+    families = derived["family_number_density"]
+    cycles = derived["cycle_rate"]
 
     species = list(mechanism.species_names)
     reactions = list(mechanism.reaction_ids)
@@ -255,6 +278,7 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
     attrs: dict[str, Any] = {
         "Conventions": "CF-1.10",
         "title": f"boxchem run of {scenario.source}",
+        "boxchem_result_kind": "run",
         "source": f"boxchem {__version__} box model",
         "boxchem_version": __version__,
         "mechanism_source": str(mechanism.source or scenario.mechanism_path),
@@ -341,18 +365,29 @@ def prepare(scenario: Scenario) -> RunSetup:
                     times, breaks)
 
 
+def species_number_density(setup: RunSetup, y: np.ndarray, fixed: np.ndarray) -> np.ndarray:
+    """Number densities [cm-3] of every mechanism species in mechanism order, (..., time, species).
+
+    ``y`` (..., time, n_variable) in ``kinetics.variable_species`` order; ``fixed``
+    (time, n_fixed) in ``kinetics.fixed_species`` order (shared by a batch).
+    """
+    kinetics, mechanism = setup.kinetics, setup.mechanism
+    index = {n: ("y", i) for i, n in enumerate(kinetics.variable_species)}
+    index.update({n: ("fixed", i) for i, n in enumerate(kinetics.fixed_species)})
+    number_density = np.empty(y.shape[:-1] + (len(mechanism.species),))
+    for j, name in enumerate(mechanism.species_names):
+        source, i = index[name]
+        number_density[..., j] = y[..., i] if source == "y" else fixed[..., i]
+    return number_density
+
+
 def _dataset_from_result(setup: RunSetup, result, *, status: str, message: str) -> xr.Dataset:
     """Output Dataset from a :class:`~boxchem.solver.timeloop.TimeLoopResult`."""
     mechanism, kinetics = setup.mechanism, setup.kinetics
     times = np.asarray(result.times, dtype=float)
     y, k, fixed = (np.asarray(result.y, float), np.asarray(result.k, float),
                    np.asarray(result.fixed, float))
-    index = {n: ("y", i) for i, n in enumerate(kinetics.variable_species)}
-    index.update({n: ("fixed", i) for i, n in enumerate(kinetics.fixed_species)})
-    number_density = np.empty((times.size, len(mechanism.species)))
-    for j, name in enumerate(mechanism.species_names):
-        source, i = index[name]
-        number_density[:, j] = (y if source == "y" else fixed)[:, i]
+    number_density = species_number_density(setup, y, fixed)
     rates = kinetics.rates(y, k, fixed) if times.size else np.zeros((0, len(mechanism.reactions)))
     state = setup.environment.at(times)
     if hasattr(setup.photolysis, "observe") and times.size:
@@ -377,6 +412,27 @@ def _dataset_from_result(setup: RunSetup, result, *, status: str, message: str) 
                             photolysis_sources=sources, photolysis_data=data_used)
 
 
+def solver_options(scenario: Scenario) -> dict[str, Any]:
+    """The solver keyword arguments a scenario asks for (rtol, atol, max_step, method)."""
+    from .solver import rosenbrock
+    return {"rtol": scenario.rtol, "atol": scenario.atol,
+            "max_step": scenario.max_step_s if scenario.max_step_s else np.inf,
+            "method": getattr(rosenbrock, scenario.solver_method.upper())}
+
+
+def integrate(setup: RunSetup, *, progress=None):
+    """Integrate one box of a prepared setup -> :class:`~boxchem.solver.timeloop.TimeLoopResult`.
+
+    Raises :class:`~boxchem.errors.IntegrationError` (time in s since the start,
+    ``partial_result`` a TimeLoopResult) when the integrator fails.
+    """
+    from .solver.timeloop import integrate_box
+    return integrate_box(setup.kinetics, setup.coefficients, setup.y0, setup.output_times_s,
+                         breakpoints_s=setup.breakpoints_s, progress=progress,
+                         on_accept=getattr(setup.photolysis, "observe", None),
+                         **solver_options(setup.scenario))
+
+
 def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] | None = None,
         progress: bool | Any = False, **overrides: Any) -> xr.Dataset:
     """Run a scenario and return the output Dataset (DEVELOPERS.md, "Output").
@@ -391,8 +447,6 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
     its ``partial_result`` is the Dataset up to the last output time reached.
     """
     from .progress import ProgressBar
-    from .solver.timeloop import integrate_box
-    from .solver import rosenbrock
 
     scenario = (scenario_or_path if isinstance(scenario_or_path, Scenario)
                 else load_scenario(scenario_or_path))
@@ -406,14 +460,8 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
         callback = bar
     else:
         callback = progress or None
-    method = getattr(rosenbrock, scenario.solver_method.upper())
     try:
-        result = integrate_box(setup.kinetics, setup.coefficients, setup.y0, setup.output_times_s,
-                               breakpoints_s=setup.breakpoints_s, rtol=scenario.rtol,
-                               atol=scenario.atol,
-                               max_step=scenario.max_step_s if scenario.max_step_s else np.inf,
-                               progress=callback, method=method,
-                               on_accept=getattr(setup.photolysis, "observe", None))
+        result = integrate(setup, progress=callback)
     except IntegrationError as exc:
         if isinstance(exc.time, (int, float, np.floating)):
             seconds = float(exc.time)

@@ -206,8 +206,11 @@ class Scenario:
         record = dict(self.overrides)
         labels = dict(self.override_origins)
         key_dirs = dict(self.key_dirs)
+        new_mechanism = False
         for key, value in overrides.items():
             section, name = _override_target(key, origins.get(key, f"override {key}={value!r}"))
+            # another mechanism file must be read, not the loaded one kept
+            new_mechanism |= (section, name) == ("run", "mechanism")
             # an overriding path is read against the scenario's own folder, not a base's
             key_dirs.pop(_where(section, name), None)
             label = origins.get(key, f"override {section}.{name}={value!r}")
@@ -234,7 +237,8 @@ class Scenario:
                     table[rid] = factor  # let validation report the bad value
                 record[f"scale.{rid}"] = factor
         return _build(data, text=self.text, base_dir=self.base_dir, source=self.source,
-                      mechanism=self.mechanism, overrides=record, origins=labels,
+                      mechanism=None if new_mechanism else self.mechanism,
+                      overrides=record, origins=labels,
                       layers=self.layers, key_sources=self.key_sources, key_dirs=key_dirs)
 
     # -- derived -----------------------------------------------------------------

@@ -1,21 +1,14 @@
-"""Sweeps: combination and failure logic with an injected member function, and the CLI."""
+"""Sweeps: a grid of --vary values becomes a member table for the ensemble engine."""
 from __future__ import annotations
+
+from pathlib import Path
 
 import numpy as np
 import pytest
 
-from boxchem.analysis.sweep import SweepError, parse_vary, run_sweep
-from conftest_diagnostics import make_result
+from boxchem.analysis.sweep import SweepError, grid, parse_vary, run_sweep, sweep_table
 
-
-def fake_member(scenario, assignment):
-    """Module-level (picklable) stand-in for a run: O3 scaled by the varied values."""
-    lat = assignment.get("location.latitude", -70.0)
-    if lat == -90.0:
-        raise RuntimeError("integrator failed (injected)")
-    ds = make_result(days=0.5, step_minutes=60.0, start=str(assignment.get("run.start", "2026-09-01")))
-    factor = abs(lat) / 70.0 * assignment.get("scale.clo_clo_m", 1.0)
-    return ds.assign(number_density=ds["number_density"] * factor)
+CHAIN = Path(__file__).parent / "data" / "runner_chain.toml"
 
 
 def test_parse_vary():
@@ -26,55 +19,51 @@ def test_parse_vary():
             parse_vary([bad])
 
 
-@pytest.mark.parametrize("workers", [1, 2])
-def test_every_combination_with_one_failing_member(workers):
-    vary = {"location.latitude": [-60.0, -70.0, -90.0], "scale.clo_clo_m": [0.8, 1.2]}
-    ds = run_sweep("synthetic", vary, workers=workers, member_fn=fake_member, quiet=True)
-    assert ds["number_density"].dims[:2] == ("location_latitude", "scale_clo_clo_m")
-    assert ds["location_latitude"].attrs["sweep_key"] == "location.latitude"
-    status = ds["member_status"]
-    assert status.sel(location_latitude=-90.0).values.tolist() == ["failed", "failed"]
-    assert (status.sel(location_latitude=[-60.0, -70.0]) == "ok").all()
-    assert "integrator failed (injected)" in str(ds["member_error"].sel(location_latitude=-90.0, scale_clo_clo_m=0.8).values)
-    assert ds.attrs["sweep_failed"] == 2 and ds.attrs["sweep_members"] == 6
-    assert np.isnan(ds["number_density"].sel(location_latitude=-90.0)).all()
-    # every member sits at its own place: O3 scales with |lat|/70 * factor (the fake's rule)
-    base = make_result(days=0.5, step_minutes=60.0)["number_density"].sel(species="O3")
-    got = ds["number_density"].sel(species="O3", location_latitude=-60.0, scale_clo_clo_m=1.2)
-    np.testing.assert_allclose(got.values, base.values * 60 / 70 * 1.2, rtol=1e-12)
+def test_grid_table_is_every_combination_last_key_fastest():
+    table = sweep_table({"location.latitude": [-60, -70, -90], "scale.clo_clo_m": [0.8, 1.2]})
+    assert len(table) == 6
+    assert table.numeric[:, table.factors.index("scale.clo_clo_m")].tolist() == [0.8, 1.2] * 3
+    assert table.numeric[:, table.factors.index("location.latitude")].tolist() == \
+        [-60, -60, -70, -70, -90, -90]
+    assert table.labels[3] == "location.latitude=-70 scale.clo_clo_m=1.2"
+    assert table.origin_of(4, "location.latitude") == "--vary location.latitude=-90"
+    assert table.attrs == {"sweep_keys": "location.latitude scale.clo_clo_m", "sweep_shape": "3 2"}
 
 
 def test_different_start_dates_use_elapsed_time():
-    ds = run_sweep("synthetic", {"run.start": ["2026-08-15", "2026-09-01"]}, workers=1,
-                   member_fn=fake_member, quiet=True)
-    assert "elapsed_time" in ds.dims and "time" not in ds.dims
-    assert ds["start_time"].values.astype("datetime64[D]").tolist() == \
+    ds = run_sweep(CHAIN, {"run.start": ["2026-08-15T00:00:00Z", "2026-09-01T00:00:00Z"]}, quiet=True)
+    assert ds["time"].dtype.kind == "m"            # time since each member's start
+    assert ds["member_start_time"].values.astype("datetime64[D]").tolist() == \
         [np.datetime64("2026-08-15"), np.datetime64("2026-09-01")]
+    # constant rates: the same chain whatever the date (its sunrise/sunset breakpoints differ,
+    # so the steps do: equal within the scenario's rtol 1e-8)
+    np.testing.assert_allclose(ds["mole_fraction"].isel(member=0).values,
+                               ds["mole_fraction"].isel(member=1).values, rtol=1e-7, atol=1e-22)
 
 
 def test_all_members_failing_is_an_error():
     with pytest.raises(SweepError, match="every member"):
-        run_sweep("synthetic", {"location.latitude": [-90.0]}, workers=1, member_fn=fake_member, quiet=True)
+        run_sweep(CHAIN, {"location.latitude": [-95.0]}, quiet=True)
 
 
 def test_unknown_key_rejected_before_running():
-    with pytest.raises(SweepError, match="unknown key 'location.latitdue'"):
-        run_sweep("stratosphere-box", {"location.latitdue": [1.0]}, workers=1, quiet=True)
+    with pytest.raises(SweepError, match="location.latitdue.*unknown column - did you mean 'location.latitude'"):
+        run_sweep(CHAIN, {"location.latitdue": [1.0]}, quiet=True)
 
 
 @pytest.mark.slow
 def test_real_sweep_of_shipped_scenario(tmp_path, capsys):
-    """Two short runs of the shipped scenario in two processes, through the CLI."""
+    """Short runs of the shipped scenario in two worker processes, through the CLI."""
     from boxchem.cli import main
-    import xarray as xr
+    from boxchem.io.memberfile import open_member_file
     out = tmp_path / "sweep.nc"
     rc = main(["sweep", "stratosphere-box", "--vary", "run.duration=6 h",
                "--vary", "environment.temperature_offset=-2,2", "--vary", "location.latitude=-70,-95",
                "-o", str(out), "--workers", "2", "--quiet"])
     assert rc == 1  # latitude -95 is invalid: those members fail, the others complete
-    ds = xr.load_dataset(out)
-    assert ds["member_status"].sel(location_latitude=-70.0).values.ravel().tolist() == ["ok", "ok"]
-    assert "latitude" in str(ds["member_error"].sel(location_latitude=-95.0).values.ravel()[0])
+    ds = grid(open_member_file(out, load=True))
+    assert ds["member_status"].sel(location_latitude=-70.0).values.ravel().tolist() == [1, 1]
+    assert "latitude" in str(ds["member_message"].sel(location_latitude=-95.0).values.ravel()[0])
     t = ds["temperature"].sel(location_latitude=-70.0).isel(run_duration=0)
     # the offset is added to the scenario's temperature: members differ by exactly 4 K
     np.testing.assert_allclose((t.sel(environment_temperature_offset=2.0)

@@ -1,4 +1,4 @@
-"""``boxchem sweep SCENARIO --vary KEY=V1,V2,...``: run every combination in parallel."""
+"""``boxchem sweep SCENARIO --vary KEY=V1,V2,...``: a grid of members on the ensemble engine."""
 from __future__ import annotations
 
 import argparse
@@ -10,53 +10,39 @@ EXAMPLE = """examples:
   boxchem sweep polar-spring --vary run.start=2026-08-15,2026-09-01
 
 KEY is section.key of the scenario file, scale.<reaction id> (a factor on the
-rate coefficient) or environment.temperature_offset (the scenario key: kelvin added to the
-scenario's temperature, replacing an offset the file sets).  The result has one dimension per varied key; a
-member that fails is recorded in member_status / member_error and the others
-complete (exit status 1 if any failed)."""
+rate coefficient), initial.<species> or environment.temperature_offset (the
+scenario key: kelvin added to the scenario's temperature, replacing an offset
+the file sets).  Every combination is one member of a member table (the last
+--vary varies fastest), run by the same engine as `boxchem ensemble`; the
+output is its member file (dimension member; the grid is in the attributes
+sweep_keys / sweep_shape).  A member that fails is recorded in member_status /
+member_message and the others complete (exit status 1 if any failed)."""
 
 
 def register(subparsers) -> None:
+    from .ensemble import add_engine_options
     p = subparsers.add_parser(
         "sweep", help="run a scenario for every combination of varied values",
-        description="Run a scenario for every combination of the --vary values in parallel "
-                    "processes and write one netCDF file with a dimension per varied key.",
+        description="Run a scenario for every combination of the --vary values on the ensemble "
+                    "engine and write one member file.",
         epilog=EXAMPLE, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("scenario", metavar="SCENARIO", help="shipped scenario name or path to a .toml file")
     p.add_argument("--vary", action="append", required=True, metavar="KEY=V1,V2,...",
                    help="values of one scenario key (repeatable)")
-    p.add_argument("-o", "--output", default=None, metavar="OUT.nc",
-                   help="output file (default SCENARIO-STEM-sweep.nc in the current folder)")
-    p.add_argument("--workers", type=int, default=None, metavar="N",
-                   help="worker processes (default: number of CPUs)")
-    p.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary")
+    add_engine_options(p, default_output="SCENARIO-STEM-sweep.nc")
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
-    import sys
     from pathlib import Path
 
-    import numpy as np
-
-    from ..analysis.sweep import parse_vary, run_sweep
+    from ..analysis.sweep import parse_vary, sweep_table
+    from .ensemble import run_engine
     vary = parse_vary(args.vary)
     check_vary(args.scenario, vary)
-    result = run_sweep(args.scenario, vary, workers=args.workers, quiet=args.quiet)
+    table = sweep_table(vary)
     out = Path(args.output) if args.output else Path(f"{Path(str(args.scenario)).stem}-sweep.nc")
-    from ..io.netcdf import write_dataset
-    write_dataset(result, out)  # atomic: temporary name, then rename
-    failed = int(result.attrs.get("sweep_failed", 0))
-    if not args.quiet:
-        print(f"{out}: {result.attrs['sweep_members']} members, {failed} failed")
-        if failed:
-            status = result["member_status"].values.ravel()
-            errors = result["member_error"].values.ravel()
-            for idx, (s, e) in zip(np.ndindex(result["member_status"].shape), zip(status, errors)):
-                if s != "ok":
-                    where = ", ".join(f"{d}={result[d].values[i]}" for d, i in zip(result["member_status"].dims, idx))
-                    print(f"  failed ({where}): {e}", file=sys.stderr)
-    return 1 if failed else 0
+    return run_engine(args, table, out)
 
 
 def check_vary(scenario: str, vary) -> None:

@@ -46,13 +46,20 @@ def write_dataset(ds: xr.Dataset, path: str | Path) -> Path:
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
     folder.mkdir(parents=True, exist_ok=True)
-    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    from .memberfile import deferred_interrupts, remove_stale_temporaries
+    # temporaries carry our pid, so a later writer can tell a crashed run's leftovers
+    # (removed) from a running writer's (left alone)
+    remove_stale_temporaries(path)
+    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.{os.getpid()}.", suffix=".tmp", dir=folder)
     os.close(fd)
     tmp = Path(tmp_name)
     try:
-        ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=netcdf_encoding(ds))
-        os.chmod(tmp, 0o666 & ~_current_umask())  # mkstemp creates 0600; use the usual mode
-        os.replace(tmp, path)
+        # Ctrl-C is held until the write is done (an interrupt inside the HDF5 library could
+        # leave it waiting on its file lock); the finished file is then kept
+        with deferred_interrupts():
+            ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=netcdf_encoding(ds))
+            os.chmod(tmp, 0o666 & ~_current_umask())  # mkstemp creates 0600; use the usual mode
+            os.replace(tmp, path)
     except BaseException:
         tmp.unlink(missing_ok=True)
         raise

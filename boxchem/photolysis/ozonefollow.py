@@ -21,13 +21,14 @@ loss is not uniform with height; it is meant for "how much does the
 self-shielding feedback matter", not as a column model.
 
 Coupling to the integrator: J depends on the box's O3 only through this
-column, so it is treated as lagged: the column uses the box's O3 at the last
-accepted step (:func:`boxchem.solver.timeloop.integrate_box` calls ``observe``
-through its ``on_accept`` hook) and the Jacobian neglects dJ/d[O3].  J(O3 ->
-O1D) changes by about 8-10 % per 10 DU (measured with the J table at 220 DU,
-18.5 km); a box losing 3 % of its ozone per day moves the column by about
-0.25 DU per hour, so the lag changes J by about 0.25 % per hour of step
-length, below 0.05 % for the minutes-long daytime steps of a polar run.
+column, so it is treated as lagged: the column uses the box's O3 observed at
+the start of the solver's current k(t) window (:func:`boxchem.solver.timeloop.integrate_box`
+calls ``observe`` through its ``on_accept`` hook at every window edge; windows
+then end on every output time and last at most ``FEEDBACK_INTERVAL_S`` = 30 min)
+and the Jacobian neglects dJ/d[O3].  J(O3 -> O1D) changes by about 8-10 % per
+10 DU (measured with the J table at 220 DU, 18.5 km); a box losing 3 % of its
+ozone per day moves the column by about 0.25 DU per hour, so the lag changes J
+by about 0.25 % per hour of lag, at most about 0.12 % here.
 """
 from __future__ import annotations
 

@@ -40,7 +40,7 @@ from ..errors import ScenarioError
 from .kinetics import CompiledKinetics
 
 __all__ = ["RateCoefficientModel", "THERMAL_GRID_K", "THERMAL_GRID_LOG_AIR", "IntervalTable",
-           "INTERVAL_NODES", "MAX_TABLE_INTERVAL_S", "J_GRID_STEP_DEG"]
+           "INTERVAL_NODES", "MAX_TABLE_INTERVAL_S", "MAX_DARK_TABLE_INTERVAL_S", "J_GRID_STEP_DEG"]
 
 #: node spacing of the thermal-k interpolation grid in T [K] ...
 THERMAL_GRID_K = 0.2
@@ -51,6 +51,9 @@ _MAX_NODES = 4096  # cache bound (a long trajectory run visits a few hundred cel
 INTERVAL_NODES = 7
 #: longest interval [s] one ``interval_table`` covers (the time loop splits longer ones)
 MAX_TABLE_INTERVAL_S = 6 * 3600.0
+#: ... and while the sun is below the box's horizon (J = 0): only the smooth thermal k
+#: and fixed densities are interpolated there, between knots of the environment's series
+MAX_DARK_TABLE_INTERVAL_S = 24 * 3600.0
 #: SZA spacing [deg] of the per-interval ln J grid for J that is not from a J table
 J_GRID_STEP_DEG = 0.02
 
@@ -268,6 +271,19 @@ class RateCoefficientModel:
         k = np.unique(np.concatenate(knots))
         return k[(k > t0) & (k < t1)]
 
+    def sunlit(self, times_s) -> np.ndarray:
+        """True where the sun is above the box's horizon at ``times_s`` [s] (bool array).
+
+        The time loop asks this at the mid-points of its windows, which end at every
+        sunrise and sunset, so a window is lit or dark throughout.
+        """
+        times = np.asarray(times_s, dtype=float).ravel()
+        if self.photolysis_rates is None or not self._phot_cols.size or times.size == 0:
+            return np.zeros(times.shape, dtype=bool)
+        state = self.environment.at(times)
+        sza = np.broadcast_to(np.asarray(state.solar_zenith_angle, dtype=float), times.shape)
+        return sza < np.broadcast_to(np.asarray(state.horizon_zenith_angle, dtype=float), times.shape)
+
     def interval_table(self, t_a: float, t_b: float, tau_a: float | None = None,
                        tau_b: float | None = None) -> IntervalTable:
         """k(t) and fixed(t) on [t_a, t_b] [s] as an :class:`IntervalTable` for the compiled loop.
@@ -298,14 +314,14 @@ class RateCoefficientModel:
         values = np.empty((n, nr + len(self._fixed_per_air)))
         conditions = np.stack([state.temperature, state.air_density, state.psc_area,
                                state.sulfate_area, state.ice_area], axis=-1).astype(float)
-        for i in range(n):   # n nodes, each a cached thermal lookup: no loop over reactions
-            if i and np.array_equal(conditions[i], conditions[i - 1]):
-                values[i] = values[i - 1]
-                continue
-            T, air, psc, sulfate, ice = (float(v) for v in conditions[i])
-            values[i, :nr] = (self._thermal_k(T, air) + self._surface_k(T, psc, sulfate, ice)) \
-                * self.multiplier
-            values[i, nr:] = air * self._fixed_per_air
+        T, air, psc, sulfate, ice = conditions.T
+        if self._surface_ref is None:
+            self._surface_k(float(T[0]), 0.0, 0.0, 0.0)
+        T0, per_psc, per_sulfate, per_ice = self._surface_ref
+        surface = np.sqrt(T / T0)[:, None] * (psc[:, None] * per_psc + sulfate[:, None] * per_sulfate
+                                             + ice[:, None] * per_ice)
+        values[:, :nr] = (self._thermal_k_many(T, air) + surface) * self.multiplier
+        values[:, nr:] = air[:, None] * self._fixed_per_air
         positive = np.all(values > 0.0, axis=0)
         with np.errstate(divide="ignore"):
             values = np.where(positive, np.log(np.where(positive, values, 1.0)), values)
@@ -343,6 +359,60 @@ class RateCoefficientModel:
                              positive.astype(np.int64), np.ascontiguousarray(sza_poly),
                              np.ascontiguousarray(sgrid), np.ascontiguousarray(lnj), phot_cols,
                              horizon, nr)
+
+    def _thermal_k_many(self, T: np.ndarray, air: np.ndarray) -> np.ndarray:
+        """``_thermal_k`` at many (T, [M]) at once, (n, n_reactions): the same interpolation."""
+        lnm = np.log(air)
+        if self._anchor is None:
+            self._anchor = (float(T[0]), float(lnm[0]))
+        x = (T - self._anchor[0]) / THERMAL_GRID_K
+        z = (lnm - self._anchor[1]) / THERMAL_GRID_LOG_AIR
+        i, j = np.floor(x).astype(np.int64), np.floor(z).astype(np.int64)
+        wx, wz = x - i, z - j
+        log_k = np.zeros((T.size, len(self.multiplier)))
+        for di in (0, 1):
+            w1 = wx if di else 1.0 - wx
+            for dj in (0, 1):
+                w = w1 * (wz if dj else 1.0 - wz)
+                use = w != 0.0            # nodes of zero weight are never evaluated
+                if not use.any():
+                    continue
+                cache = self._nodes
+                nodes = np.array([cache.get((a, b)) if (a, b) in cache else self._node(a, b)
+                                  for a, b in zip((i[use] + di).tolist(), (j[use] + dj).tolist())])
+                log_k[use] += w[use, None] * nodes
+        return np.exp(log_k)
+
+    def at_times(self, times_s):
+        """(k (n, n_reactions), fixed (n, n_fixed)) at many times [s]: ``self(t)`` for each, vectorised.
+
+        Used by the time loop for the exact k at its output times.  Equal to the
+        per-time call to rounding (the same formulas in array form).
+        """
+        times = np.asarray(times_s, dtype=float).ravel()
+        nr = len(self.multiplier)
+        if times.size == 0:
+            return np.zeros((0, nr)), np.zeros((0, len(self._fixed_per_air)))
+        state = self.environment.at(times)
+
+        def col(v):
+            return np.broadcast_to(np.asarray(v, dtype=float), times.shape).astype(float)
+        T, air = col(state.temperature), col(state.air_density)
+        k = self._thermal_k_many(T, air)
+        if self._surface_ref is None:
+            self._surface_k(float(T[0]), 0.0, 0.0, 0.0)
+        T0, per_psc, per_sulfate, per_ice = self._surface_ref
+        k = k + np.sqrt(T / T0)[:, None] * (col(state.psc_area)[:, None] * per_psc
+                                           + col(state.sulfate_area)[:, None] * per_sulfate
+                                           + col(state.ice_area)[:, None] * per_ice)
+        if self.photolysis_rates is not None:
+            sza = col(state.solar_zenith_angle)
+            lit = sza < col(state.horizon_zenith_angle)
+            if lit.any():
+                j = np.asarray(self.photolysis_rates(sza[lit], col(state.ozone_column)[lit], T[lit],
+                                                     col(state.distance_factor)[lit]), dtype=float)
+                k[lit] += np.where(self._photolysis_mask, j.reshape(-1, nr), 0.0)
+        return k * self.multiplier, air[:, None] * self._fixed_per_air
 
     def __call__(self, t_seconds):
         """(k [n_reactions], fixed [n_fixed]) at ``t_seconds`` [s since the run start]."""

@@ -1,15 +1,15 @@
-"""Compiled (numba) single-box kernels and the Rosenbrock step loop between two stops.
+"""Compiled (numba) kernels and the Rosenbrock step loop of the time loop.
 
-Why: the numpy path pays 0.3-0.5 ms of per-call overhead per attempted step
-for a 45-species system (LU, Jacobian, RHS and k(t) are each a handful of
-small numpy calls; see DEVELOPERS.md, "Solver").  Here one compiled call
-advances the box over a whole stop interval (between two output times or
-breakpoints): RHS, analytic Jacobian, a hand-written LU with partial
-pivoting, the Rosenbrock stages, the error test and step-size control, and
-k(t) from a per-interval table (``RateCoefficientModel.interval_table``),
-all without returning to Python.
+One compiled call (``advance_batch``) takes every running member of a batch
+through one k(t) window: per member and landing time, ``_advance_member``
+runs the steps - RHS, analytic Jacobian written into the sparse LU pattern
+(``sparselu``), the LU without pivoting on that fixed pattern (dense partial
+pivoting as the fallback where a pivot is too small), the Rosenbrock stages,
+the error test and step-size control, and k(t) from the window's table
+(``RateCoefficientModel.interval_table``) with the member's multipliers - all
+without returning to Python.  The Python side is ``timeloop.integrate_batch``.
 
-The formulas are those of the numpy path, written as loops:
+The formulas are those of the numpy kernels, written as loops:
 
 * rates, RHS and Jacobian: ``kinetics.CompiledKinetics`` (the same slot,
   saturation and scatter tables, so both give the same numbers to rounding;
@@ -20,13 +20,14 @@ The formulas are those of the numpy path, written as loops:
   proposal across them, clipping of small negatives, rejection of larger
   ones, the exact air-density factor exp(r h) / R(r h)).
 
-Differences from the numpy path: k(t) and its time derivative come from
-the interval table (analytic derivative, no finite difference of k), and k
-is evaluated at every stage time the method asks for.
+k(t) and its time derivative come from the window table (analytic derivative),
+and k is evaluated at every stage time the method asks for; d f/d t is exact
+(rates are linear in k and multilinear in the fixed-species slots).
 
-numba compiles each function on first use (seconds) and caches the machine
-code next to this file (``cache=True``), so later processes load it in a
-fraction of a second.  Set ``BOXCHEM_JIT=0`` to use the numpy path.
+numba compiles each function on first use (tens of seconds for all of them)
+and caches the machine code next to this file (``cache=True``), so later
+processes load it in a fraction of a second.  ``BOXCHEM_JIT=0`` (or a missing
+numba) makes ``integrate_box`` use the numpy reference loop (``reference``).
 """
 from __future__ import annotations
 
@@ -41,7 +42,11 @@ except ImportError:  # pragma: no cover - exercised only where numba is missing
     _numba = None
 
 __all__ = ["jit_available", "kinetics_arrays", "method_arrays", "compiled_rhs", "compiled_jacobian",
-           "advance"]
+           "compiled_sparse_jacobian", "fill_reducing_order", "advance_batch", "PIVOT_TOLERANCE"]
+
+#: a static pivot below this fraction of the largest entry of its column of W sends the
+#: step to the dense LU with partial pivoting (``sparselu``)
+PIVOT_TOLERANCE = 1e-4
 
 
 def jit_available() -> bool:
@@ -52,7 +57,8 @@ def jit_available() -> bool:
 def _njit(fn):
     if _numba is None:
         return fn
-    return _numba.njit(cache=True, nogil=True)(fn)
+    # error_model="numpy": x / 0 gives inf or nan (caught as non-finite values) instead of raising
+    return _numba.njit(cache=True, nogil=True, error_model="numpy")(fn)
 
 
 # ---------------------------------------------------------------------------
@@ -61,43 +67,34 @@ def _njit(fn):
 def kinetics_arrays(kinetics) -> tuple:
     """The index tables of a :class:`CompiledKinetics` in the layout of the compiled kernels.
 
-    ``(mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows, jac_cols, jac_vals)``:
+    ``(mass, sat, sat_half, st_ptr, st_idx, st_val, jac_cols, jac_vals, jac_rows)``:
     reactant slots (n_reactions, width) and saturation slots (n_reactions,
     swidth) into ``c = [y | fixed | 1]``; the net stoichiometry by reaction
     (CSC: species index and coefficient of reaction r in
-    ``st_idx/st_val[st_ptr[r]:st_ptr[r+1]]``); the Jacobian scatter triplets.
+    ``st_idx/st_val[st_ptr[r]:st_ptr[r+1]]``); the Jacobian scatter triplets
+    (slot column, coefficient, flat index of the dense Jacobian).
     """
     cached = getattr(kinetics, "_compiled_arrays", None)
     if cached is not None:
         return cached
     import scipy.sparse as sp
     net = sp.csc_matrix(kinetics._stoich_dense)
-    arrays = (np.ascontiguousarray(kinetics._mass, dtype=np.int64),
-              np.ascontiguousarray(kinetics._sat, dtype=np.int64),        # already (n_reactions, swidth)
+    # unsigned indices: numba then skips the negative-index wrap-around test on every
+    # access (measured: the sparse LU 1.7x faster than with int64 indices)
+    arrays = (np.ascontiguousarray(kinetics._mass, dtype=np.uint64),
+              np.ascontiguousarray(kinetics._sat, dtype=np.uint64),       # already (n_reactions, swidth)
               np.ascontiguousarray(kinetics._sat_half, dtype=np.float64),
-              net.indptr.astype(np.int64), net.indices.astype(np.int64), net.data.astype(np.float64),
-              kinetics._jac_rows.astype(np.int64), kinetics._jac_cols.astype(np.int64),
-              kinetics._jac_vals.astype(np.float64), fill_reducing_order(kinetics))
+              net.indptr.astype(np.uint64), net.indices.astype(np.uint64), net.data.astype(np.float64),
+              kinetics._jac_cols.astype(np.uint64), kinetics._jac_vals.astype(np.float64),
+              kinetics._jac_rows.astype(np.uint64))
     kinetics._compiled_arrays = arrays
     return arrays
 
 
 def fill_reducing_order(kinetics) -> np.ndarray:
-    """Species order for the LU: fewest Jacobian non-zeros (row + column) first.
-
-    Eliminating sparsely coupled species first and the hubs (ClO, NO2, Cl,
-    BrO, ...) last keeps the fill-in small: for the shipped mechanism (388
-    non-zeros including the diagonal) the factors hold 488 non-zeros in this
-    order against 1605 in mechanism order, and the LU takes 6 us instead of
-    18 us (measured).  Sorting by degree is the simplest fill-reducing
-    heuristic (the idea behind minimum-degree ordering, Tinney & Walker 1967,
-    Proc. IEEE 55, 1801); partial pivoting may still swap rows when needed.
-    """
-    nv = kinetics.n_variable
-    pattern = np.eye(nv, dtype=bool)
-    pattern.flat[np.asarray(kinetics._jac_rows, dtype=np.int64)] = True
-    degree = pattern.sum(axis=0) + pattern.sum(axis=1)
-    return np.argsort(degree, kind="stable").astype(np.int64)
+    """Species order of the sparse LU (``sparselu``: minimum degree or degree sort, fewer operations)."""
+    from .sparselu import sparse_lu_structure
+    return sparse_lu_structure(kinetics).perm
 
 
 def method_arrays(method) -> tuple:
@@ -129,11 +126,27 @@ def method_arrays(method) -> tuple:
 # kernels
 # ---------------------------------------------------------------------------
 @_njit
-def _kinetics(y, k, fixed, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows, jac_cols,
+def _kinetics(y, k, fixed, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos, jac_cols,
               jac_vals, c, rate, d, f_out, jac_out, want_rhs, want_jac):
-    """Rates into ``rate``; RHS into ``f_out`` and/or the dense Jacobian into ``jac_out``.
+    """Rates into ``rate``; RHS into ``f_out`` and/or the Jacobian into the flat ``jac_out``.
 
-    ``c`` (nv + nf + 1), ``rate`` (nr) and ``d`` (nr * (width + swidth)) are work arrays.
+    ``jac_pos[q]`` is where Jacobian scatter triplet q lands in ``jac_out``: the
+    position in the sparse LU pattern (``sparselu``) or the flat index of a dense
+    (n, n) array.  ``c`` (nv + nf + 1), ``rate`` (nr) and ``d`` (nr * (width +
+    swidth)) are work arrays.
+    """
+    _kinetics_dt(y, k, fixed, k, fixed, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
+                 jac_cols, jac_vals, c, rate, d, f_out, jac_out, f_out, want_rhs, want_jac, False)
+
+
+@_njit
+def _kinetics_dt(y, k, fixed, dk, dfixed, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
+                 jac_cols, jac_vals, c, rate, d, f_out, jac_out, dfdt_out, want_rhs, want_jac,
+                 want_dt):
+    """``_kinetics``, and with ``want_dt`` (needs ``want_jac``) the partial time derivative
+    d f/d t = S (d rate/d t) at fixed y into ``dfdt_out``, exactly: rates are linear in
+    k (the term dk prod c) and multilinear in the fixed-species slots (the term
+    d rate/d c_p dfixed_p, from the Jacobian's slot derivatives ``d``).
     """
     nv = y.shape[0]
     nf = fixed.shape[0]
@@ -141,36 +154,60 @@ def _kinetics(y, k, fixed, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows
     width = mass.shape[1]
     swidth = sat.shape[1]
     nslot = width + swidth
+    first_fixed = np.uint64(nv)          # slot indices of the fixed species (unsigned, as mass)
+    end_fixed = np.uint64(nv + nf)
     for i in range(nv):
         c[i] = y[i]
     for i in range(nf):
         c[nv + i] = fixed[i]
     c[nv + nf] = 1.0
+    one_slot = np.uint64(nv + nf)         # padding slots point at the constant one
     for r in range(nr):
         mprod = 1.0
         for p in range(width):
             mprod *= c[mass[r, p]]
+        # real saturation slots come first; padding has half = 0 (factor exactly 1): skipped
+        n_sat = 0
         sprod = 1.0
         for q in range(swidth):
+            half = sat_half[r, q]
+            if half == 0.0:
+                break
             b = c[sat[r, q]]
-            sprod *= b / (b + sat_half[r, q])
+            sprod *= b / (b + half)
+            n_sat += 1
         rate[r] = k[r] * mprod * sprod
         if want_jac:
             for p in range(width):
+                if mass[r, p] == one_slot:    # padding: no derivative is ever read
+                    break
                 v = k[r] * sprod
                 for q in range(width):
                     if q != p:
                         v *= c[mass[r, q]]
                 d[r * nslot + p] = v
-            for p in range(swidth):
+            for p in range(n_sat):
                 b = c[sat[r, p]]
                 half = sat_half[r, p]
                 v = k[r] * mprod * (half / ((b + half) * (b + half)))
-                for q in range(swidth):
+                for q in range(n_sat):
                     if q != p:
                         bq = c[sat[r, q]]
                         v *= bq / (bq + sat_half[r, q])
                 d[r * nslot + width + p] = v
+            if want_dt:
+                v = dk[r] * mprod * sprod
+                for p in range(width):
+                    slot = mass[r, p]
+                    if slot >= first_fixed and slot < end_fixed:
+                        v += d[r * nslot + p] * dfixed[slot - first_fixed]
+                rate[r] = v              # the rates themselves are not needed by this caller
+    if want_dt:
+        for i in range(nv):
+            dfdt_out[i] = 0.0
+        for r in range(nr):
+            for q in range(st_ptr[r], st_ptr[r + 1]):
+                dfdt_out[st_idx[q]] += st_val[q] * rate[r]
     if want_rhs:
         for i in range(nv):
             f_out[i] = 0.0
@@ -178,15 +215,13 @@ def _kinetics(y, k, fixed, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows
             for q in range(st_ptr[r], st_ptr[r + 1]):
                 f_out[st_idx[q]] += st_val[q] * rate[r]
     if want_jac:
-        flat = jac_out.reshape(nv * nv)
-        for i in range(nv * nv):
-            flat[i] = 0.0
-        for q in range(jac_rows.shape[0]):
-            flat[jac_rows[q]] += jac_vals[q] * d[jac_cols[q]]
+        for i in range(jac_out.shape[0]):
+            jac_out[i] = 0.0
+        for q in range(jac_pos.shape[0]):
+            jac_out[jac_pos[q]] += jac_vals[q] * d[jac_cols[q]]
 
 
 def _work(kin_arrays, nv, nf):
-    kin_arrays = kin_arrays[:9]
     mass, sat = kin_arrays[0], kin_arrays[1]
     nr = mass.shape[0]
     return (np.empty(nv + nf + 1), np.empty(nr), np.empty(nr * (mass.shape[1] + sat.shape[1])))
@@ -198,7 +233,8 @@ def compiled_rhs(kinetics, y, k, fixed) -> np.ndarray:
     y, k, fixed = (np.ascontiguousarray(a, dtype=float) for a in (y, k, fixed))
     c, rate, d = _work(arrays, y.size, fixed.size)
     out = np.empty(y.size)
-    _kinetics(y, k, fixed, *arrays[:9], c, rate, d, out, np.empty((1, 1)), True, False)
+    _kinetics(y, k, fixed, *arrays[:6], arrays[8], *arrays[6:8], c, rate, d, out, np.empty(1),
+              True, False)
     return out
 
 
@@ -207,21 +243,37 @@ def compiled_jacobian(kinetics, y, k, fixed) -> np.ndarray:
     arrays = kinetics_arrays(kinetics)
     y, k, fixed = (np.ascontiguousarray(a, dtype=float) for a in (y, k, fixed))
     c, rate, d = _work(arrays, y.size, fixed.size)
-    out = np.empty((y.size, y.size))
-    _kinetics(y, k, fixed, *arrays[:9], c, rate, d, np.empty(1), out, False, True)
+    out = np.empty(y.size * y.size)
+    _kinetics(y, k, fixed, *arrays[:6], arrays[8], *arrays[6:8], c, rate, d, np.empty(1), out,
+              False, True)
+    return out.reshape(y.size, y.size)
+
+
+def compiled_sparse_jacobian(kinetics, y, k, fixed) -> np.ndarray:
+    """The Jacobian [s-1] as values in the sparse LU pattern (``sparselu.sparse_lu_structure``)."""
+    from .sparselu import sparse_lu_structure
+    arrays = kinetics_arrays(kinetics)
+    lu = sparse_lu_structure(kinetics)
+    y, k, fixed = (np.ascontiguousarray(a, dtype=float) for a in (y, k, fixed))
+    c, rate, d = _work(arrays, y.size, fixed.size)
+    out = np.empty(lu.nnz)
+    _kinetics(y, k, fixed, *arrays[:6], lu.jac_pos_unsigned, *arrays[6:8], c, rate, d, np.empty(1), out,
+              False, True)
     return out
 
 
 @_njit
-def _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, k, fixed,
-                     dk, dfixed, want_slope):
+def _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult, fmult,
+                     k, fixed, dk, dfixed, want_slope):
     """k(t), fixed(t) (and their time derivatives) from an interval table.
 
     ``poly`` (n_poly, nr + nf): power-series coefficients in s = 2 (t - t_a)/(t_b - t_a) - 1
     of ln v (``log_col`` 1) or v (0) for the non-photolysis k and the fixed densities;
     ``sza_poly`` the same for the solar zenith angle [deg]; photolysis columns
     ``phot_cols`` get J = exp(piecewise-linear ln J in SZA on ``sgrid``), zero at or
-    beyond ``horizon`` (see ``RateCoefficientModel.interval_table``).
+    beyond ``horizon`` (see ``RateCoefficientModel.interval_table``).  A member's rate
+    multipliers f (``lmult`` = ln f, ``fmult`` = f, per reaction) enter as ln f added to
+    the ln k and ln J columns and as a factor on the columns kept linear.
     """
     nr = k.shape[0]
     nf = fixed.shape[0]
@@ -235,7 +287,14 @@ def _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols
         for q in range(npoly - 1, -1, -1):
             dv = dv * s + v
             v = v * s + poly[q, col]
-        if log_col[col]:
+        if col < nr:
+            if log_col[col]:
+                val = math.exp(v + lmult[col])
+                slope = val * dv * ds_dt
+            else:
+                val = (v if v > 0.0 else 0.0) * fmult[col]
+                slope = dv * ds_dt * fmult[col]
+        elif log_col[col]:
             val = math.exp(v)
             slope = val * dv * ds_dt
         else:
@@ -291,7 +350,7 @@ def _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols
         else:
             lj = (1.0 - w) * lnj[i, c] + w * lnj[i + 1, c]
             dlj = (lnj[i + 1, c] - lnj[i, c]) * slope_s
-        j = math.exp(lj)
+        j = math.exp(lj + lmult[col])
         k[col] += j
         if want_slope:
             dk[col] += j * dlj * dz * ds_dt
@@ -364,25 +423,134 @@ def _lu_solve(a, piv, b):
 
 
 @_njit
-def advance(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols,
-            horizon, r_air, rtol, atol, gamma, ma, mc, mm, me, malpha, mgsum, mreuse, err_exp,
-            mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows, jac_cols, jac_vals, perm,
-            n_fixed, counters, info, params):
-    """Advance ``y`` (in place) from ``t`` to ``t_end`` with Rosenbrock steps.
+def _sparse_w(jv, shift, col, diag, a, colmax):
+    """W = shift I - J in the sparse pattern (``jv`` the Jacobian values); column maxima of |W|."""
+    n = diag.shape[0]
+    for p in range(jv.shape[0]):
+        a[p] = -jv[p]
+    for i in range(n):
+        a[diag[i]] += shift
+        colmax[i] = 0.0
+    for p in range(jv.shape[0]):
+        v = abs(a[p])
+        if v > colmax[col[p]]:
+            colmax[col[p]] = v
+
+
+@_njit
+def _sparse_factor(a, diag, l_pos, l_pivot, op_ptr, op_src, op_dst, colmax, tol):
+    """LU without pivoting on the fixed pattern (``sparselu``), in place.
+
+    Returns False when a pivot is not finite or below ``tol`` times the largest
+    entry of its column of W (the multipliers below it could then grow beyond
+    1/tol; the caller uses the dense pivoting LU instead).
+    """
+    for e in range(l_pos.shape[0]):
+        p = l_pos[e]
+        lik = a[p] / a[l_pivot[e]]
+        a[p] = lik
+        if lik != 0.0:
+            for q in range(op_ptr[e], op_ptr[e + 1]):
+                a[op_dst[q]] -= lik * a[op_src[q]]
+    for i in range(diag.shape[0]):
+        u = abs(a[diag[i]])
+        if not (u > tol * colmax[i]) or not math.isfinite(u):
+            return False
+    return True
+
+
+@_njit
+def _sparse_solve(a, ptr, col, diag, perm, b, x):
+    """Solve W z = b in place (``b`` in species order) with the factors of ``_sparse_factor``."""
+    n = diag.shape[0]
+    for i in range(n):
+        x[i] = b[perm[i]]
+    for i in range(n):
+        s = x[i]
+        for p in range(ptr[i], diag[i]):
+            s -= a[p] * x[col[p]]
+        x[i] = s
+    one = np.uint64(1)                   # diag is unsigned (uint64 + int64 would be float)
+    for i in range(n - 1, -1, -1):
+        s = x[i]
+        for p in range(diag[i] + one, ptr[i + 1]):
+            s -= a[p] * x[col[p]]
+        x[i] = s / a[diag[i]]
+    for i in range(n):
+        b[perm[i]] = x[i]
+
+
+@_njit
+def _dense_w(jv, shift, ptr, col, w):
+    """W = shift I - J as a dense array (permuted order) from the sparse Jacobian values."""
+    n = w.shape[0]
+    for i in range(n):
+        for q in range(n):
+            w[i, q] = 0.0
+        for p in range(ptr[i], ptr[i + 1]):
+            w[i, col[p]] = -jv[p]
+        w[i, i] += shift
+
+
+@_njit
+def _dense_solve(w, piv, perm, b, x):
+    """Solve in place (``b`` in species order) with the factors of ``_lu_factor``."""
+    n = w.shape[0]
+    for i in range(n):
+        x[i] = b[perm[i]]
+    _lu_solve(w, piv, x)
+    for i in range(n):
+        b[perm[i]] = x[i]
+
+
+@_njit
+def _factor_w(jv, shift, ptr, col, diag, l_pos, l_pivot, op_ptr, op_src, op_dst, a, colmax, w, piv,
+              lu_cols, tol):
+    """Factor W: sparse (returns 1), dense with partial pivoting as the fallback (2), or 0 if singular.
+
+    ``tol`` < 0 skips the sparse LU (every step dense: the benchmark's "before").
+    """
+    if tol >= 0.0:
+        _sparse_w(jv, shift, col, diag, a, colmax)
+        if _sparse_factor(a, diag, l_pos, l_pivot, op_ptr, op_src, op_dst, colmax, tol):
+            return 1
+    _dense_w(jv, shift, ptr, col, w)
+    if _lu_factor(w, piv, lu_cols):
+        return 2
+    return 0
+
+
+@_njit
+def _solve_w(mode, a, ptr, col, diag, perm, w, piv, b, x):
+    if mode == 1:
+        _sparse_solve(a, ptr, col, diag, perm, b, x)
+    else:
+        _dense_solve(w, piv, perm, b, x)
+
+
+@_njit
+def _advance_member(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj,
+                    phot_cols, horizon, lmult, fmult, r_air, rtol, atol, gamma, ma, mc, mm, me, malpha,
+                    mgsum, mreuse, err_exp, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_cols,
+                    jac_vals, jac_pos, perm, ptr, col, diag, l_pos, l_pivot, op_ptr, op_src, op_dst,
+                    n_fixed, counters, info, params):
+    """Advance one member's ``y`` (in place) from ``t`` to ``t_end`` with Rosenbrock steps.
 
     ``params`` = (SAFETY, FACTOR_MIN, FACTOR_MAX, MIN_STEP_ABSOLUTE,
     MIN_STEP_RELATIVE, FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP,
-    FIXED_DIFFERENCE).  ``counters`` (int64): steps, rejected, RHS,
-    Jacobian, LU evaluations (added to).  On return ``info`` = (t reached,
-    step proposal for the next interval, index of the worst species).
-    Status: 0 reached ``t_end``; 1 step size below the minimum (error test);
-    2 step size below the minimum (non-finite values).
+    FIXED_DIFFERENCE, PIVOT_TOLERANCE).  ``counters`` (int64): steps, rejected,
+    RHS, Jacobian, LU evaluations, dense-LU fallbacks (added to).  On return
+    ``info`` = (t reached, step proposal for the next interval, index of the
+    worst species).  Status: 0 reached ``t_end``; 1 step size below the minimum
+    (error test); 2 step size below the minimum (non-finite values).
     """
-    safety, fmin, fmax, hmin_abs, hmin_rel, first_frac, fallback, fixed_diff = (
-        params[0], params[1], params[2], params[3], params[4], params[5], params[6], params[7])
+    safety, fmin, fmax, hmin_abs, hmin_rel, first_frac, fallback, fixed_diff, piv_tol = (
+        params[0], params[1], params[2], params[3], params[4], params[5], params[6], params[7],
+        params[8])
     nv = y.shape[0]
     nr = poly.shape[1] - n_fixed
     ns = ma.shape[0]
+    nnz = col.shape[0]
     c = np.empty(nv + n_fixed + 1)
     rate = np.empty(nr)
     d = np.empty(nr * (mass.shape[1] + sat.shape[1]))
@@ -392,7 +560,8 @@ def advance(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, s
     dfx0 = np.empty(n_fixed)
     ks = np.empty(nr)
     fxs = np.empty(n_fixed)
-    fx_eps = np.empty(n_fixed)
+    dks = np.empty(nr)
+    dfxs = np.empty(n_fixed)
     f0c = np.empty(nv)
     f0 = np.empty(nv)
     fi = np.empty(nv)
@@ -402,27 +571,30 @@ def advance(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, s
     yi = np.empty(nv)
     ynew = np.empty(nv)
     err = np.empty(nv)
-    jac = np.empty((nv, nv))
+    xw = np.empty(nv)
+    jv = np.empty(nnz)
+    a = np.empty(nnz)
+    rowmax = np.empty(nv)
     w = np.empty((nv, nv))
     piv = np.empty(nv, dtype=np.int64)
     lu_cols = np.empty(nv, dtype=np.int64)
     stages = np.empty((ns, nv))
-    dummy = np.empty((1, 1))
+    dummy = np.empty(1)
 
-    _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon,
-                     k0, fx0, dk0, dfx0, True)
-    _kinetics(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows, jac_cols, jac_vals,
+    _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult,
+                     fmult, k0, fx0, dk0, dfx0, True)
+    _kinetics(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos, jac_cols, jac_vals,
               c, rate, d, f0c, dummy, True, False)
     counters[2] += 1
-    if restart:   # first step estimate (Hairer & Wanner 1996, II.4), as in timeloop
+    if restart:   # first step estimate (Hairer & Wanner 1996, II.4)
         d0 = 0.0
         d1 = 0.0
         for i in range(nv):
             sc = atol[i] + rtol * abs(y[i])
             d0 += (y[i] / sc) ** 2
             d1 += (f0c[i] / sc) ** 2
-        d0 = math.sqrt(d0 / nv)
-        d1 = math.sqrt(d1 / nv)
+        d0 = math.sqrt(d0 / nv) if nv else 0.0
+        d1 = math.sqrt(d1 / nv) if nv else 0.0
         est = first_frac * d0 / d1 if (d0 > 1e-5 and d1 > 1e-5) else fallback
         if est < h:
             h = est
@@ -437,55 +609,26 @@ def advance(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, s
         clipped = h < h_proposed
         if t_end - (t + h) < 1e-9 * max(abs(t_end), 1.0):
             h = t_end - t
-        # Jacobian with the air-density term, f at the start, and d f/d t
-        _kinetics(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows, jac_cols,
-                  jac_vals, c, rate, d, tmp, jac, False, True)
+        # Jacobian (in the sparse LU pattern) and d f/d t in one pass; f at the start with the
+        # air-density term
+        _kinetics_dt(y, k0, fx0, dk0, dfx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
+                     jac_cols, jac_vals, c, rate, d, tmp, jv, dfdt, False, True, True)
         counters[3] += 1
         for i in range(nv):
-            jac[i, i] += r_air
             f0[i] = f0c[i] + r_air * y[i]
-        # rates are linear in k: the k part of df/dt is rhs(y, dk/dt, fixed)
-        moving = False
-        for r in range(nr):
-            if dk0[r] != 0.0:
-                moving = True
-                break
-        if moving:
-            _kinetics(y, dk0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows, jac_cols,
-                      jac_vals, c, rate, d, dfdt, dummy, True, False)
-            counters[2] += 1
-        else:
-            for i in range(nv):
-                dfdt[i] = 0.0
-        big = 0.0
-        for m in range(n_fixed):
-            if fx0[m] != 0.0:
-                v = abs(dfx0[m]) / abs(fx0[m])
-                if v > big:
-                    big = v
-        if big > 0.0:
-            eps = fixed_diff / big
-            for m in range(n_fixed):
-                fx_eps[m] = fx0[m] + eps * dfx0[m]
-            _kinetics(y, k0, fx_eps, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows, jac_cols,
-                      jac_vals, c, rate, d, tmp, dummy, True, False)
-            counters[2] += 1
-            for i in range(nv):
-                dfdt[i] += (tmp[i] - f0c[i]) / eps
         rejected_here = False
         while True:
             t_new = t_end if h == t_end - t else t + h
-            for i in range(nv):          # in the fill-reducing order perm
-                pi = perm[i]
-                for q in range(nv):
-                    w[i, q] = -jac[pi, perm[q]]
-                w[i, i] += 1.0 / (h * gamma)
+            # W = I/(h gamma) - (J + r_air I)
+            mode = _factor_w(jv, 1.0 / (h * gamma) - r_air, ptr, col, diag, l_pos, l_pivot, op_ptr,
+                             op_src, op_dst, a, rowmax, w, piv, lu_cols, piv_tol)
             counters[4] += 1
-            ok = _lu_factor(w, piv, lu_cols)
+            if mode == 2 and piv_tol >= 0.0:
+                counters[5] += 1
             err_norm = math.inf
             nonfinite = True
-            if ok:
-                last_alpha = -1.0
+            last_alpha = -1.0
+            if mode != 0:
                 for st in range(ns):
                     if st == 0:
                         for i in range(nv):
@@ -501,10 +644,13 @@ def advance(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, s
                                     v += ma[st, q] * stages[q, i]
                             yi[i] = v
                         if malpha[st] != last_alpha:
-                            _coefficients_at(t + malpha[st] * h, t_a, t_b, poly, log_col, sza_poly,
-                                             sgrid, lnj, phot_cols, horizon, ks, fxs, dk0, dfx0, False)
+                            # at the step's end (alpha = 1) with slopes: the next step starts there
+                            t_stage = t_new if malpha[st] == 1.0 else t + malpha[st] * h
+                            _coefficients_at(t_stage, t_a, t_b, poly, log_col, sza_poly,
+                                             sgrid, lnj, phot_cols, horizon, lmult, fmult, ks, fxs,
+                                             dks, dfxs, malpha[st] == 1.0)
                             last_alpha = malpha[st]
-                        _kinetics(yi, ks, fxs, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows,
+                        _kinetics(yi, ks, fxs, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
                                   jac_cols, jac_vals, c, rate, d, fi, dummy, True, False)
                         counters[2] += 1
                         for i in range(nv):
@@ -516,11 +662,9 @@ def advance(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, s
                             if mc[st, q] != 0.0:
                                 v += (mc[st, q] / h) * stages[q, i]
                         tmp[i] = v
+                    _solve_w(mode, a, ptr, col, diag, perm, w, piv, tmp, xw)
                     for i in range(nv):
-                        yi[i] = tmp[perm[i]]
-                    _lu_solve(w, piv, yi)
-                    for i in range(nv):
-                        stages[st, perm[i]] = yi[i]
+                        stages[st, i] = tmp[i]
                 finite = True
                 for i in range(nv):
                     v = y[i]
@@ -550,8 +694,11 @@ def advance(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, s
                         if ynew[i] < 0.0 and -ynew[i] / sc > neg:
                             neg = -ynew[i] / sc
                             neg_i = i
-                    err_norm = math.sqrt(acc / nv)
-                    if neg > 1.0 and neg > err_norm:
+                    err_norm = math.sqrt(acc / nv) if nv else 0.0
+                    if not math.isfinite(err_norm):
+                        nonfinite = True
+                        err_norm = math.inf
+                    elif neg > 1.0 and neg > err_norm:
                         err_norm = neg
                         worst = neg_i
                     elif neg > 1.0:
@@ -609,12 +756,61 @@ def advance(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, s
             h_next = max(h_next, h_proposed)
         h = min(h_next, h_max)
         t = t_new
-        _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon,
-                         k0, fx0, dk0, dfx0, True)
-        _kinetics(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_rows, jac_cols,
+        if last_alpha == 1.0:       # k(t_new) and its slope from the last stage
+            for r in range(nr):
+                k0[r] = ks[r]
+                dk0[r] = dks[r]
+            for q in range(n_fixed):
+                fx0[q] = fxs[q]
+                dfx0[q] = dfxs[q]
+        else:
+            _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon,
+                             lmult, fmult, k0, fx0, dk0, dfx0, True)
+        _kinetics(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos, jac_cols,
                   jac_vals, c, rate, d, f0c, dummy, True, False)
         counters[2] += 1
     info[0] = t
     info[1] = h
     info[2] = worst
     return 0
+
+
+@_njit
+def advance_batch(landings, air_rates, out_index, ys, reached, y, h, restart, status, h_max, t_a, t_b,
+                  poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult, fmult, rtol, atol,
+                  gamma, ma, mc, mm, me, malpha, mgsum, mreuse, err_exp, mass, sat, sat_half, st_ptr,
+                  st_idx, st_val, jac_cols, jac_vals, jac_pos, perm, ptr, col, diag, l_pos, l_pivot,
+                  op_ptr, op_src, op_dst, n_fixed, counters, info, params):
+    """Advance every running member of a batch through one k(t) window (one shared table).
+
+    The window's landing times ``landings`` (n + 1,) (output times, breakpoints,
+    splits) with the air-density rate ``air_rates`` (n,) of each interval; where
+    ``out_index[i]`` >= 0, landing i + 1 is that output time and the member's state
+    goes to ``ys[m, out_index[i]]`` (``reached[m]`` = outputs written).  ``y``
+    (members, nv), ``h`` (members,) step proposals, ``restart`` (members,) 1 where
+    the first step is to be estimated, ``status`` (members,) 0 while a member runs
+    (others are skipped; a member that fails gets 1 or 2, see ``_advance_member``),
+    ``lmult``/``fmult`` (members, nr) ln f and f of each member's rate multipliers,
+    ``counters`` (members, 6), ``info`` (members, 3).  Each member keeps its own
+    step-size control, so its result does not depend on the other members.
+    """
+    for m in range(y.shape[0]):
+        if status[m] != 0:
+            continue
+        for i in range(air_rates.shape[0]):
+            st = _advance_member(landings[i], landings[i + 1], y[m], h[m], h_max, restart[m] != 0,
+                                 t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon,
+                                 lmult[m], fmult[m], air_rates[i], rtol, atol, gamma, ma, mc, mm, me,
+                                 malpha, mgsum, mreuse, err_exp, mass, sat, sat_half, st_ptr, st_idx,
+                                 st_val, jac_cols, jac_vals, jac_pos, perm, ptr, col, diag, l_pos,
+                                 l_pivot, op_ptr, op_src, op_dst, n_fixed, counters[m], info[m], params)
+            h[m] = info[m, 1]
+            restart[m] = 0
+            if st != 0:
+                status[m] = st
+                break
+            j = out_index[i]
+            if j >= 0:
+                for q in range(y.shape[1]):
+                    ys[m, j, q] = y[m, q]
+                reached[m] = j + 1

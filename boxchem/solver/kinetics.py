@@ -36,7 +36,10 @@ Rosenbrock step) cost: n = 60: dense ``scipy.linalg.lu_factor`` 63 us, sparse
 ``scipy.sparse.linalg.splu`` 290 us; n = 100: 110 vs 580 us; n = 150: 250 vs
 1170 us.  The sparse path pays for CSC conversion and per-call overhead that
 small chemistry systems never win back, so the Jacobian is assembled as a
-dense array (through a sparse scatter matrix built at compile time).
+dense array (through a sparse scatter matrix built at compile time).  The
+compiled time loop does not use these kernels: it writes the Jacobian into
+the pattern of its own fixed-pattern sparse LU (``sparselu``), which has no
+per-call overhead.
 
 For a later tangent-linear / sensitivity mode: ``rates`` is linear in ``k``,
 so d(rhs)/d(k_r) is ``stoichiometry[:, r] * rates_r / k_r``, available from

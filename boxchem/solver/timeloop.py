@@ -1,7 +1,16 @@
 """The time loop: Rosenbrock steps between output times and day/night breakpoints.
 
-``integrate_box`` advances one box from ``output_times_s[0]`` through every
-output time.  Steps end exactly on output times and on breakpoints (sunrise
+``integrate_batch`` advances a batch of members (one or many boxes that share
+output times, breakpoints and k(t) tables) from ``output_times_s[0]`` through
+every output time; ``integrate_box`` is a batch of one.  Python walks the
+landing times (output times, breakpoints, knots of the environment's series,
+splits of long windows) and builds one k(t) table per window
+(``RateCoefficientModel.interval_table``); one compiled call per landing
+interval (:func:`boxchem.solver.compiled.advance_batch`) takes every member's
+steps to the next landing time.  The numpy loop of :mod:`.reference` keeps the
+same rules as a slow reference for tests.
+
+Steps end exactly on output times and on breakpoints (sunrise
 and sunset at the box, where photolysis switches on or off), so the values
 reported are the solution at those times, not interpolated or taken from the
 nearest step, and no step straddles a discontinuity of J.  When a step is cut
@@ -19,19 +28,14 @@ at most w, i.e. J w ~ 1e-5 of a photolysis lifetime at the horizon).  The
 first step after a breakpoint is limited by the same estimate as the very
 first step, so the night-time step size is not tried on the sunrise.
 
-Time dependence of the rate coefficients: k and the fixed densities are
-evaluated once per attempted step, at its end (the end value is reused as
-the start of the next step).  RODAS3 evaluates f only at the step's ends
-(alpha = 0, 1), where k is exact; other methods see k interpolated linearly
-between the ends.  The df/dt term of the stages needs dk/dt at the step
-start: it comes from the parabola through k at the previous step start, the
-current start and the current end (second order, no extra evaluation); at
-the run start and after a breakpoint, where there is no history on the same
-side, one extra evaluation a small fraction of the step ahead gives a
-forward difference.  (A secant over the step alone is only first order: a
-test with k(t) = k0 (1 + sin(omega t)) and its closed form showed errors of
-0.6 % at rtol 1e-4 that way.)  Since rates are linear in k, the k part of
-df/dt is rhs(y, dk/dt, fixed) exactly.
+Time dependence of the rate coefficients: k and the fixed densities come
+from one table per window (``RateCoefficientModel.interval_table``: ln k as
+polynomials in time through Chebyshev-Lobatto nodes, ln J linear in SZA),
+evaluated with its analytic time derivative at every stage time the method
+asks for; the df/dt term of the stages is exact (rates are linear in k and
+multilinear in the fixed-species slots).  The reference loop (``reference``)
+instead evaluates the exact k at every step end and takes dk/dt from a
+parabola through three evaluations.  Output k are exact evaluations.
 
 Air density changes: when the box's air expands or is compressed ([M]
 changes through a temperature or pressure series or a trajectory), number
@@ -77,7 +81,6 @@ radicals one wants resolved, not by O3.
 """
 from __future__ import annotations
 
-import bisect
 import math
 import time as _time
 from dataclasses import dataclass, field
@@ -85,11 +88,11 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import IntegrationError
-from .rosenbrock import (RODAS3, RosenbrockMethod, error_norm, next_step_factor, rosenbrock_step,
-                         stability_function)
+from .rosenbrock import FACTOR_MAX, FACTOR_MIN, RODAS3, SAFETY, RosenbrockMethod
 
-__all__ = ["integrate_box", "air_dilution_rates", "TimeLoopResult", "DEFAULT_RTOL", "DEFAULT_ATOL", "BREAKPOINT_WIDTH_S",
-           "MIN_STEP_RELATIVE", "MIN_STEP_ABSOLUTE"]
+__all__ = ["integrate_batch", "integrate_box", "BatchResult", "TimeLoopResult", "air_dilution_rates",
+           "DEFAULT_RTOL", "DEFAULT_ATOL", "BREAKPOINT_WIDTH_S", "MIN_STEP_RELATIVE",
+           "MIN_STEP_ABSOLUTE", "FEEDBACK_INTERVAL_S"]
 
 DEFAULT_RTOL = 1e-4
 DEFAULT_ATOL = 1.0         # cm-3 (see the module docstring)
@@ -98,14 +101,19 @@ MIN_STEP_RELATIVE = 1e-12
 MIN_STEP_ABSOLUTE = 1e-10  # s
 #: default half-width of the uncertainty of a breakpoint [s] (the horizon search tolerance)
 BREAKPOINT_WIDTH_S = 1.0
-#: forward-difference step for dk/dt at a start without history, as a fraction of the step
-START_SLOPE_FRACTION = 1e-3
 #: relative change of the fixed densities used to differentiate f along d(fixed)/dt
 FIXED_DIFFERENCE = 1e-7
 #: first step when none is given and the RHS-based estimate is not usable [s]
 FALLBACK_FIRST_STEP = 1e-3
 #: fraction of y/f used for the automatic first step (Hairer & Wanner 1996, II.4)
 FIRST_STEP_FRACTION = 0.01
+#: with ``on_accept`` (k depending on the box's state) the k(t) windows are at most this
+#: long [s] and end on every output time: the state is observed at each window's start
+FEEDBACK_INTERVAL_S = 1800.0
+
+#: work counters of every member (the compiled loop's ``counters`` columns)
+COUNTERS = ("steps", "rejected_steps", "rhs_evaluations", "jacobian_evaluations", "lu_decompositions",
+            "lu_fallbacks")
 
 
 @dataclass
@@ -138,15 +146,69 @@ class TimeLoopResult:
             "lu_decompositions", "coefficient_evaluations")}
 
 
-def _derivative_at(t_prev, t0, t1, v_prev, v0, v1):
-    """d v/d t at t0 from the parabola through (t_prev, v_prev), (t0, v0), (t1, v1).
+@dataclass
+class BatchResult:
+    """Solution of a batch of members at shared output times (``integrate_batch``).
 
-    Three-point formula for unequal spacings a = t0 - t_prev and b = t1 - t0
-    (differentiated Lagrange interpolation; error of order a*b times the third
-    derivative; common practice, no source).
+    ``y`` (members, n_out, n_variable) [cm-3], NaN after a member's failure;
+    ``k`` (n_out, n_reactions) and ``fixed`` (n_out, n_fixed) are the shared exact
+    values without member multipliers (``member_k(i)`` applies them);
+    ``status`` (members,) 0 ok, 1 step size underflow in the error test, 2 step size
+    underflow with non-finite values; ``message``, ``failure_time_s`` [s, NaN when
+    none], ``failure_step_s``, ``failure_species`` and ``outputs_reached`` (number of
+    output times with values) per member; work counters per member (int64 arrays:
+    ``steps``, ``rejected_steps``, ``rhs_evaluations``, ``jacobian_evaluations``,
+    ``lu_decompositions``, ``lu_fallbacks`` = factorisations that fell back to the
+    dense pivoting LU); ``coefficient_evaluations`` (shared tables and exact k at
+    output times), ``wall_time_s``, ``settings``.
     """
-    a, b = t0 - t_prev, t1 - t0
-    return (-b / (a * (a + b))) * v_prev + ((b - a) / (a * b)) * v0 + (a / (b * (a + b))) * v1
+
+    times: np.ndarray
+    y: np.ndarray
+    k: np.ndarray
+    fixed: np.ndarray
+    species: tuple
+    log_multiplier: np.ndarray
+    status: np.ndarray
+    message: np.ndarray
+    failure_time_s: np.ndarray
+    failure_step_s: np.ndarray
+    failure_species: np.ndarray
+    outputs_reached: np.ndarray
+    steps: np.ndarray
+    rejected_steps: np.ndarray
+    rhs_evaluations: np.ndarray
+    jacobian_evaluations: np.ndarray
+    lu_decompositions: np.ndarray
+    lu_fallbacks: np.ndarray
+    coefficient_evaluations: int = 0
+    wall_time_s: float = 0.0
+    settings: dict = field(default_factory=dict)
+
+    @property
+    def n_members(self) -> int:
+        return int(self.y.shape[0])
+
+    @property
+    def success(self) -> np.ndarray:
+        return self.status == 0
+
+    def member_k(self, i: int) -> np.ndarray:
+        """Rate coefficients of member ``i`` at the output times (n_out, n_reactions)."""
+        return self.k * np.exp(self.log_multiplier[i])
+
+    def member(self, i: int) -> TimeLoopResult:
+        """Member ``i`` as a single-run :class:`TimeLoopResult` (cut at its last output if it failed)."""
+        n = int(self.outputs_reached[i])
+        ok = int(self.status[i]) == 0
+        res = TimeLoopResult(self.times[:n], self.y[i, :n], self.member_k(i)[:n], self.fixed[:n],
+                             self.species, 0 if ok else -1, str(self.message[i]),
+                             int(self.steps[i]), int(self.rejected_steps[i]),
+                             int(self.rhs_evaluations[i]), int(self.jacobian_evaluations[i]),
+                             int(self.lu_decompositions[i]), int(self.coefficient_evaluations),
+                             float(self.wall_time_s), dict(self.settings))
+        res.settings["lu_fallbacks"] = int(self.lu_fallbacks[i])
+        return res
 
 
 def air_dilution_rates(kinetics, coefficients, times_s) -> np.ndarray:
@@ -181,19 +243,257 @@ def _validated_times(output_times_s, breakpoints_s):
     return out, bp
 
 
+def _validated_tolerances(kinetics, rtol, atol):
+    if not (0 < rtol < 1):
+        raise ValueError(f"rtol: expected 0 < rtol < 1, got {rtol!r}")
+    atol = np.broadcast_to(np.asarray(atol, dtype=float), (kinetics.n_variable,)).copy()
+    if np.any(~(atol > 0)):
+        raise ValueError(f"atol: expected positive values [cm-3], got {atol.min()!r}")
+    return float(rtol), atol
+
+
+def _validated_states(kinetics, y0) -> np.ndarray:
+    nv = kinetics.n_variable
+    y = np.array(y0, dtype=float, ndmin=2)
+    if y.ndim != 2 or y.shape[1] != nv:
+        raise ValueError(f"y0: expected shape (n_members, {nv}) in the order of kinetics.variable_species, "
+                         f"got {np.shape(y0)}")
+    bad = ~np.isfinite(y) | (y < 0)
+    if np.any(bad):
+        m, i = (int(v) for v in np.argwhere(bad)[0])
+        member = f"member {m}, " if y.shape[0] > 1 else ""
+        raise ValueError(f"y0: number densities must be finite and >= 0 cm-3; got {float(y[m, i])!r} for "
+                         f"{kinetics.variable_species[i]!r} ({member}index {i})")
+    return np.ascontiguousarray(y)
+
+
+def _validated_multipliers(kinetics, log_multiplier, n_members) -> np.ndarray:
+    nr = kinetics.n_reactions
+    if log_multiplier is None:
+        return np.zeros((n_members, nr))
+    lm = np.array(log_multiplier, dtype=float, ndmin=2)
+    if lm.shape != (n_members, nr):
+        raise ValueError(f"log_multiplier: expected shape ({n_members}, {nr}) = (members of y0, reactions "
+                         f"in kinetics.reaction_ids order), got {np.shape(log_multiplier)}")
+    bad = np.isnan(lm) | (lm == np.inf)
+    if np.any(bad):
+        m, r = (int(v) for v in np.argwhere(bad)[0])
+        raise ValueError(f"log_multiplier: member {m}, reaction {kinetics.reaction_ids[r]!r}: got "
+                         f"{float(lm[m, r])!r}; expected ln f with f a finite factor >= 0 (-inf for f = 0)")
+    return np.ascontiguousarray(lm)
+
+
+def _window_edges(coefficients, out, breaks, feedback: bool) -> np.ndarray:
+    """Edges of the k(t) table windows: breakpoints, series knots, splits to MAX_TABLE_INTERVAL_S."""
+    from .coefficients import MAX_DARK_TABLE_INTERVAL_S, MAX_TABLE_INTERVAL_S
+    t0, t_end = float(out[0]), float(out[-1])
+    edges = np.union1d(np.union1d(breaks, coefficients.smoothness_breaks(t0, t_end)), [t0, t_end])
+    longest = np.full(max(edges.size - 1, 0), MAX_TABLE_INTERVAL_S)
+    if feedback:
+        edges = np.union1d(edges, out)
+        longest = np.full(max(edges.size - 1, 0), min(MAX_TABLE_INTERVAL_S, FEEDBACK_INTERVAL_S))
+    elif hasattr(coefficients, "sunlit") and edges.size > 1:
+        # windows end at every sunrise and sunset: one dark at its mid-point is dark throughout
+        dark = ~coefficients.sunlit(0.5 * (edges[:-1] + edges[1:]))
+        longest[dark] = MAX_DARK_TABLE_INTERVAL_S
+    window_edges = [t0]
+    for a, b, cap in zip(edges[:-1], edges[1:], longest):
+        n_split = max(1, int(math.ceil((b - a) / cap)))
+        window_edges.extend(a + (b - a) * np.arange(1, n_split + 1) / n_split)
+    window_edges = np.array(window_edges)
+    window_edges[-1] = t_end
+    return window_edges
+
+
+def _failure_message(status: int, time_s: float, step_s: float, species) -> str:
+    what = "non-finite values" if status == 2 else "error test failed"
+    where = f"; worst species {species}" if species else ""
+    return (f"step size fell below the minimum ({what}) at t = {time_s:.9g} s "
+            f"(step {step_s:.3g} s){where}")
+
+
+def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplier=None,
+                    breakpoints_s=(), rtol: float = DEFAULT_RTOL, atol=DEFAULT_ATOL,
+                    first_step: float | None = None, max_step: float = np.inf,
+                    method: RosenbrockMethod = RODAS3, progress=None,
+                    breakpoint_width_s: float = BREAKPOINT_WIDTH_S, on_accept=None,
+                    lu: str = "sparse") -> BatchResult:
+    """Integrate a batch of members through shared output times with one compiled loop.
+
+    Members share the kinetics, the k(t) tables of ``coefficients`` (a
+    :class:`~boxchem.solver.coefficients.RateCoefficientModel`, or anything
+    with its ``interval_table``, ``smoothness_breaks``, ``air_density`` and
+    ``__call__``), the output times and the breakpoints; they differ in
+    ``y0`` and in their rate multipliers.  One compiled call per stop interval
+    advances every running member, each with its own step-size control (see
+    DEVELOPERS.md, "Solver", for why not one common step).
+
+    Parameters
+    ----------
+    y0 : (n_members, n_variable) initial number densities [cm-3] (a 1-D array is one member)
+    output_times_s : increasing times [s since the run start]; the first is the start
+    log_multiplier : (n_members, n_reactions) ln f of each member's factor f on every
+        k (thermal, photolysis J, surface), applied on top of the coefficient model's own
+        ``[scale]``; None means f = 1.  -inf gives f = 0.
+    breakpoints_s, breakpoint_width_s, rtol, atol, first_step, max_step, method :
+        as :func:`integrate_box`
+    progress : callable(t_s) called after each output time
+    on_accept : callable(t_s, y), single-member batches only: called with the start
+        state and at every landing time (before the k(t) table of the next window and
+        the output k); windows then end on every output time and last at most
+        FEEDBACK_INTERVAL_S, so state-dependent k (``photolysis.ozonefollow``) sees
+        the state lagged by at most one window (instead of one step in the numpy
+        reference loop)
+    lu : "sparse" (default): the fixed-pattern sparse LU (``sparselu``) with the dense
+        pivoting LU where a pivot is too small; "dense": the dense pivoting LU at every
+        step (the earlier kernel; for benchmarks)
+
+    Returns
+    -------
+    BatchResult.  A member that fails (step size below the minimum, non-finite
+    values) is taken out of the batch with its status, message and time; the
+    others go on.
+    """
+    from . import compiled as cm
+    from .sparselu import sparse_lu_structure
+
+    wall0 = _time.perf_counter()
+    out, breaks = _validated_times(output_times_s, breakpoints_s)
+    rtol, atol = _validated_tolerances(kinetics, rtol, atol)
+    y = _validated_states(kinetics, y0)
+    n_members = y.shape[0]
+    lm = _validated_multipliers(kinetics, log_multiplier, n_members)
+    fm = np.ascontiguousarray(np.exp(lm))
+    half = float(breakpoint_width_s)
+    if not half >= 0:
+        raise ValueError(f"breakpoint_width_s: expected >= 0 s, got {breakpoint_width_s!r}")
+    if on_accept is not None and n_members != 1:
+        raise ValueError(f"on_accept: only for a batch of one member (state-dependent k), got "
+                         f"{n_members} members")
+    if lu not in ("sparse", "dense"):
+        raise ValueError(f"lu: expected 'sparse' or 'dense', got {lu!r}")
+    if not hasattr(coefficients, "interval_table"):
+        raise ValueError("coefficients: integrate_batch needs interval_table (a RateCoefficientModel); "
+                         "plain callables run on the numpy reference loop (integrate_box)")
+
+    t0, t_end = float(out[0]), float(out[-1])
+    window_edges = _window_edges(coefficients, out, breaks, on_accept is not None)
+    landing = np.union1d(out, window_edges)
+    air_rate = air_dilution_rates(kinetics, coefficients, landing)
+    break_set = set(breaks.tolist())
+    n_out = out.size
+    nv = kinetics.n_variable
+    ys = np.full((n_members, n_out, nv), np.nan)   # filled by the compiled loop
+    ks = np.full((n_out, kinetics.n_reactions), np.nan)
+    fxs = np.full((n_out, kinetics.n_fixed), np.nan)
+    if on_accept is not None:
+        on_accept(t0, y[0])
+    ks[0], fxs[0] = coefficients(t0)
+    coefficient_evaluations = 1
+    # state-dependent k must be evaluated right after the state is observed
+    exact_per_output = on_accept is not None or not hasattr(coefficients, "at_times")
+    ys[:, 0] = y
+    outputs_reached = np.ones(n_members, dtype=np.int64)
+    output_position = {float(v): q for q, v in enumerate(out)}
+    out_index = np.array([output_position.get(float(v), -1) for v in landing[1:]], dtype=np.int64)
+
+    kin_arrays = cm.kinetics_arrays(kinetics)
+    structure = sparse_lu_structure(kinetics)
+    lu_arrays = (structure.jac_pos_unsigned,) + structure.arrays()   # computed once per call
+    m_arrays = cm.method_arrays(method)
+    params = np.array([SAFETY, FACTOR_MIN, FACTOR_MAX, MIN_STEP_ABSOLUTE, MIN_STEP_RELATIVE,
+                       FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP, FIXED_DIFFERENCE,
+                       cm.PIVOT_TOLERANCE if lu == "sparse" else -1.0])
+    counters = np.zeros((n_members, len(COUNTERS)), dtype=np.int64)
+    info = np.zeros((n_members, 3))
+    status = np.zeros(n_members, dtype=np.int64)
+    failure = np.full((n_members, 3), np.nan)      # time, step, worst species index
+    h = np.full(n_members, np.inf if first_step is None else float(first_step))
+    restart = np.full(n_members, 1 if first_step is None else 0, dtype=np.int64)
+    h_max = float(max_step)
+
+    def side(tt, end_of_interval):
+        if half > 0.0 and tt in break_set:
+            return tt - half if end_of_interval else tt + half
+        return tt
+
+    start = 0                    # index in landing of the current window's start
+    for window in range(window_edges.size - 1):
+        wa, wb = float(window_edges[window]), float(window_edges[window + 1])
+        stop = int(np.searchsorted(landing, wb))       # landing[stop] == wb
+        if wa in break_set:
+            restart[:] = 1       # first step after a jump of J: as at the start
+        table = coefficients.interval_table(wa, wb, side(wa, False), side(wb, True))
+        coefficient_evaluations += 1
+        running_before = status == 0
+        cm.advance_batch(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
+                         outputs_reached, y, h, restart, status, h_max, table.t_a, table.t_b, table.poly,
+                         table.log_col, table.sza_poly, table.sgrid, table.lnj, table.phot_cols,
+                         table.horizon, lm, fm, rtol, atol, *m_arrays, *kin_arrays[:8],
+                         lu_arrays[0], *lu_arrays[1:], kinetics.n_fixed, counters, info,
+                         params)
+        newly_failed = running_before & (status != 0)
+        if newly_failed.any():
+            failure[newly_failed] = info[newly_failed]
+            y[newly_failed] = np.nan
+        if on_accept is not None and status[0] == 0:
+            on_accept(wb, y[0])      # before the output k and the next window's table
+        for q in out_index[start:stop]:
+            if q < 0:
+                continue
+            if exact_per_output:
+                ks[q], fxs[q] = coefficients(side(float(out[q]), False))
+                coefficient_evaluations += 1
+            if progress is not None:
+                progress(float(out[q]))
+        start = stop
+        if not np.any(status == 0):
+            break
+    next_out = int(outputs_reached.max())
+    if not exact_per_output and next_out > 1:
+        # exact k at the output times reached, in one vectorised evaluation
+        sides = np.array([side(float(tt), False) for tt in out[1:next_out]])
+        ks[1:next_out], fxs[1:next_out] = coefficients.at_times(sides)
+        coefficient_evaluations += 1
+
+    message = np.empty(n_members, dtype=object)
+    species = np.empty(n_members, dtype=object)
+    for m in range(n_members):
+        if status[m] == 0:
+            message[m] = "integration reached the last output time"
+            species[m] = ""
+        else:
+            worst = int(failure[m, 2])
+            species[m] = kinetics.variable_species[worst] if worst >= 0 else ""
+            message[m] = _failure_message(int(status[m]), failure[m, 0], failure[m, 1], species[m])
+    atol_setting = float(atol.max()) if np.all(atol == atol[0]) else atol.tolist()
+    return BatchResult(out, ys, ks, fxs, kinetics.variable_species, lm, status, message,
+                       failure[:, 0].copy(), failure[:, 1].copy(), species, outputs_reached,
+                       *(counters[:, q].copy() for q in range(len(COUNTERS))),
+                       coefficient_evaluations=coefficient_evaluations,
+                       wall_time_s=_time.perf_counter() - wall0,
+                       settings={"method": method.name, "rtol": rtol, "atol": atol_setting,
+                                 "compiled": True, "step_control": "per member",
+                                 "lu": (f"sparse, fixed pattern ({structure.order_name} order, "
+                                        f"{structure.nnz} non-zeros, {structure.operations} "
+                                        f"multiply-adds), dense pivoting fallback")
+                                 if lu == "sparse" else "dense, partial pivoting"})
+
+
 def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(),
                   rtol: float = DEFAULT_RTOL, atol=DEFAULT_ATOL, first_step: float | None = None,
                   max_step: float = np.inf, progress=None, raise_on_failure: bool = True,
                   breakpoint_width_s: float = BREAKPOINT_WIDTH_S,
                   method: RosenbrockMethod = RODAS3, on_accept=None,
                   compiled: bool | None = None) -> TimeLoopResult:
-    """Integrate one box through ``output_times_s``.
+    """Integrate one box through ``output_times_s``: a batch of one (:func:`integrate_batch`).
 
     Parameters
     ----------
     kinetics : CompiledKinetics
-    coefficients : callable(t_s) -> (k [n_reactions], fixed [n_fixed]); e.g.
-        :class:`boxchem.solver.coefficients.RateCoefficientModel`
+    coefficients : a :class:`boxchem.solver.coefficients.RateCoefficientModel` (or any
+        callable(t_s) -> (k [n_reactions], fixed [n_fixed]); one without
+        ``interval_table`` runs on the numpy reference loop, :mod:`.reference`)
     y0 : initial variable-species number densities [cm-3] at ``output_times_s[0]``
     output_times_s : increasing times [s since the run start]; the first is the start
     breakpoints_s : times [s] where k may jump (sunrise/sunset): steps end there
@@ -206,320 +506,38 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
     progress : callable(t_s) called after each output time (e.g. a progress bar)
     raise_on_failure : raise IntegrationError (with the partial result attached
         as ``partial_result``) when True, else return the partial result with status -1
-    on_accept : callable(t_s, y), optional; called with the start state and after
-        every accepted step, before the next coefficient evaluation (so a
-        ``coefficients`` that depends on the box's state sees it lagged by one
-        step, e.g. the overhead ozone column following the box's ozone)
-    compiled : use the compiled loop (:mod:`boxchem.solver.compiled`); None (default)
-        means: when numba is available, ``BOXCHEM_JIT`` is not 0, ``coefficients``
-        offers ``interval_table`` and there is no ``on_accept`` (state-dependent
-        k needs the per-step Python loop).  False forces the numpy path.
+    on_accept : callable(t_s, y), optional; state-dependent k (see ``integrate_batch``)
+    compiled : None (default): the compiled loop when numba is available, ``BOXCHEM_JIT``
+        is not 0 and ``coefficients`` has ``interval_table``; False: the numpy
+        reference loop (slow; for tests and benchmarks).
 
     Returns
     -------
-    TimeLoopResult; ``y[0]`` is ``y0`` clipped to non-negative values.
+    TimeLoopResult; ``y[0]`` is ``y0``.
     """
-    wall0 = _time.perf_counter()
-    out, breaks = _validated_times(output_times_s, breakpoints_s)
-    if not (0 < rtol < 1):
-        raise ValueError(f"rtol: expected 0 < rtol < 1, got {rtol!r}")
-    atol = np.broadcast_to(np.asarray(atol, dtype=float), (kinetics.n_variable,)).copy()
-    if np.any(atol <= 0):
-        raise ValueError(f"atol: expected positive values [cm-3], got {atol.min()!r}")
-    y = np.asarray(y0, dtype=float).copy()
+    y = np.asarray(y0, dtype=float)
     if y.shape != (kinetics.n_variable,):
         raise ValueError(f"y0: expected shape ({kinetics.n_variable},) in the order of "
                          f"kinetics.variable_species, got {y.shape}")
-    bad = ~np.isfinite(y) | (y < 0)
-    if np.any(bad):
-        i = int(np.argmax(bad))
-        raise ValueError(f"y0: number densities must be finite and >= 0 cm-3; got {float(y[i])!r} for "
-                         f"{kinetics.variable_species[i]!r} (index {i})")
-
     if compiled is None:
         from .compiled import jit_available
-        compiled = (jit_available() and on_accept is None
-                    and hasattr(coefficients, "interval_table"))
-    if compiled:
-        if on_accept is not None or not hasattr(coefficients, "interval_table"):
-            raise ValueError("compiled=True: needs coefficients with interval_table and no on_accept")
-        return _integrate_compiled(kinetics, coefficients, y, out, breaks, rtol=rtol, atol=atol,
-                                   first_step=first_step, max_step=max_step, progress=progress,
-                                   raise_on_failure=raise_on_failure,
-                                   breakpoint_width_s=float(breakpoint_width_s), method=method,
-                                   wall0=wall0)
-
-    stops = np.union1d(out[1:], breaks)  # every time a step must end on
-    air_rate = air_dilution_rates(kinetics, coefficients, np.concatenate((out[:1], stops)))
-    n_out = out.size
-    ys = np.full((n_out, kinetics.n_variable), np.nan)
-    ks = np.full((n_out, kinetics.n_reactions), np.nan)
-    fxs = np.full((n_out, kinetics.n_fixed), np.nan)
-    res = TimeLoopResult(out, ys, ks, fxs, kinetics.variable_species,
-                         settings={"method": method.name, "rtol": rtol, "compiled": False,
-                                   "atol": float(atol.max()) if np.all(atol == atol[0]) else atol.tolist()})
-
-    t = tau0 = out[0]
-    prev = None                  # (time, k, fixed) of the previous step start
-    if on_accept is not None:
-        on_accept(t, y)
-    k0, fx0 = coefficients(t)
-    res.coefficient_evaluations += 1
-    ys[0], ks[0], fxs[0] = y, k0, fx0
-    next_out = 1
-    f0c = kinetics.rhs(y, k0, fx0)   # chemistry only (the air-density term is added per step)
-    res.rhs_evaluations += 1
-
-    def step_estimate():
-        scale = atol + rtol * np.abs(y)
-        d0 = np.sqrt(np.mean((y / scale) ** 2))
-        d1 = np.sqrt(np.mean((f0c / scale) ** 2))
-        return FIRST_STEP_FRACTION * d0 / d1 if d0 > 1e-5 and d1 > 1e-5 else FALLBACK_FIRST_STEP
-
-    h = step_estimate() if first_step is None else float(first_step)
-
-    def side_time(tt, end_of_step):
-        """Where to evaluate k for time tt: outside every breakpoint's window t_b +- w,
-        on the side the step is on (before t_b for a step ending at t_b)."""
-        if not break_list or half == 0.0:
-            return tt
-        i = bisect.bisect_left(break_list, tt)
-        for b in break_list[max(i - 1, 0):i + 1]:
-            if abs(tt - b) < half:
-                return b - half if (tt < b or (tt == b and end_of_step)) else b + half
-        return tt
-    break_list = breaks.tolist()
-    break_set = set(break_list)
-    half = float(breakpoint_width_s)
-    if not half >= 0:
-        raise ValueError(f"breakpoint_width_s: expected >= 0 s, got {breakpoint_width_s!r}")
-    h = min(h, max_step)
-
-    stop_index = 0
-    rejected_last = False
-    t_end = out[-1]
-
-    def fail(message, h_now, worst):
-        res.status = -1
-        res.message = message
-        res.y, res.k, res.fixed, res.times = ys[:next_out], ks[:next_out], fxs[:next_out], out[:next_out]
-        res.wall_time_s = _time.perf_counter() - wall0
-        if raise_on_failure:
-            raise IntegrationError(message, time=t, step_size=h_now,
-                                   worst_species=kinetics.variable_species[worst]
-                                   if worst is not None else None, partial_result=res)
-        return res
-
-    while t < t_end:
-        while stops[stop_index] <= t:
-            stop_index += 1
-        t_stop = stops[stop_index]
-        h_proposed = h
-        h = min(h, t_stop - t)
-        clipped = h < h_proposed
-        # land exactly on the stop instead of leaving a sliver step behind
-        if t_stop - (t + h) < 1e-9 * max(abs(t_stop), 1.0):
-            h = t_stop - t
-        t_new = t_stop if h == t_stop - t else t + h
-
-        r_air = air_rate[stop_index]     # d ln[M]/dt on this stop interval [s-1]
-        jac = kinetics.jacobian(y, k0, fx0)
-        res.jacobian_evaluations += 1
-        if r_air != 0.0:
-            jac.flat[::kinetics.n_variable + 1] += r_air
-        f0 = f0c + r_air * y
-        start_slope = None
-        worst = None
-        rejected_here = False
-        while True:
-            at_break = t_new in break_set
-            tau1 = side_time(t_new, end_of_step=True)
-            k1, fx1 = coefficients(tau1)
-            res.coefficient_evaluations += 1
-            dk, dfx = (k1 - k0) / h, (fx1 - fx0) / h
-
-            def fun(tt, yy, _t0=t, _k0=k0, _fx0=fx0, _dk=dk, _dfx=dfx, _r=r_air):
-                s = tt - _t0
-                return kinetics.rhs(yy, _k0 + s * _dk, _fx0 + s * _dfx) + _r * yy
-
-            # d k / d t at the step start, second-order accurate (see _derivative_at)
-            if prev is not None and tau0 - prev[0] > 0 and tau1 - tau0 > 0:
-                dk_dt = _derivative_at(prev[0], tau0, tau1, prev[1], k0, k1)
-                dfx_dt = _derivative_at(prev[0], tau0, tau1, prev[2], fx0, fx1)
-            else:
-                if start_slope is None:
-                    delta = START_SLOPE_FRACTION * max(tau1 - tau0, h)
-                    k_d, fx_d = coefficients(tau0 + delta)
-                    res.coefficient_evaluations += 1
-                    start_slope = ((k_d - k0) / delta, (fx_d - fx0) / delta)
-                dk_dt, dfx_dt = start_slope
-            # rates are linear in k: d f/d t = S (d rates/d k) dk/dt + d f/d fixed dfixed/dt
-            dfdt = kinetics.rhs(y, dk_dt, fx0)
-            res.rhs_evaluations += 1
-            if np.any(dfx_dt):
-                eps = FIXED_DIFFERENCE / np.max(np.abs(dfx_dt) / np.maximum(np.abs(fx0), 1e-300))
-                dfdt = dfdt + (kinetics.rhs(y, k0, fx0 + eps * dfx_dt) - f0c) / eps
-                res.rhs_evaluations += 1
-            y_new, err_vec, n_rhs = rosenbrock_step(fun, jac.copy(), f0, dfdt, t, y, h, method)
-            res.rhs_evaluations += n_rhs
-            res.lu_decompositions += 1
-            if np.isfinite(y_new.sum()):  # inf/NaN anywhere makes the sum non-finite
-                err, worst, scale = error_norm(err_vec, y, y_new, rtol, atol)
-                if y_new.min() < 0.0:
-                    negative = np.maximum(-y_new, 0.0) / scale
-                    if negative.max() > 1.0:
-                        err = max(err, float(negative.max()))
-                        worst = int(np.argmax(negative))
-            else:
-                err, worst = np.inf, int(np.argmax(~np.isfinite(y_new)))
-            if err <= 1.0:
-                break
-            res.rejected_steps += 1
-            h = h * next_step_factor(err, method, after_reject=True)
-            rejected_last = rejected_here = True
-            clipped = False
-            if h < max(MIN_STEP_ABSOLUTE, MIN_STEP_RELATIVE * abs(t)):
-                what = "non-finite values" if not np.isfinite(err) else "error test failed"
-                return fail(f"step size fell below the minimum ({what})", h, worst)
-            t_new = t + h
-
-        # accepted
-        res.steps += 1
-        if r_air != 0.0:   # exact air-density factor for linear invariants (module docstring)
-            y_new *= np.exp(r_air * h) / stability_function(r_air * h, method)
-        np.maximum(y_new, 0.0, out=y_new)
-        factor = next_step_factor(err, method, after_reject=rejected_last)
-        rejected_last = False
-        h_next = h * factor
-        if clipped and not rejected_here:
-            # the step was shortened only to land on a stop: resume the proposal
-            h_next = max(h_next, h_proposed)
-        h = min(h_next, max_step)
-        prev = (tau0, k0, fx0)
-        t, y, k0, fx0, tau0 = t_new, y_new, k1, fx1, tau1
-        if at_break:  # the other side of the jump: no usable history there
-            tau0 = side_time(t, end_of_step=False)
-            k0, fx0 = coefficients(tau0)
-            res.coefficient_evaluations += 1
-            prev = None
-        if on_accept is not None:
-            on_accept(t, y)
-        f0c = kinetics.rhs(y, k0, fx0)
-        res.rhs_evaluations += 1
-        if at_break:
-            h = min(h, step_estimate())
-        while next_out < n_out and out[next_out] <= t:
-            ys[next_out], ks[next_out], fxs[next_out] = y, k0, fx0
-            next_out += 1
-            if progress is not None:
-                progress(t)
-
-    res.wall_time_s = _time.perf_counter() - wall0
-    return res
-
-
-def _integrate_compiled(kinetics, coefficients, y, out, breaks, *, rtol, atol, first_step, max_step,
-                        progress, raise_on_failure, breakpoint_width_s, method, wall0):
-    """The time loop of ``integrate_box`` with the stepping in compiled code.
-
-    Python walks the landing times (output times, breakpoints, knots of the
-    environment's series and table-window splits) and, per window between
-    breakpoints/knots/splits, builds ``coefficients.interval_table``; one
-    compiled call (:func:`boxchem.solver.compiled.advance`) takes all steps
-    to the next landing time.  The rules are those of the numpy loop above.
-    """
-    from . import compiled as cm
-    from .coefficients import MAX_TABLE_INTERVAL_S
-    from .rosenbrock import FACTOR_MAX, FACTOR_MIN, SAFETY
-
-    half = breakpoint_width_s
-    if not half >= 0:
-        raise ValueError(f"breakpoint_width_s: expected >= 0 s, got {breakpoint_width_s!r}")
-    t0, t_end = float(out[0]), float(out[-1])
-    # windows of one interval table: between breakpoints and series knots, split to
-    # at most MAX_TABLE_INTERVAL_S
-    edges = np.union1d(np.union1d(breaks, coefficients.smoothness_breaks(t0, t_end)), [t0, t_end])
-    window_edges = [t0]
-    for a, b in zip(edges[:-1], edges[1:]):
-        n_split = max(1, int(math.ceil((b - a) / MAX_TABLE_INTERVAL_S)))
-        window_edges.extend(a + (b - a) * np.arange(1, n_split + 1) / n_split)
-    window_edges = np.array(window_edges)
-    window_edges[-1] = t_end
-    landing = np.union1d(out, window_edges)
-    air_rate = air_dilution_rates(kinetics, coefficients, landing)
-    break_set = set(breaks.tolist())
-
-    n_out = out.size
-    ys = np.full((n_out, kinetics.n_variable), np.nan)
-    ks = np.full((n_out, kinetics.n_reactions), np.nan)
-    fxs = np.full((n_out, kinetics.n_fixed), np.nan)
-    res = TimeLoopResult(out, ys, ks, fxs, kinetics.variable_species,
-                         settings={"method": method.name, "rtol": rtol, "compiled": True,
-                                   "atol": float(atol.max()) if np.all(atol == atol[0]) else atol.tolist()})
-    k_out, fx_out = coefficients(t0)
-    res.coefficient_evaluations += 1
-    ys[0], ks[0], fxs[0] = y, k_out, fx_out
-    next_out = 1
-
-    kin_arrays = cm.kinetics_arrays(kinetics)
-    m_arrays = cm.method_arrays(method)
-    params = np.array([SAFETY, FACTOR_MIN, FACTOR_MAX, MIN_STEP_ABSOLUTE, MIN_STEP_RELATIVE,
-                       FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP, FIXED_DIFFERENCE])
-    counters = np.zeros(5, dtype=np.int64)
-    info = np.zeros(3)
-    atol_c = np.ascontiguousarray(atol, dtype=float)
-    y = np.ascontiguousarray(y, dtype=float)
-    h = np.inf if first_step is None else float(first_step)
-    restart = first_step is None
-    h_max = float(max_step)
-    window = 0
-    table = None
-    t = t0
-
-    def side(tt, end_of_interval):
-        if half > 0.0 and tt in break_set:
-            return tt - half if end_of_interval else tt + half
-        return tt
-
-    for i_land in range(1, landing.size):
-        t_next = float(landing[i_land])
-        if table is None or t >= window_edges[window + 1]:
-            while t >= window_edges[window + 1]:
-                window += 1
-            wa, wb = float(window_edges[window]), float(window_edges[window + 1])
-            table = coefficients.interval_table(wa, wb, side(wa, False), side(wb, True))
-            res.coefficient_evaluations += 1
-        status = cm.advance(t, t_next, y, h, h_max, restart, table.t_a, table.t_b, table.poly,
-                            table.log_col, table.sza_poly, table.sgrid, table.lnj, table.phot_cols,
-                            table.horizon, float(air_rate[i_land - 1]), rtol, atol_c, *m_arrays,
-                            *kin_arrays, kinetics.n_fixed, counters, info, params)
-        restart = False
-        if status != 0:
-            res.steps, res.rejected_steps, res.rhs_evaluations, res.jacobian_evaluations, \
-                res.lu_decompositions = (int(v) for v in counters)
-            res.status = -1
-            res.message = ("step size fell below the minimum (non-finite values)" if status == 2
-                           else "step size fell below the minimum (error test failed)")
-            res.y, res.k, res.fixed, res.times = ys[:next_out], ks[:next_out], fxs[:next_out], out[:next_out]
-            res.wall_time_s = _time.perf_counter() - wall0
-            if raise_on_failure:
-                worst = int(info[2])
-                raise IntegrationError(res.message, time=float(info[0]), step_size=float(info[1]),
-                                       worst_species=kinetics.variable_species[worst]
-                                       if worst >= 0 else None, partial_result=res)
-            return res
-        t, h = t_next, float(info[1])
-        if t in break_set:
-            restart = True          # first step after a jump of J: as at the start
-            table = None            # the next window starts here (one-sided k)
-        while next_out < n_out and out[next_out] <= t:
-            k_out, fx_out = coefficients(side(t, False))
-            res.coefficient_evaluations += 1
-            ys[next_out], ks[next_out], fxs[next_out] = y, k_out, fx_out
-            next_out += 1
-            if progress is not None:
-                progress(t)
-    res.steps, res.rejected_steps, res.rhs_evaluations, res.jacobian_evaluations, \
-        res.lu_decompositions = (int(v) for v in counters)
-    res.wall_time_s = _time.perf_counter() - wall0
+        compiled = jit_available() and hasattr(coefficients, "interval_table")
+    if not compiled:
+        from .reference import integrate_box_reference
+        return integrate_box_reference(kinetics, coefficients, y, output_times_s,
+                                       breakpoints_s=breakpoints_s, rtol=rtol, atol=atol,
+                                       first_step=first_step, max_step=max_step, progress=progress,
+                                       raise_on_failure=raise_on_failure,
+                                       breakpoint_width_s=breakpoint_width_s, method=method,
+                                       on_accept=on_accept)
+    batch = integrate_batch(kinetics, coefficients, y[None, :], output_times_s,
+                            breakpoints_s=breakpoints_s, rtol=rtol, atol=atol, first_step=first_step,
+                            max_step=max_step, method=method, progress=progress,
+                            breakpoint_width_s=breakpoint_width_s, on_accept=on_accept)
+    res = batch.member(0)
+    if res.status != 0 and raise_on_failure:
+        species = str(batch.failure_species[0]) or None
+        raise IntegrationError(res.message, time=float(batch.failure_time_s[0]),
+                               step_size=float(batch.failure_step_s[0]), worst_species=species,
+                               partial_result=res)
     return res

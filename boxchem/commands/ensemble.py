@@ -1,0 +1,128 @@
+"""``boxchem ensemble SCENARIO --members TABLE.csv``: run a member table on the ensemble engine."""
+from __future__ import annotations
+
+import argparse
+
+EXAMPLE = """examples:
+  boxchem ensemble polar-spring --members mc.csv -o mc.nc --workers 2
+  boxchem ensemble polar-spring --members mc.csv -o mc.nc --resume
+  boxchem ensemble polar-spring --members mc.csv --scheduler tcp://10.0.0.5:8786
+  boxchem ensemble polar-spring --members mc.csv --save mole_fraction,cycle_rate
+
+TABLE.csv: a header line of column names, then one line per member; lines
+starting with # are skipped.  Columns:
+  scale.<reaction id>             factor on that reaction's k (J, gamma), times the scenario's [scale]
+  initial.<species>               initial amount: a number is a mole fraction, or "2 ppbv", "1e9 cm-3"
+  environment.temperature_offset  kelvin (replaces the scenario's offset)
+  section.key                     any other scenario key, e.g. location.latitude, run.start
+  member_label                    optional name of the member
+
+e.g.
+  member_label,scale.clo_clo_m,scale.j_cl2o2,initial.HNO3
+  low,0.8,1.0,2e-9
+  high,1.2,1.1,"3 ppbv"
+
+The output is the member file (docs/ensembles.md): finished members are
+written as they finish, so an interrupted run keeps them; --resume runs the
+rest.  Exit status 0 when every member succeeded, 1 when any failed, 2 for
+input errors, 130 when interrupted."""
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "ensemble", help="run a member table (CSV): many runs of one scenario on one engine",
+        description="Run every member (row) of a CSV member table on the batched ensemble engine "
+                    "and stream the results to one netCDF member file.",
+        epilog=EXAMPLE, formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("scenario", metavar="SCENARIO", help="shipped scenario name or path to a .toml file")
+    p.add_argument("--members", required=True, metavar="TABLE.csv", help="the member table (CSV)")
+    add_engine_options(p, default_output="SCENARIO-STEM-members.nc")
+    p.set_defaults(func=run)
+
+
+def add_engine_options(p, *, default_output: str) -> None:
+    """Options shared by ``ensemble`` and ``sweep`` (one engine, one set of options)."""
+    p.add_argument("-o", "--output", default=None, metavar="OUT.nc",
+                   help=f"member file to write (default {default_output} in the current folder)")
+    p.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="local worker processes (default: run in this process)")
+    p.add_argument("--scheduler", default=None, metavar="tcp://HOST:PORT",
+                   help="run the batches on this dask.distributed scheduler")
+    p.add_argument("--resume", action="store_true",
+                   help="continue OUT.nc: run only its members that are still pending")
+    p.add_argument("--save", default=None, metavar="VAR,VAR",
+                   help="variables to keep per member (default mole_fraction, "
+                        "family_number_density, cycle_rate and the T, p, [M], SZA series)")
+    p.add_argument("--batch-size", type=int, default=None, metavar="N",
+                   help="members integrated together (default 32)")
+    p.add_argument("--member-time-limit", type=float, default=None, metavar="SECONDS",
+                   help="wall-clock limit per member; a member over it is stopped and recorded failed")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress and no summary")
+
+
+def run(args) -> int:
+    from pathlib import Path
+
+    from ..analysis.members import read_member_csv
+    table = read_member_csv(args.members)
+    out = Path(args.output) if args.output else Path(f"{Path(str(args.scenario)).stem}-members.nc")
+    return run_engine(args, table, out)
+
+
+def run_engine(args, table, out) -> int:
+    """Run ``table`` with the command's engine options; print the summary; the exit status."""
+    import signal
+    import sys
+    import time
+
+    from ..analysis.ensemble import EnsembleInterrupted, ensemble
+
+    def terminate(signum, frame):
+        raise KeyboardInterrupt
+    previous = signal.signal(signal.SIGTERM, terminate)
+    t0 = time.perf_counter()
+    try:
+        ds = ensemble(args.scenario, table, output=out, save=args.save, workers=args.workers,
+                      scheduler=args.scheduler, batch_size=args.batch_size, resume=args.resume,
+                      progress=not args.quiet, member_time_limit_s=args.member_time_limit)
+    except EnsembleInterrupted as exc:
+        how = "" if exc.output is None else \
+            f"; continue with: boxchem {args.command} ... -o {out} --resume"
+        print(f"boxchem {args.command}: {exc}{how}", file=sys.stderr)
+        return 130
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+    wall = time.perf_counter() - t0
+    try:
+        failed = print_summary(ds, out, wall, quiet=args.quiet)
+    finally:
+        ds.close()
+    return 1 if failed else 0
+
+
+def print_summary(ds, out, wall_s: float, *, quiet: bool = False) -> int:
+    """A short table of the member file; returns the number of failed members."""
+    import sys
+
+    import numpy as np
+    status = ds["member_status"].values
+    n, ok, failed = status.size, int(np.sum(status == 1)), int(np.sum(status == 2))
+    pending = n - ok - failed
+    if quiet:
+        return failed
+    print(f"{out}: {n} members: {ok} succeeded, {failed} failed, {pending} pending "
+          f"({wall_s:.1f} s, {n / wall_s if wall_s > 0 else 0:.2f} members/s)")
+    print(f"  {'variable':<24} {'dimensions':<30} shape")
+    for name, var in ds.data_vars.items():
+        if var.dims[:1] == ("member",) and var.ndim >= 2 and name not in ("member_table", "member_table_text"):
+            print(f"  {name:<24} {'(' + ', '.join(var.dims) + ')':<30} {' x '.join(map(str, var.shape))}")
+    if failed:
+        labels = ds["member_label"].values
+        messages = ds["member_message"].values
+        shown = np.nonzero(status == 2)[0]
+        for i in shown[:10]:
+            print(f"  failed member {i} ({labels[i]}): {messages[i]}", file=sys.stderr)
+        if shown.size > 10:
+            print(f"  ... and {shown.size - 10} more failed members (member_message in {out})",
+                  file=sys.stderr)
+    return failed
