@@ -261,6 +261,7 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         "scenario_source": scenario.source,
         "scenario": scenario.text,
         "scenario_overrides": json.dumps({k: str(v) for k, v in scenario.overrides.items()}),
+        "input_files": _input_files_attribute(scenario, mechanism),
         "start_time": str(np.datetime_as_string(scenario.start, unit="s")) + "Z",
         "solver_rtol": scenario.rtol,
         "solver_atol_cm-3": scenario.atol,
@@ -276,6 +277,11 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         attrs[f"solver_{name}"] = int(value)
     attrs["history"] = f"{attrs['date_created']}: created by boxchem {__version__} run"
     return xr.Dataset(data_vars=data_vars, coords=coords, attrs=attrs)
+
+
+def _input_files_attribute(scenario: Scenario, mechanism) -> str:
+    from .io.inputfiles import input_files_attribute
+    return input_files_attribute(scenario, mechanism)
 
 
 # ---------------------------------------------------------------------------

@@ -40,7 +40,7 @@ from .units import parse_amount, parse_quantity
 
 __all__ = ["Scenario", "TimeSeriesSpec", "ThresholdRuleSpec", "load_scenario",
            "split_scenario_text", "SCENARIO_KEYS", "SOLVER_METHODS", "PHOTOLYSIS_METHODS",
-           "EXTENDS_KEY", "REMOVE_KEY", "PROVENANCE_MARKER"]
+           "EXTENDS_KEY", "REMOVE_KEY", "PROVENANCE_MARKER", "paths_from_working_folder"]
 
 #: solver methods a scenario may name (see boxchem.solver)
 SOLVER_METHODS = ("rodas3", "ros3")
@@ -206,8 +206,10 @@ class Scenario:
         record = dict(self.overrides)
         labels = dict(self.override_origins)
         key_dirs = dict(self.key_dirs)
+        targets = set()
         for key, value in overrides.items():
             section, name = _override_target(key, origins.get(key, f"override {key}={value!r}"))
+            targets.add((section, name))
             # an overriding path is read against the scenario's own folder, not a base's
             key_dirs.pop(_where(section, name), None)
             label = origins.get(key, f"override {section}.{name}={value!r}")
@@ -233,8 +235,10 @@ class Scenario:
                 else:
                     table[rid] = factor  # let validation report the bad value
                 record[f"scale.{rid}"] = factor
+        # an overridden [run].mechanism must be loaded (the loaded one belongs to the old value)
+        mechanism = None if ("run", "mechanism") in targets else self.mechanism
         return _build(data, text=self.text, base_dir=self.base_dir, source=self.source,
-                      mechanism=self.mechanism, overrides=record, origins=labels,
+                      mechanism=mechanism, overrides=record, origins=labels,
                       layers=self.layers, key_sources=self.key_sources, key_dirs=key_dirs)
 
     # -- derived -----------------------------------------------------------------
@@ -513,6 +517,36 @@ def _override_target(key: str, label: str) -> tuple[str, str]:
                         f"(or 'section.key')")
 
 
+def paths_from_working_folder(overrides: Mapping[str, Any], folder: Path | None = None) -> dict[str, Any]:
+    """Overrides with relative file paths (``run.mechanism``, ``environment.trajectory``,
+    ``photolysis.cross_sections`` values) made absolute against ``folder`` (default: cwd).
+
+    For values typed on the command line (``--set``, ``--vary``): the user means
+    a path from where they stand, not from the scenario's folder.  Bare
+    mechanism names (no suffix, no separator) stay shipped names.
+    """
+    folder = Path.cwd() if folder is None else Path(folder)
+
+    def absolute(value: Any) -> Any:
+        if not isinstance(value, str) or not value.strip():
+            return value
+        path = Path(value).expanduser()
+        looks_like_path = path.suffix != "" or "/" in value or "\\" in value
+        return str((folder / path).resolve()) if looks_like_path and not path.is_absolute() else value
+
+    out = dict(overrides)
+    for key, value in overrides.items():
+        try:
+            section, name = _override_target(key, key)
+        except ScenarioError:
+            continue            # reported when the override is applied
+        if _where(section, name) in ("[run].mechanism", "[environment].trajectory"):
+            out[key] = absolute(value)
+        elif _where(section, name) == "[photolysis].cross_sections" and isinstance(value, Mapping):
+            out[key] = {rid: absolute(v) for rid, v in value.items()}
+    return out
+
+
 def _where(section: str, key: str | None = None) -> str:
     return f"[{section}]" if key is None else f"[{section}].{key}"
 
@@ -551,21 +585,18 @@ def _parse_time(value: Any, start: np.datetime64 | None, where: str, err: _Error
 
 
 def _datetime64(value: Any, where: str, err: _Errors) -> np.datetime64 | None:
-    """UTC date-time from a TOML date-time or an ISO 8601 string; naive means UTC."""
+    """UTC date-time from a TOML date-time or an ISO 8601 string; naive means UTC.
+
+    Read at second resolution first and checked against the supported range
+    (:mod:`boxchem.timerange`), so a far date is an error, never a wrapped time.
+    """
+    from .timerange import TimeRangeError, utc_nanoseconds
     try:
-        if isinstance(value, str):
-            text = value.strip().replace("Z", "+00:00")
-            value = _dt.datetime.fromisoformat(text)
-        if isinstance(value, _dt.datetime):
-            if value.tzinfo is not None:
-                value = value.astimezone(_dt.timezone.utc).replace(tzinfo=None)
-            return np.datetime64(value, "ns")
-        if isinstance(value, _dt.date):
-            return np.datetime64(value, "ns")
-    except (ValueError, TypeError):
-        pass
-    err.add(where, f"cannot read {value!r} as a UTC date-time; write e.g. \"2026-09-01T00:00:00Z\"")
-    return None
+        return utc_nanoseconds(value, where)
+    except TimeRangeError as exc:
+        message = str(exc)
+        err.add(where, message[len(where) + 2:] if message.startswith(f"{where}: ") else message)
+        return None
 
 
 def _series_or_value(value: Any, kind: str, where: str, err: _Errors, *,
@@ -680,6 +711,14 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         duration = _quantity(run["duration"], "time", "[run].duration", err)
         if duration is not None and duration <= 0:
             err.add("[run].duration", f"must be > 0, got {run['duration']!r}")
+            duration = None
+    if start is not None and duration is not None:
+        from .timerange import range_problem
+        end_problem = range_problem(start.astype("datetime64[s]")
+                                    + np.timedelta64(int(min(duration, 1e13)), "s"), "the run's end")
+        if end_problem:
+            err.add("[run].duration", f"{run['duration']!r} from the start {run['start']!r}: "
+                                      f"{end_problem}; shorten the run or start earlier")
             duration = None
     interval = DEFAULT_OUTPUT_INTERVAL_S
     if "output_interval" in run:

@@ -111,7 +111,10 @@ def run_member(scenario: str, assignment: Mapping[str, Any]) -> xr.Dataset:
     from ..scenario import load_scenario
     scale = {k.split(".", 1)[1]: v for k, v in assignment.items() if k.startswith("scale.")}
     initial = {k.split(".", 1)[1]: v for k, v in assignment.items() if k.startswith("initial.")}
-    overrides = {k: v for k, v in assignment.items() if not k.startswith(("scale.", "initial."))}
+    from ..scenario import paths_from_working_folder
+    # file paths in --vary values are read from the working folder, not the scenario's
+    overrides = paths_from_working_folder(
+        {k: v for k, v in assignment.items() if not k.startswith(("scale.", "initial."))})
     if initial:
         overrides["initial"] = initial
     # errors in a member's values name the --vary item, not the scenario file

@@ -118,7 +118,9 @@ def main(args) -> int:
     wall0 = time.perf_counter()
     scale = parse_scale(args.scale)
     settings = parse_assignments(args.overrides, "--set")
-    overrides = {k: _toml_value(v) for k, v in settings.items()}
+    from ..scenario import paths_from_working_folder
+    # file paths typed here are read from the working folder, not the scenario's
+    overrides = paths_from_working_folder({k: _toml_value(v) for k, v in settings.items()})
     # errors in these values name the option they came from, not the scenario file
     origins = {f"scale.{k}": f"--scale {k}={v}" for k, v in parse_assignments(args.scale, "--scale").items()}
     origins.update({k: f"--set {k}={v}" for k, v in settings.items()})
