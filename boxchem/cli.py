@@ -39,7 +39,12 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+    try:
+        # the sub-command modules import numpy & co.: Ctrl-C here is an interrupt, not a traceback
+        parser = build_parser()
+    except KeyboardInterrupt:
+        print("boxchem: interrupted", file=sys.stderr)
+        return 130
     args = parser.parse_args(argv)
     if not getattr(args, "func", None):
         parser.print_help()
@@ -47,7 +52,12 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args.func(args) or 0)
     except BoxchemError as exc:
+        # exit statuses: boxchem/exitcodes.py (input errors 2, output errors 3)
         print(f"boxchem {args.command}: {exc}", file=sys.stderr)
+        return int(getattr(exc, "exit_code", 2))
+    except RecursionError:
+        print(f"boxchem {args.command}: input nested too deeply to read (an include, extends or "
+              f"TOML table chain hundreds of levels deep?)", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("boxchem: interrupted", file=sys.stderr)

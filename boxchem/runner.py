@@ -279,6 +279,12 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
     return xr.Dataset(data_vars=data_vars, coords=coords, attrs=attrs)
 
 
+def _conservation_guard(ds: xr.Dataset, setup: "RunSetup") -> None:
+    """Element totals and fixed mixing ratios at the end of the run -> ds.attrs (docs/guards.md)."""
+    from .diagnostics.conservation import guard_run
+    guard_run(ds, setup.mechanism, setup.scenario)
+
+
 def _input_files_attribute(scenario: Scenario, mechanism) -> str:
     from .io.inputfiles import input_files_attribute
     return input_files_attribute(scenario, mechanism)
@@ -414,6 +420,14 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
                                max_step=scenario.max_step_s if scenario.max_step_s else np.inf,
                                progress=callback, method=method,
                                on_accept=getattr(setup.photolysis, "observe", None))
+    except (ZeroDivisionError, FloatingPointError, OverflowError) as exc:
+        # arithmetic faults inside the compiled loop (e.g. k overflowing to inf) are failures of
+        # this integration, reported like the integrator's own, never as a traceback
+        if bar is not None:
+            bar.close()
+            bar = None
+        raise IntegrationError(f"numerical failure in the integrator ({type(exc).__name__}: {exc}); "
+                               f"check rate coefficients, [scale] factors and tolerances") from None
     except IntegrationError as exc:
         if isinstance(exc.time, (int, float, np.floating)):
             seconds = float(exc.time)
@@ -423,12 +437,14 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
         if partial is not None and not isinstance(partial, xr.Dataset):
             exc.partial_result = _dataset_from_result(setup, partial, status="failed",
                                                       message=str(exc))
+            _conservation_guard(exc.partial_result, setup)
             exc.partial_result.attrs["wall_time_s"] = _time.perf_counter() - wall0
         raise
     finally:
         if bar is not None:
             bar.close()
     ds = _dataset_from_result(setup, result, status="success", message=result.message)
+    _conservation_guard(ds, setup)
     ds.attrs["wall_time_s"] = _time.perf_counter() - wall0
     ds.attrs["solver_breakpoints"] = int(setup.breakpoints_s.size)
     return ds

@@ -49,11 +49,11 @@ PHOTOLYSIS_METHODS = ("spectral", "parametric")
 
 #: every known key per section; [initial] and [scale] take species / reaction ids
 SCENARIO_KEYS: dict[str, tuple[str, ...]] = {
-    "run": ("mechanism", "start", "duration", "output_interval"),
+    "run": ("mechanism", "start", "duration", "output_interval", "allow_long_run"),
     "location": ("latitude", "longitude", "altitude", "pressure"),
     "environment": ("temperature", "temperature_offset", "pressure", "trajectory", "ozone_column",
                     "psc_surface_area", "sulfate_surface_area", "ice_surface_area", "albedo"),
-    "solver": ("rtol", "atol", "method", "max_step"),
+    "solver": ("rtol", "atol", "method", "max_step", "allow_loose_atol"),
     "photolysis": ("method", "cross_sections", "ozone_column_follows_box",
                    "ozone_loss_layer_depth"),
 }
@@ -867,6 +867,12 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
                     f"must be > 0, got {phot['ozone_loss_layer_depth']!r}")
 
     err.raise_if_any()
+    _preflight(err, mechanism=mechanism, run=run, solver=solver, temperature=temperature,
+               pressure=pressure if pressure is not None else loc_pressure,
+               pressure_key="[environment].pressure" if pressure is not None else "[location].pressure",
+               altitude=altitude, trajectory=trajectory, duration=duration, interval=interval,
+               max_step=max_step, atol=atol, initial=initial, scale=scale)
+    err.raise_if_any()
     return Scenario(
         source=source, text=text, data=copy.deepcopy(dict(data)), base_dir=base_dir,
         mechanism_path=mechanism_path if mechanism_path is not None else Path(getattr(mechanism, "source", "") or "."),
@@ -882,6 +888,61 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         ozone_loss_layer_depth_m=float(layer_depth),
         layers=tuple(layers) or ((source, text),), key_sources=key_sources, key_dirs=key_dirs,
         ice_surface_area=ice)
+
+
+def _flag(table: Mapping[str, Any], key: str, where: str, err: _Errors) -> bool:
+    value = table.get(key, False)
+    if not isinstance(value, bool):
+        err.add(where, f"expected true or false, got {value!r}")
+        return False
+    return value
+
+
+def _preflight(err: _Errors, *, mechanism, run, solver, temperature, pressure, pressure_key,
+               altitude, trajectory, duration, interval, max_step, atol, initial, scale) -> None:
+    """Conditions, rate coefficients, work and tolerance checks (boxchem.preflight) -> ``err``."""
+    from .preflight import scenario_problems
+    allow_long = _flag(run, "allow_long_run", "[run].allow_long_run", err)
+    allow_loose = _flag(solver, "allow_loose_atol", "[solver].allow_loose_atol", err)
+
+    def values(v):
+        if v is None:
+            return None
+        return np.asarray(v.values if isinstance(v, TimeSeriesSpec) else [v], dtype=float)
+
+    temperatures: dict[str, np.ndarray] = {}
+    pressures: dict[str, np.ndarray] = {}
+    if trajectory is not None:
+        from .environment.history import load_trajectory
+        columns = load_trajectory(trajectory)          # read fine above
+        for key, target in (("temperature", temperatures), ("pressure", pressures)):
+            if key in columns:
+                target["[environment].trajectory"] = np.asarray(columns[key].values, dtype=float)
+        if "altitude" in columns and "temperature" not in columns and temperature is None:
+            from .environment.atmosphere import standard_atmosphere
+            p_std, t_std = standard_atmosphere(np.asarray(columns["altitude"].values, dtype=float))
+            temperatures["[environment].trajectory"] = np.asarray(t_std, dtype=float)
+            pressures.setdefault("[environment].trajectory", np.asarray(p_std, dtype=float))
+    if values(temperature) is not None:
+        temperatures["[environment].temperature"] = values(temperature)
+    if values(pressure) is not None:
+        pressures[pressure_key] = values(pressure)
+    if not temperatures or not pressures:
+        # the runner falls back on the standard atmosphere at the box's altitude
+        from .environment.atmosphere import altitude_from_pressure, standard_atmosphere
+        z = altitude
+        if z is None and pressures:
+            with np.errstate(all="ignore"):
+                z = float(np.nan_to_num(altitude_from_pressure(next(iter(pressures.values()))[0])))
+        if z is not None:
+            p_std, t_std = standard_atmosphere(float(z))
+            temperatures.setdefault("[location].altitude", np.array([float(t_std)]))
+            pressures.setdefault("[location].altitude", np.array([float(p_std)]))
+    for where, message in scenario_problems(
+            mechanism=mechanism, temperatures=temperatures, pressures=pressures,
+            duration_s=duration, interval_s=interval, max_step_s=max_step, atol_cm3=atol,
+            initial=initial, scale=scale, allow_long_run=allow_long, allow_loose_atol=allow_loose):
+        err.add(where, message)
 
 
 def _temperature_offset(env: Mapping[str, Any], temperature: Any, err: _Errors) -> Any:
