@@ -66,6 +66,8 @@ EXTENDS_KEY = "extends"
 REMOVE_KEY = "remove"
 #: keys whose values are file paths, read against the folder of the file that wrote them
 _PATH_KEYS = ("[run].mechanism", "[environment].trajectory", "[photolysis].cross_sections")
+#: deepest chain of files that extend each other
+MAX_EXTENDS_DEPTH = 64
 #: line that starts each file's text in ``Scenario.text`` when a file extends others
 PROVENANCE_MARKER = "#>>> boxchem scenario file: "
 
@@ -268,12 +270,14 @@ def _toml_error_message(exc: Exception, text: str, source: str) -> str:
         return f"{source}: not valid TOML: {message}; {hint}"
     line, col = int(match.group(1)), int(match.group(2))
     what = message[:match.start()]
-    lines = text.splitlines()
+    from .textio import shorten_line, split_lines
+    lines = split_lines(text)
     if what.startswith("Illegal character '\\n'") or (what.startswith("Unterminated string")):
         what += " (a string is not closed: add the closing double quote)"
     shown = ""
     if 1 <= line <= len(lines):
-        shown = f"\n    {lines[line - 1]}\n    {' ' * (col - 1)}^"
+        text_shown, caret = shorten_line(lines[line - 1], col)
+        shown = f"\n    {text_shown}\n    {' ' * (caret - 1)}^"
     return f"{source}:{line}:{col}: not valid TOML: {what}; {hint}{shown}"
 
 
@@ -284,7 +288,8 @@ def load_scenario(path_or_name: str | Path, *, mechanism: Any = None) -> Scenari
         path = resolve(path_or_name, "scenarios")
     except BoxchemError as exc:
         raise ScenarioError(str(exc)) from None
-    text = path.read_text(encoding="utf-8")
+    from .textio import read_text_file
+    text = read_text_file(path, ScenarioError, "scenario file")
     return Scenario.from_text(text, base_dir=path.parent.resolve(), source=path.name, mechanism=mechanism)
 
 
@@ -338,10 +343,15 @@ class _Merged:
 
 
 def _parse_toml(text: str, source: str) -> dict[str, Any]:
+    from .textio import strip_bom
+    text = strip_bom(text)          # a UTF-8 byte-order mark is not part of the TOML
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ScenarioError(_toml_error_message(exc, text, source)) from None
+    except RecursionError:
+        raise ScenarioError(f"{source}: tables or arrays nested too deeply to read (hundreds of "
+                            f"levels); a scenario needs at most three") from None
 
 
 def _record_keys(data: Mapping[str, Any], source: str, folder: Path,
@@ -392,9 +402,13 @@ def _read_layers(text: str, base_dir: Path, source: str, path: Path | None,
         raise ScenarioError(f"{source}: {EXTENDS_KEY}: {extends!r} closes a cycle of extends: "
                             f"{' -> '.join(names[first:])}; a scenario cannot build on itself, "
                             f"directly or through its bases")
+    if len(visited) >= MAX_EXTENDS_DEPTH:
+        raise ScenarioError(f"{source}: {EXTENDS_KEY}: chain of extends deeper than "
+                            f"{MAX_EXTENDS_DEPTH} files; build on fewer levels")
+    from .textio import read_text_file
     try:
-        base_text = base_path.read_text(encoding="utf-8")
-    except OSError as exc:
+        base_text = read_text_file(base_path, ScenarioError, "scenario file")
+    except ScenarioError as exc:
         raise ScenarioError(f"{source}: {EXTENDS_KEY}: cannot read {str(base_path)!r}: {exc}") from None
     base = _read_layers(base_text, base_path.parent, base_path.name, base_path, visited,
                         note=f"extended by {source} with {EXTENDS_KEY} = \"{extends}\"")

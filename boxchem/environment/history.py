@@ -495,12 +495,10 @@ def load_trajectory_csv(path) -> dict[str, TimeSeries]:
     times the series carry the first time as ``origin``.  Errors name
     ``file:line``.
     """
+    from ..textio import read_text_file, split_lines
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise DataFileError(f"{path}: cannot read the trajectory file ({exc.strerror})") from None
-    rows = [(n, row) for n, row in enumerate(csv.reader(text.splitlines()), start=1)
+    text = read_text_file(path, DataFileError, "trajectory file")
+    rows = [(n, row) for n, row in enumerate(csv.reader(split_lines(text)), start=1)
             if row and any(c.strip() for c in row) and not row[0].lstrip().startswith("#")]
     if not rows:
         raise DataFileError(f"{path}: empty trajectory file; expected a header line starting with 'time'")
