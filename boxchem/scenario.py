@@ -498,10 +498,10 @@ class _Errors:
         return self.key_sources[best] if best else self.source
 
     def add(self, where: str, message: str) -> None:
-        self.messages.append(f"{self.at(where)}: {message}")
+        self.messages.append(_cut(f"{self.at(where)}: {message}"))
 
     def add_unit_error(self, exc: UnitError) -> None:
-        self.messages.append(str(exc))
+        self.messages.append(_cut(str(exc)))
 
     def raise_if_any(self) -> None:
         if not self.messages:
@@ -512,6 +512,17 @@ class _Errors:
         bases = sorted(set(self.key_sources.values()) - {self.source})
         via = f" (with its base{'s' if len(bases) > 1 else ''} {', '.join(bases)})" if bases else ""
         raise ScenarioError(f"{len(self.messages)} problems in scenario {self.source}{via}:\n{body}")
+
+
+#: longest message line kept (a value of 100,000 characters is shown cut in the middle)
+_MAX_MESSAGE = 2000
+
+
+def _cut(message: str) -> str:
+    if len(message) <= _MAX_MESSAGE:
+        return message
+    return (f"{message[:_MAX_MESSAGE // 2]} ...[{len(message) - _MAX_MESSAGE} characters left out]... "
+            f"{message[-_MAX_MESSAGE // 4:]}")
 
 
 def _override_target(key: str, label: str) -> tuple[str, str]:

@@ -162,12 +162,10 @@ def main(args) -> int:
         ds = run(scenario, progress=not args.quiet)
     except IntegrationError as exc:
         partial = exc.partial_result
+        print(f"boxchem run: integration failed: {exc}", file=sys.stderr)
         if partial is not None:
             path = write_with_fallback(partial, partial_path(out))
-            print(f"boxchem run: integration failed: {exc}\n  result up to the failure written "
-                  f"to {path}", file=sys.stderr)
-        else:
-            print(f"boxchem run: integration failed: {exc}", file=sys.stderr)
+            print(f"  result up to the failure written to {path}", file=sys.stderr)
         return INTEGRATION_FAILED
     warning = conservation_warning(ds)
     if warning and args.strict:
