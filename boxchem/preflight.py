@@ -228,12 +228,17 @@ def scenario_problems(*, mechanism, temperatures: Mapping[str, np.ndarray],
     if duration_s and interval_s and not allow_long_run and mechanism is not None:
         out += work_problems(duration_s, interval_s, max_step_s, len(mechanism.species),
                              len(mechanism.reactions), len(mechanism.families), len(mechanism.cycles))
-    if mechanism is not None and atol_cm3 and not allow_loose_atol and t_span and p_span:
+    if mechanism is not None and t_span and p_span:
         # number densities at the start: mole fractions times [M] at the first condition
         first_t = float(np.ravel(next(iter(temperatures.values())))[0])
         first_p = float(np.ravel(next(iter(pressures.values())))[0])
         air0 = first_p / (_BOLTZMANN_CM3 * first_t)
         n0 = {name: value * air0 if kind == "mole_fraction" else value
               for name, (value, kind) in initial.items()}
-        out += atol_problems(mechanism, atol_cm3, n0)
+        for name, (value, kind) in initial.items():
+            if kind == "number_density" and value > air0:
+                out.append((f"[initial].{name}", f"{value:g} cm-3 is more than the air itself "
+                                                 f"({air0:.3g} cm-3 at the start); give at most that"))
+        if atol_cm3 and not allow_loose_atol:
+            out += atol_problems(mechanism, atol_cm3, n0)
     return out

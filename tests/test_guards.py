@@ -102,6 +102,11 @@ def test_absurd_values_are_refused_with_the_key(override, match):
         load_scenario("stratosphere-box").with_overrides(**override)
 
 
+def test_initial_amount_above_the_air_is_refused():
+    with pytest.raises(ScenarioError, match=r"initial\.ClO.*1e\+300 cm-3 is more than the air itself"):
+        load_scenario("stratosphere-box").with_overrides(initial={"ClO": "1e300 cm-3"})
+
+
 def test_long_run_limit_can_be_lifted():
     s = load_scenario("stratosphere-box").with_overrides(
         **{"solver.max_step": "1e-3 s", "run.allow_long_run": True})

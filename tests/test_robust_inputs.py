@@ -50,6 +50,20 @@ def test_trajectory_file_dates_outside_the_range_name_the_line(tmp_path):
         load_trajectory_csv(f)
 
 
+def test_netcdf_trajectory_dates_outside_the_range(tmp_path):
+    import netCDF4
+    from boxchem.environment.history import load_trajectory_netcdf
+    path = tmp_path / "traj.nc"
+    with netCDF4.Dataset(path, "w") as nc:
+        nc.createDimension("time", 2)
+        t = nc.createVariable("time", "f8", ("time",))
+        t.units, t.calendar = "days since 2300-01-01", "proleptic_gregorian"
+        t[:] = [0.0, 1.0]
+        nc.createVariable("temperature_K", "f8", ("time",))[:] = [200.0, 201.0]
+    with pytest.raises(DataFileError, match=r"traj\.nc: time: 2300-01-01.*outside the supported range"):
+        load_trajectory_netcdf(path)
+
+
 def test_series_date_outside_the_range_names_the_key():
     with pytest.raises(ScenarioError, match=r"temperature=.*: times\[1\]: time 2400-01-01T00:00:00Z is outside the supported range"):
         load_scenario("stratosphere-box").with_overrides(**{"environment.temperature": {

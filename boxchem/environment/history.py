@@ -574,10 +574,14 @@ def load_trajectory_netcdf(path) -> dict[str, TimeSeries]:
     import xarray as xr
 
     path = Path(path)
+    import warnings
     try:
-        # times decoded as cftime objects when outside datetime64[ns] (never wrapped)
-        ds = xr.open_dataset(path, decode_times=xr.coders.CFDatetimeCoder(use_cftime=None)
-                             if hasattr(xr, "coders") else True)
+        # times decoded as cftime objects when outside datetime64[ns] (never wrapped);
+        # refused below with the supported range, so xarray's own warning is noise
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            ds = xr.open_dataset(path, decode_times=xr.coders.CFDatetimeCoder(use_cftime=None)
+                                 if hasattr(xr, "coders") else True)
     except (OSError, ValueError, OverflowError) as exc:
         raise DataFileError(f"{path}: cannot open the trajectory file as netCDF ({exc})") from None
     with ds:
