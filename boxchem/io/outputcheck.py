@@ -67,8 +67,9 @@ def check_output_location(path: str | Path, estimated_bytes: int = 0, *, what: s
     if not os.access(existing, os.W_OK | os.X_OK):
         raise OutputError(f"{what} {path}: the folder {existing} is not writable; choose another "
                           f"output path with -o")
-    if existing == folder.absolute():
-        # access() can say yes where the file system says no (read-only mounts, ACLs): try it
+    if existing.is_dir():
+        # access() can say yes where the file system says no (read-only mounts, ACLs, /proc):
+        # try it, in the folder or in the nearest existing parent the writer would create it in
         try:
             fd, probe = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".probe", dir=existing)
             os.close(fd)
