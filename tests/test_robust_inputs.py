@@ -192,3 +192,10 @@ def test_sigint_during_start_up_imports_is_not_a_traceback():
                        env=dict(os.environ, PYTHONPATH=str(ROOT)), cwd=ROOT)
     assert r.returncode == 130
     assert "Traceback" not in r.stderr and "interrupted" in r.stderr
+
+
+def test_solar_geometry_of_a_far_date_is_not_wrapped():
+    from boxchem.environment.solar import days_since_j2000
+    # 2300-01-01T00:00 is 109572.5 days after J2000.0 (2000-01-01T12:00): 300 years of the
+    # proleptic Gregorian calendar (73 leap days) minus half a day (common practice, no source)
+    assert days_since_j2000(np.datetime64("2300-01-01T00:00", "s")) == pytest.approx(109572.5)
