@@ -40,7 +40,12 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+    try:
+        # the sub-command modules import numpy & co.: Ctrl-C here is an interrupt, not a traceback
+        parser = build_parser()
+    except KeyboardInterrupt:
+        print("boxchem: interrupted", file=sys.stderr)
+        return 130
     args = parser.parse_args(argv)
     from .invocation import record
     record(list(sys.argv[1:] if argv is None else argv))    # provenance of result files
@@ -50,7 +55,19 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args.func(args) or 0)
     except BoxchemError as exc:
+        # exit statuses: boxchem/exitcodes.py (input errors 2, output errors 3)
         print(f"boxchem {args.command}: {exc}", file=sys.stderr)
+        return int(getattr(exc, "exit_code", 2))
+    except OSError as exc:
+        # a path the file system refuses (name too long, permission, loop of links):
+        # an input error, said plainly
+        name = str(exc.filename) if exc.filename is not None else ""
+        name = name if len(name) <= 120 else f"{name[:60]}...{name[-40:]} ({len(name)} characters)"
+        print(f"boxchem {args.command}: cannot use {name!r}: {exc.strerror or exc}", file=sys.stderr)
+        return 2
+    except RecursionError:
+        print(f"boxchem {args.command}: input nested too deeply to read (an include, extends or "
+              f"TOML table chain hundreds of levels deep?)", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("boxchem: interrupted", file=sys.stderr)

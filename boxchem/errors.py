@@ -42,8 +42,10 @@ class Problem:
         head = f"{loc}: {self.severity}: {self.message}"
         if not loc.text:
             return head
-        caret = " " * (max(loc.column, 1) - 1) + "^"
-        return f"{head}\n    {loc.text}\n    {caret}"
+        from .textio import shorten_line       # long lines are cut around the column
+        text, column = shorten_line(loc.text, loc.column)
+        caret = " " * (max(column, 1) - 1) + "^"
+        return f"{head}\n    {text}\n    {caret}"
 
 
 class MechanismError(BoxchemError):

@@ -42,14 +42,26 @@ def resolve(name_or_path: str | Path, kind: str, *, relative_to: Path | None = N
     if not candidate.is_absolute() and relative_to is not None:
         candidate = relative_to / candidate
     looks_like_path = candidate.suffix != "" or "/" in text or "\\" in text
-    if candidate.is_file():
+    try:
+        is_file = candidate.is_file()
+    except OSError:                 # name too long, a NUL byte, ...: not a file we can read
+        is_file = False
+    except ValueError:
+        is_file = False
+    if is_file:
         return candidate
     if not looks_like_path:
         shipped = shipped_dir(kind) / f"{text}{_SUFFIX[kind]}"
-        if shipped.is_file():
-            return shipped
+        try:
+            if shipped.is_file():
+                return shipped
+        except (OSError, ValueError):
+            pass
     names = shipped_names(kind)
-    hint = difflib.get_close_matches(text, names, n=1)
+    hint = difflib.get_close_matches(text, names, n=1) if len(text) < 200 else []
+    if len(text) > 120:
+        text = f"{text[:60]}...{text[-40:]} ({len(text)} characters)"
+        candidate = Path(text)
     label = kind.rstrip("s")
     msg = f"no {label} file {str(candidate)!r} and no shipped {label} named {text!r}"
     if hint:

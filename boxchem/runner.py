@@ -286,6 +286,7 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         "scenario_source": scenario.source,
         "scenario": scenario.text,
         "scenario_overrides": json.dumps({k: str(v) for k, v in scenario.overrides.items()}),
+        "input_files": _input_files_attribute(scenario, mechanism),
         "start_time": str(np.datetime_as_string(scenario.start, unit="s")) + "Z",
         "solver_rtol": scenario.rtol,
         "solver_atol_cm-3": scenario.atol,
@@ -305,6 +306,17 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
     coords.update(reaction_coordinates(mechanism, photolysis_data))
     attrs.update(provenance_attrs(mechanism, scenario))
     return xr.Dataset(data_vars=data_vars, coords=coords, attrs=attrs)
+
+
+def _conservation_guard(ds: xr.Dataset, setup: "RunSetup") -> None:
+    """Element totals and fixed mixing ratios at the end of the run -> ds.attrs (docs/guards.md)."""
+    from .diagnostics.conservation import guard_run
+    guard_run(ds, setup.mechanism, setup.scenario)
+
+
+def _input_files_attribute(scenario: Scenario, mechanism) -> str:
+    from .io.inputfiles import input_files_attribute
+    return input_files_attribute(scenario, mechanism)
 
 
 # ---------------------------------------------------------------------------
@@ -462,6 +474,14 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
         callback = progress or None
     try:
         result = integrate(setup, progress=callback)
+    except (ZeroDivisionError, FloatingPointError, OverflowError) as exc:
+        # arithmetic faults inside the compiled loop (e.g. k overflowing to inf) are failures of
+        # this integration, reported like the integrator's own, never as a traceback
+        if bar is not None:
+            bar.close()
+            bar = None
+        raise IntegrationError(f"numerical failure in the integrator ({type(exc).__name__}: {exc}); "
+                               f"check rate coefficients, [scale] factors and tolerances") from None
     except IntegrationError as exc:
         if isinstance(exc.time, (int, float, np.floating)):
             seconds = float(exc.time)
@@ -471,12 +491,14 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
         if partial is not None and not isinstance(partial, xr.Dataset):
             exc.partial_result = _dataset_from_result(setup, partial, status="failed",
                                                       message=str(exc))
+            _conservation_guard(exc.partial_result, setup)
             exc.partial_result.attrs["wall_time_s"] = _time.perf_counter() - wall0
         raise
     finally:
         if bar is not None:
             bar.close()
     ds = _dataset_from_result(setup, result, status="success", message=result.message)
+    _conservation_guard(ds, setup)
     ds.attrs["wall_time_s"] = _time.perf_counter() - wall0
     # partial user spectra given in the scenario (the mechanism's own are its warnings)
     ds.attrs["photolysis_notes"] = "\n".join(

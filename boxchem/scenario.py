@@ -40,7 +40,7 @@ from .units import parse_amount, parse_quantity
 
 __all__ = ["Scenario", "TimeSeriesSpec", "ThresholdRuleSpec", "load_scenario",
            "split_scenario_text", "SCENARIO_KEYS", "SOLVER_METHODS", "PHOTOLYSIS_METHODS",
-           "EXTENDS_KEY", "REMOVE_KEY", "PROVENANCE_MARKER"]
+           "EXTENDS_KEY", "REMOVE_KEY", "PROVENANCE_MARKER", "paths_from_working_folder"]
 
 #: solver methods a scenario may name (see boxchem.solver)
 SOLVER_METHODS = ("rodas3", "ros3")
@@ -49,11 +49,11 @@ PHOTOLYSIS_METHODS = ("spectral", "parametric")
 
 #: every known key per section; [initial] and [scale] take species / reaction ids
 SCENARIO_KEYS: dict[str, tuple[str, ...]] = {
-    "run": ("mechanism", "start", "duration", "output_interval"),
+    "run": ("mechanism", "start", "duration", "output_interval", "allow_long_run"),
     "location": ("latitude", "longitude", "altitude", "pressure"),
     "environment": ("temperature", "temperature_offset", "pressure", "trajectory", "ozone_column",
                     "psc_surface_area", "sulfate_surface_area", "ice_surface_area", "albedo"),
-    "solver": ("rtol", "atol", "method", "max_step"),
+    "solver": ("rtol", "atol", "method", "max_step", "allow_loose_atol"),
     "photolysis": ("method", "cross_sections", "ozone_column_follows_box",
                    "ozone_loss_layer_depth"),
 }
@@ -66,6 +66,8 @@ EXTENDS_KEY = "extends"
 REMOVE_KEY = "remove"
 #: keys whose values are file paths, read against the folder of the file that wrote them
 _PATH_KEYS = ("[run].mechanism", "[environment].trajectory", "[photolysis].cross_sections")
+#: deepest chain of files that extend each other
+MAX_EXTENDS_DEPTH = 64
 #: line that starts each file's text in ``Scenario.text`` when a file extends others
 PROVENANCE_MARKER = "#>>> boxchem scenario file: "
 
@@ -206,11 +208,10 @@ class Scenario:
         record = dict(self.overrides)
         labels = dict(self.override_origins)
         key_dirs = dict(self.key_dirs)
-        new_mechanism = False
+        targets = set()
         for key, value in overrides.items():
             section, name = _override_target(key, origins.get(key, f"override {key}={value!r}"))
-            # another mechanism file must be read, not the loaded one kept
-            new_mechanism |= (section, name) == ("run", "mechanism")
+            targets.add((section, name))
             # an overriding path is read against the scenario's own folder, not a base's
             key_dirs.pop(_where(section, name), None)
             label = origins.get(key, f"override {section}.{name}={value!r}")
@@ -236,9 +237,10 @@ class Scenario:
                 else:
                     table[rid] = factor  # let validation report the bad value
                 record[f"scale.{rid}"] = factor
+        # an overridden [run].mechanism must be loaded (the loaded one belongs to the old value)
+        mechanism = None if ("run", "mechanism") in targets else self.mechanism
         return _build(data, text=self.text, base_dir=self.base_dir, source=self.source,
-                      mechanism=None if new_mechanism else self.mechanism,
-                      overrides=record, origins=labels,
+                      mechanism=mechanism, overrides=record, origins=labels,
                       layers=self.layers, key_sources=self.key_sources, key_dirs=key_dirs)
 
     # -- derived -----------------------------------------------------------------
@@ -268,12 +270,14 @@ def _toml_error_message(exc: Exception, text: str, source: str) -> str:
         return f"{source}: not valid TOML: {message}; {hint}"
     line, col = int(match.group(1)), int(match.group(2))
     what = message[:match.start()]
-    lines = text.splitlines()
+    from .textio import shorten_line, split_lines
+    lines = split_lines(text)
     if what.startswith("Illegal character '\\n'") or (what.startswith("Unterminated string")):
         what += " (a string is not closed: add the closing double quote)"
     shown = ""
     if 1 <= line <= len(lines):
-        shown = f"\n    {lines[line - 1]}\n    {' ' * (col - 1)}^"
+        text_shown, caret = shorten_line(lines[line - 1], col)
+        shown = f"\n    {text_shown}\n    {' ' * (caret - 1)}^"
     return f"{source}:{line}:{col}: not valid TOML: {what}; {hint}{shown}"
 
 
@@ -284,7 +288,8 @@ def load_scenario(path_or_name: str | Path, *, mechanism: Any = None) -> Scenari
         path = resolve(path_or_name, "scenarios")
     except BoxchemError as exc:
         raise ScenarioError(str(exc)) from None
-    text = path.read_text(encoding="utf-8")
+    from .textio import read_text_file
+    text = read_text_file(path, ScenarioError, "scenario file")
     return Scenario.from_text(text, base_dir=path.parent.resolve(), source=path.name, mechanism=mechanism)
 
 
@@ -338,10 +343,15 @@ class _Merged:
 
 
 def _parse_toml(text: str, source: str) -> dict[str, Any]:
+    from .textio import strip_bom
+    text = strip_bom(text)          # a UTF-8 byte-order mark is not part of the TOML
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ScenarioError(_toml_error_message(exc, text, source)) from None
+    except RecursionError:
+        raise ScenarioError(f"{source}: tables or arrays nested too deeply to read (hundreds of "
+                            f"levels); a scenario needs at most three") from None
 
 
 def _record_keys(data: Mapping[str, Any], source: str, folder: Path,
@@ -392,9 +402,13 @@ def _read_layers(text: str, base_dir: Path, source: str, path: Path | None,
         raise ScenarioError(f"{source}: {EXTENDS_KEY}: {extends!r} closes a cycle of extends: "
                             f"{' -> '.join(names[first:])}; a scenario cannot build on itself, "
                             f"directly or through its bases")
+    if len(visited) >= MAX_EXTENDS_DEPTH:
+        raise ScenarioError(f"{source}: {EXTENDS_KEY}: chain of extends deeper than "
+                            f"{MAX_EXTENDS_DEPTH} files; build on fewer levels")
+    from .textio import read_text_file
     try:
-        base_text = base_path.read_text(encoding="utf-8")
-    except OSError as exc:
+        base_text = read_text_file(base_path, ScenarioError, "scenario file")
+    except ScenarioError as exc:
         raise ScenarioError(f"{source}: {EXTENDS_KEY}: cannot read {str(base_path)!r}: {exc}") from None
     base = _read_layers(base_text, base_path.parent, base_path.name, base_path, visited,
                         note=f"extended by {source} with {EXTENDS_KEY} = \"{extends}\"")
@@ -484,10 +498,10 @@ class _Errors:
         return self.key_sources[best] if best else self.source
 
     def add(self, where: str, message: str) -> None:
-        self.messages.append(f"{self.at(where)}: {message}")
+        self.messages.append(_cut(f"{self.at(where)}: {message}"))
 
     def add_unit_error(self, exc: UnitError) -> None:
-        self.messages.append(str(exc))
+        self.messages.append(_cut(str(exc)))
 
     def raise_if_any(self) -> None:
         if not self.messages:
@@ -498,6 +512,17 @@ class _Errors:
         bases = sorted(set(self.key_sources.values()) - {self.source})
         via = f" (with its base{'s' if len(bases) > 1 else ''} {', '.join(bases)})" if bases else ""
         raise ScenarioError(f"{len(self.messages)} problems in scenario {self.source}{via}:\n{body}")
+
+
+#: longest message line kept (a value of 100,000 characters is shown cut in the middle)
+_MAX_MESSAGE = 2000
+
+
+def _cut(message: str) -> str:
+    if len(message) <= _MAX_MESSAGE:
+        return message
+    return (f"{message[:_MAX_MESSAGE // 2]} ...[{len(message) - _MAX_MESSAGE} characters left out]... "
+            f"{message[-_MAX_MESSAGE // 4:]}")
 
 
 def _override_target(key: str, label: str) -> tuple[str, str]:
@@ -515,6 +540,36 @@ def _override_target(key: str, label: str) -> tuple[str, str]:
     valid = sorted({k for keys in SCENARIO_KEYS.values() for k in keys})
     raise ScenarioError(f"{label}: unknown override {key!r}; valid keys: {', '.join(valid)} "
                         f"(or 'section.key')")
+
+
+def paths_from_working_folder(overrides: Mapping[str, Any], folder: Path | None = None) -> dict[str, Any]:
+    """Overrides with relative file paths (``run.mechanism``, ``environment.trajectory``,
+    ``photolysis.cross_sections`` values) made absolute against ``folder`` (default: cwd).
+
+    For values typed on the command line (``--set``, ``--vary``): the user means
+    a path from where they stand, not from the scenario's folder.  Bare
+    mechanism names (no suffix, no separator) stay shipped names.
+    """
+    folder = Path.cwd() if folder is None else Path(folder)
+
+    def absolute(value: Any) -> Any:
+        if not isinstance(value, str) or not value.strip():
+            return value
+        path = Path(value).expanduser()
+        looks_like_path = path.suffix != "" or "/" in value or "\\" in value
+        return str((folder / path).resolve()) if looks_like_path and not path.is_absolute() else value
+
+    out = dict(overrides)
+    for key, value in overrides.items():
+        try:
+            section, name = _override_target(key, key)
+        except ScenarioError:
+            continue            # reported when the override is applied
+        if _where(section, name) in ("[run].mechanism", "[environment].trajectory"):
+            out[key] = absolute(value)
+        elif _where(section, name) == "[photolysis].cross_sections" and isinstance(value, Mapping):
+            out[key] = {rid: absolute(v) for rid, v in value.items()}
+    return out
 
 
 def _where(section: str, key: str | None = None) -> str:
@@ -555,21 +610,18 @@ def _parse_time(value: Any, start: np.datetime64 | None, where: str, err: _Error
 
 
 def _datetime64(value: Any, where: str, err: _Errors) -> np.datetime64 | None:
-    """UTC date-time from a TOML date-time or an ISO 8601 string; naive means UTC."""
+    """UTC date-time from a TOML date-time or an ISO 8601 string; naive means UTC.
+
+    Read at second resolution first and checked against the supported range
+    (:mod:`boxchem.timerange`), so a far date is an error, never a wrapped time.
+    """
+    from .timerange import TimeRangeError, utc_nanoseconds
     try:
-        if isinstance(value, str):
-            text = value.strip().replace("Z", "+00:00")
-            value = _dt.datetime.fromisoformat(text)
-        if isinstance(value, _dt.datetime):
-            if value.tzinfo is not None:
-                value = value.astimezone(_dt.timezone.utc).replace(tzinfo=None)
-            return np.datetime64(value, "ns")
-        if isinstance(value, _dt.date):
-            return np.datetime64(value, "ns")
-    except (ValueError, TypeError):
-        pass
-    err.add(where, f"cannot read {value!r} as a UTC date-time; write e.g. \"2026-09-01T00:00:00Z\"")
-    return None
+        return utc_nanoseconds(value, where)
+    except TimeRangeError as exc:
+        message = str(exc)
+        err.add(where, message[len(where) + 2:] if message.startswith(f"{where}: ") else message)
+        return None
 
 
 def _series_or_value(value: Any, kind: str, where: str, err: _Errors, *,
@@ -684,6 +736,14 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         duration = _quantity(run["duration"], "time", "[run].duration", err)
         if duration is not None and duration <= 0:
             err.add("[run].duration", f"must be > 0, got {run['duration']!r}")
+            duration = None
+    if start is not None and duration is not None:
+        from .timerange import range_problem
+        end_problem = range_problem(start.astype("datetime64[s]")
+                                    + np.timedelta64(int(min(duration, 1e13)), "s"), "the run's end")
+        if end_problem:
+            err.add("[run].duration", f"{run['duration']!r} from the start {run['start']!r}: "
+                                      f"{end_problem}; shorten the run or start earlier")
             duration = None
     interval = DEFAULT_OUTPUT_INTERVAL_S
     if "output_interval" in run:
@@ -832,6 +892,12 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
                     f"must be > 0, got {phot['ozone_loss_layer_depth']!r}")
 
     err.raise_if_any()
+    _preflight(err, mechanism=mechanism, run=run, solver=solver, temperature=temperature,
+               pressure=pressure if pressure is not None else loc_pressure,
+               pressure_key="[environment].pressure" if pressure is not None else "[location].pressure",
+               altitude=altitude, trajectory=trajectory, duration=duration, interval=interval,
+               max_step=max_step, atol=atol, initial=initial, scale=scale)
+    err.raise_if_any()
     return Scenario(
         source=source, text=text, data=copy.deepcopy(dict(data)), base_dir=base_dir,
         mechanism_path=mechanism_path if mechanism_path is not None else Path(getattr(mechanism, "source", "") or "."),
@@ -847,6 +913,61 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         ozone_loss_layer_depth_m=float(layer_depth),
         layers=tuple(layers) or ((source, text),), key_sources=key_sources, key_dirs=key_dirs,
         ice_surface_area=ice)
+
+
+def _flag(table: Mapping[str, Any], key: str, where: str, err: _Errors) -> bool:
+    value = table.get(key, False)
+    if not isinstance(value, bool):
+        err.add(where, f"expected true or false, got {value!r}")
+        return False
+    return value
+
+
+def _preflight(err: _Errors, *, mechanism, run, solver, temperature, pressure, pressure_key,
+               altitude, trajectory, duration, interval, max_step, atol, initial, scale) -> None:
+    """Conditions, rate coefficients, work and tolerance checks (boxchem.preflight) -> ``err``."""
+    from .preflight import scenario_problems
+    allow_long = _flag(run, "allow_long_run", "[run].allow_long_run", err)
+    allow_loose = _flag(solver, "allow_loose_atol", "[solver].allow_loose_atol", err)
+
+    def values(v):
+        if v is None:
+            return None
+        return np.asarray(v.values if isinstance(v, TimeSeriesSpec) else [v], dtype=float)
+
+    temperatures: dict[str, np.ndarray] = {}
+    pressures: dict[str, np.ndarray] = {}
+    if trajectory is not None:
+        from .environment.history import load_trajectory
+        columns = load_trajectory(trajectory)          # read fine above
+        for key, target in (("temperature", temperatures), ("pressure", pressures)):
+            if key in columns:
+                target["[environment].trajectory"] = np.asarray(columns[key].values, dtype=float)
+        if "altitude" in columns and "temperature" not in columns and temperature is None:
+            from .environment.atmosphere import standard_atmosphere
+            p_std, t_std = standard_atmosphere(np.asarray(columns["altitude"].values, dtype=float))
+            temperatures["[environment].trajectory"] = np.asarray(t_std, dtype=float)
+            pressures.setdefault("[environment].trajectory", np.asarray(p_std, dtype=float))
+    if values(temperature) is not None:
+        temperatures["[environment].temperature"] = values(temperature)
+    if values(pressure) is not None:
+        pressures[pressure_key] = values(pressure)
+    if not temperatures or not pressures:
+        # the runner falls back on the standard atmosphere at the box's altitude
+        from .environment.atmosphere import altitude_from_pressure, standard_atmosphere
+        z = altitude
+        if z is None and pressures:
+            with np.errstate(all="ignore"):
+                z = float(np.nan_to_num(altitude_from_pressure(next(iter(pressures.values()))[0])))
+        if z is not None:
+            p_std, t_std = standard_atmosphere(float(z))
+            temperatures.setdefault("[location].altitude", np.array([float(t_std)]))
+            pressures.setdefault("[location].altitude", np.array([float(p_std)]))
+    for where, message in scenario_problems(
+            mechanism=mechanism, temperatures=temperatures, pressures=pressures,
+            duration_s=duration, interval_s=interval, max_step_s=max_step, atol_cm3=atol,
+            initial=initial, scale=scale, allow_long_run=allow_long, allow_loose_atol=allow_loose):
+        err.add(where, message)
 
 
 def _temperature_offset(env: Mapping[str, Any], temperature: Any, err: _Errors) -> Any:

@@ -168,7 +168,10 @@ def run_member(scenario, assignment: Mapping[str, Any]) -> xr.Dataset:
     from ..scenario import Scenario, load_scenario
     from .members import apply_setup_overrides
     scale = {k.split(".", 1)[1]: v for k, v in assignment.items() if k.startswith("scale.")}
-    setup = {k: _cell(v) for k, v in assignment.items() if not k.startswith("scale.")}
+    from ..scenario import paths_from_working_folder
+    # file paths in --vary values are read from the working folder, not the scenario's
+    setup = paths_from_working_folder(
+        {k: _cell(v) for k, v in assignment.items() if not k.startswith("scale.")})
     origins = {k: vary_label(k, v) for k, v in assignment.items()}
     scn = scenario if isinstance(scenario, Scenario) else load_scenario(scenario)
     if setup:

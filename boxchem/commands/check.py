@@ -54,16 +54,39 @@ def summary(mechanism: Mechanism, hidden: tuple[int, str] = (0, "")) -> str:
     ])
 
 
-def _in_shipped_file(problem) -> bool:
-    """True for a problem located in a shipped mechanism file (an extended one)."""
+def _in_shipped_file(problem, _cache: dict = {}) -> bool:
+    """True for a problem located in a shipped mechanism file (an extended one).
+
+    Answers are cached per file name: ``check`` stays linear in the number of warnings.
+    """
     from ..resources import shipped_dir
     if problem.location is None:
         return False
-    try:
-        Path(problem.location.file).resolve().relative_to(shipped_dir("mechanisms").resolve())
-    except ValueError:
-        return False
-    return True
+    name = problem.location.file
+    if name not in _cache:
+        try:
+            Path(name).resolve().relative_to(shipped_dir("mechanisms").resolve())
+            _cache[name] = True
+        except (ValueError, OSError):
+            _cache[name] = False
+    return _cache[name]
+
+
+#: conditions ``check`` evaluates every thermal k over (a scenario checks its own range):
+#: 150-330 K and [M] from 1e14 cm-3 (about 60 km) to 3e19 cm-3 (the surface) - common practice
+CHECK_TEMPERATURE_RANGE_K = (150.0, 330.0)
+CHECK_AIR_DENSITY_RANGE_CM3 = (1.0e14, 3.0e19)
+
+
+def _rate_coefficient_errors(mechanism) -> list:
+    """Problems (located at the reaction's line) for k non-finite, negative or absurd in the range."""
+    from ..errors import Problem
+    from ..preflight import rate_coefficient_problems
+    found = rate_coefficient_problems(mechanism, CHECK_TEMPERATURE_RANGE_K, CHECK_AIR_DENSITY_RANGE_CM3)
+    return [Problem(f"reaction {reaction.id!r}: " + message.split(": ", 1)[1] + f" (checked over {CHECK_TEMPERATURE_RANGE_K[0]:g}-"
+                    f"{CHECK_TEMPERATURE_RANGE_K[1]:g} K, [M] {CHECK_AIR_DENSITY_RANGE_CM3[0]:g}-"
+                    f"{CHECK_AIR_DENSITY_RANGE_CM3[1]:g} cm-3)", reaction.location)
+            for reaction, message in found]
 
 
 def run(args) -> int:
@@ -77,16 +100,20 @@ def run(args) -> int:
     # produced) are the shipped file's, not the user's: listed only when the
     # shipped mechanism itself is checked, and never errors under --strict for
     # a user's file that extends it.
-    own = [w for w in mechanism.warnings if checking_shipped or not _in_shipped_file(w)]
-    inherited = [w for w in mechanism.warnings if w not in own]
+    own, inherited = [], []
+    for w in mechanism.warnings:            # one pass: linear in the number of warnings
+        (own if checking_shipped or not _in_shipped_file(w) else inherited).append(w)
     shipped = sorted({Path(w.location.file).stem for w in inherited})
     see = f"boxchem check {' '.join(shipped)}"
+    rate_errors = _rate_coefficient_errors(mechanism)
+    if rate_errors:
+        raise MechanismError(rate_errors)
     if args.strict and own:
         raise MechanismError([dataclasses.replace(w, severity="error",
                                                   message=f"{w.message} (error under --strict)")
                               for w in own])
-    for w in own:
-        print(w.format(), file=sys.stderr)
+    if own:
+        sys.stderr.write("".join(f"{w.format()}\n" for w in own))
     print(summary(mechanism, (len(inherited), see)))
     if mechanism.changes:
         print(changes_report(mechanism))

@@ -50,6 +50,8 @@ def _pick_time(ds: xr.Dataset, when: str, where: str) -> np.datetime64:
     if when == "end":
         return t[-1]
     try:
+        from ..timerange import check_utc_range
+        check_utc_range(np.datetime64(when.rstrip("Z"), "s"), where)   # never a wrapped time
         value = np.datetime64(when.rstrip("Z"), "ns")
     except ValueError:
         raise ResultError(f"{where}: cannot read time {when!r}; write e.g. 2026-09-15T12:00, start or end") from None

@@ -331,7 +331,14 @@ def _parse_day(text, start) -> np.datetime64:
     if text is None:
         return start.astype("datetime64[D]")
     try:
-        return np.datetime64(str(text).strip(), "D")
+        day = np.datetime64(str(text).strip(), "D")
+    except ValueError:
+        raise BoxchemError(f"--day {text!r}: expected a UTC date YYYY-MM-DD, e.g. 2026-09-15") from None
+    from ..timerange import check_utc_range
+    check_utc_range(day + np.timedelta64(1, "D") - np.timedelta64(1, "s"), f"--day {text}")
+    try:
+        check_utc_range(day, f"--day {text}")
+        return day
     except ValueError:
         raise BoxchemError(f"--day {text!r}: expected a UTC date YYYY-MM-DD, e.g. 2026-09-15") from None
 

@@ -16,7 +16,14 @@ EXAMPLE = """examples:
 
 The file is written under a temporary name and renamed when complete.  If
 the integration fails, the result up to the failure is written to
-OUT.partial.nc and the exit status is 1; input errors give exit status 2."""
+OUT.partial.nc and the exit status is 1.  The output folder is checked
+(writable, room for the estimated size) before the integration starts; if
+writing fails after it, the result goes to a fallback file in the temporary
+folder, named in the message.  Element totals and fixed mixing ratios are
+checked at the end (docs/guards.md): a drift is a warning, or with --strict
+an error (exit 1, result in OUT.partial.nc).
+Exit status: 0 success, 1 integration failed, 2 input error, 3 output error,
+130 interrupted."""
 
 #: species reported in the closing summary, when the mechanism has them
 SPECIES_OF_INTEREST = ("O3", "ClO", "HCl", "ClONO2", "BrO", "HNO3")
@@ -38,6 +45,9 @@ def register(subparsers) -> None:
                    help='override a scenario value, e.g. run.duration="2 d" or solver.rtol=1e-5 '
                         "(repeatable)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary")
+    p.add_argument("--strict", action="store_true",
+                   help="a failed conservation check (element totals, fixed mixing ratios) is an "
+                        "error (exit status 1) instead of a warning")
     p.set_defaults(func=main)
 
 
@@ -97,6 +107,8 @@ def summary(ds, out: Path, wall_s: float) -> str:
     lines.append(f"  solver: {a.get('solver_steps')} steps ({a.get('solver_rejected_steps')} rejected), "
                  f"{a.get('solver_rhs_evaluations')} RHS, {a.get('solver_jacobian_evaluations')} "
                  f"Jacobians, {a.get('solver_lu_decompositions')} LU")
+    if "conservation_check" in a:
+        lines.append(f"  conservation: {a['conservation_check']} - {a.get('conservation_message', '')}")
     lines.append(f"  wall time: {wall_s:.2f} s")
     return "\n".join(lines)
 
@@ -140,17 +152,33 @@ def print_scenario_spectrum_warnings(scenario) -> None:
             raise DataFileError(f"{where}: {exc}") from None
         if note:
             print(f"{where}: warning: {note}", file=sys.stderr)
+def _estimated_bytes(scenario) -> int:
+    from ..io.outputcheck import estimated_result_bytes
+    from ..preflight import output_time_count
+    m = scenario.mechanism
+    return estimated_result_bytes(output_time_count(scenario.duration_s, scenario.output_interval_s),
+                                  len(m.species), len(m.reactions), len(m.families), len(m.cycles))
+
+
+def conservation_warning(ds) -> str | None:
+    """The conservation guard's message when it failed (attribute written by the runner)."""
+    if ds.attrs.get("conservation_check") == "failed":
+        return f"warning: {ds.attrs.get('conservation_message', 'conservation check failed')}"
+    return None
 
 
 def main(args) -> int:
-    from ..io.netcdf import write_dataset
+    from ..exitcodes import INTEGRATION_FAILED, OK
+    from ..io.outputcheck import check_output_location, write_with_fallback
     from ..runner import run
     from ..scenario import load_scenario
 
     wall0 = time.perf_counter()
     scale = parse_scale(args.scale)
     settings = parse_assignments(args.overrides, "--set")
-    overrides = {k: _toml_value(v) for k, v in settings.items()}
+    from ..scenario import paths_from_working_folder
+    # file paths typed here are read from the working folder, not the scenario's
+    overrides = paths_from_working_folder({k: _toml_value(v) for k, v in settings.items()})
     # errors in these values name the option they came from, not the scenario file
     origins = {f"scale.{k}": f"--scale {k}={v}" for k, v in parse_assignments(args.scale, "--scale").items()}
     origins.update({k: f"--set {k}={v}" for k, v in settings.items()})
@@ -160,18 +188,26 @@ def main(args) -> int:
     out = Path(args.output) if args.output else default_output(args.scenario)
     print_mechanism_warnings(scenario.mechanism)
     print_scenario_spectrum_warnings(scenario)
+    # before the integration: a long run must not be lost to an unwritable or full disk
+    check_output_location(out, _estimated_bytes(scenario))
     try:
         ds = run(scenario, progress=not args.quiet)
     except IntegrationError as exc:
         partial = exc.partial_result
+        print(f"boxchem run: integration failed: {exc}", file=sys.stderr)
         if partial is not None:
-            path = write_dataset(partial, partial_path(out))
-            print(f"boxchem run: integration failed: {exc}\n  result up to the failure written "
-                  f"to {path}", file=sys.stderr)
-        else:
-            print(f"boxchem run: integration failed: {exc}", file=sys.stderr)
-        return 1
-    write_dataset(ds, out)
+            path = write_with_fallback(partial, partial_path(out))
+            print(f"  result up to the failure written to {path}", file=sys.stderr)
+        return INTEGRATION_FAILED
+    warning = conservation_warning(ds)
+    if warning and args.strict:
+        path = write_with_fallback(ds, partial_path(out))
+        print(f"boxchem run: {warning[len('warning: '):]} (an error under --strict)\n  result "
+              f"written to {path}", file=sys.stderr)
+        return INTEGRATION_FAILED
+    write_with_fallback(ds, out)
+    if warning:
+        print(f"boxchem run: {warning}", file=sys.stderr)
     if not args.quiet:
         print(summary(ds, out, time.perf_counter() - wall0))
-    return 0
+    return OK

@@ -51,33 +51,26 @@ _BOLTZMANN_CM3 = BOLTZMANN_J_PER_K * 1.0e6
 
 
 def parse_utc(value, where: str = "time") -> np.datetime64:
-    """A UTC time (``datetime64`` or ISO text such as ``"2026-09-01T00:00:00Z"``) -> datetime64[ns]."""
-    if isinstance(value, np.datetime64):
-        if np.isnat(value):
-            raise ScenarioError(f"{where}: expected a UTC time, got NaT")
-        return value.astype("datetime64[ns]")
-    if isinstance(value, str):
-        text = value.strip()
-        if text.endswith(("Z", "z")):
-            text = text[:-1]
-        elif text.endswith("+00:00"):
-            text = text[:-6]
-        try:
-            return np.datetime64(text, "ns")
-        except ValueError:
-            pass
-        raise ScenarioError(
-            f"{where}: cannot read {value!r} as a UTC time; expected ISO 8601 such as "
-            "\"2026-09-01T00:00:00Z\"")
-    try:
+    """A UTC time (``datetime64`` or ISO text such as ``"2026-09-01T00:00:00Z"``) -> datetime64[ns].
+
+    Times outside :data:`boxchem.timerange.SUPPORTED_RANGE_TEXT` are errors
+    naming ``where`` (never wrapped around).
+    """
+    from ..timerange import TimeRangeError, utc_nanoseconds
+    if isinstance(value, np.datetime64) and np.isnat(value):
+        raise ScenarioError(f"{where}: expected a UTC time, got NaT")
+    if not isinstance(value, (np.datetime64, str)):
         import datetime as _dt
-        if isinstance(value, _dt.datetime):
-            if value.tzinfo is not None:
-                value = value.astimezone(_dt.timezone.utc).replace(tzinfo=None)
-            return np.datetime64(value, "ns")
-    except (TypeError, ValueError):
-        pass
-    raise ScenarioError(f"{where}: expected a UTC time (ISO text or datetime64), got {value!r}")
+        if not isinstance(value, _dt.datetime):
+            raise ScenarioError(f"{where}: expected a UTC time (ISO text or datetime64), got {value!r}")
+    try:
+        return utc_nanoseconds(value, where)
+    except TimeRangeError as exc:
+        if "cannot read" in str(exc):
+            raise ScenarioError(
+                f"{where}: cannot read {value!r} as a UTC time; expected ISO 8601 such as "
+                "\"2026-09-01T00:00:00Z\"") from None
+        raise
 
 
 class TimeSeries:
@@ -466,7 +459,9 @@ def _parse_time_cell(text: str):
         pass
     try:
         return None, parse_utc(text)
-    except ScenarioError:
+    except ScenarioError as exc:
+        if "outside the supported range" in str(exc):
+            raise
         return None, None
 
 
@@ -500,12 +495,10 @@ def load_trajectory_csv(path) -> dict[str, TimeSeries]:
     times the series carry the first time as ``origin``.  Errors name
     ``file:line``.
     """
+    from ..textio import read_text_file, split_lines
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise DataFileError(f"{path}: cannot read the trajectory file ({exc.strerror})") from None
-    rows = [(n, row) for n, row in enumerate(csv.reader(text.splitlines()), start=1)
+    text = read_text_file(path, DataFileError, "trajectory file")
+    rows = [(n, row) for n, row in enumerate(csv.reader(split_lines(text)), start=1)
             if row and any(c.strip() for c in row) and not row[0].lstrip().startswith("#")]
     if not rows:
         raise DataFileError(f"{path}: empty trajectory file; expected a header line starting with 'time'")
@@ -531,7 +524,10 @@ def load_trajectory_csv(path) -> dict[str, TimeSeries]:
         cells = [c.strip() for c in row]
         if len(cells) != len(names):
             raise DataFileError(f"{path}:{line}: {len(cells)} values but {len(names)} columns in the header")
-        s, stamp = _parse_time_cell(cells[0])
+        try:
+            s, stamp = _parse_time_cell(cells[0])
+        except ScenarioError as exc:
+            raise DataFileError(f"{path}:{line}: {str(exc).split(': ', 1)[-1]}") from None
         if s is None and stamp is None:
             raise DataFileError(f"{path}:{line}: cannot read time {cells[0]!r}; expected ISO UTC "
                                 "(2026-09-01T06:00:00Z) or seconds")
@@ -578,14 +574,27 @@ def load_trajectory_netcdf(path) -> dict[str, TimeSeries]:
     import xarray as xr
 
     path = Path(path)
+    import warnings
     try:
-        ds = xr.open_dataset(path)
-    except (OSError, ValueError) as exc:
+        # times decoded as cftime objects when outside datetime64[ns] (never wrapped);
+        # refused below with the supported range, so xarray's own warning is noise
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            ds = xr.open_dataset(path, decode_times=xr.coders.CFDatetimeCoder(use_cftime=None)
+                                 if hasattr(xr, "coders") else True)
+    except (OSError, ValueError, OverflowError) as exc:
         raise DataFileError(f"{path}: cannot open the trajectory file as netCDF ({exc})") from None
     with ds:
         if "time" not in ds.coords and "time" not in ds.variables:
             raise DataFileError(f"{path}: no 'time' variable; expected a time coordinate")
         time = ds["time"].values
+        if time.dtype == object and time.size and hasattr(time.flat[0], "calendar"):
+            from ..timerange import SUPPORTED_RANGE_TEXT
+            raise DataFileError(f"{path}: time: {time.flat[0]} .. {time.flat[-1]} lies outside the "
+                                f"supported range {SUPPORTED_RANGE_TEXT} (or uses a non-standard "
+                                f"calendar); give times inside it, or numbers in seconds")
+        if time.size == 0:
+            raise DataFileError(f"{path}: the time coordinate is empty")
         if np.issubdtype(time.dtype, np.datetime64):
             origin = time[0].astype("datetime64[ns]")
             times = (time.astype("datetime64[ns]") - origin) / np.timedelta64(1, "s")

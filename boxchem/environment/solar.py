@@ -73,8 +73,12 @@ def days_since_j2000(time) -> np.ndarray:
         raise TypeError(
             f"time: expected numpy datetime64 values (UTC), got dtype {t.dtype}; "
             "use e.g. np.datetime64('2026-09-01T12:00')")
-    t = t.astype("datetime64[ns]")
-    days = (t - _J2000).astype(np.float64) / _NS_PER_DAY
+    if np.datetime_data(t.dtype)[0] != "ns":
+        # microseconds hold +-290,000 years: a far date is computed, not wrapped around
+        t = t.astype("datetime64[us]")
+        days = (t - _J2000.astype("datetime64[us]")).astype(np.float64) / (_NS_PER_DAY / 1000.0)
+    else:
+        days = (t - _J2000).astype(np.float64) / _NS_PER_DAY
     return np.where(np.isnat(t), np.nan, days) if t.ndim else (np.nan if np.isnat(t) else days)
 
 
@@ -335,7 +339,13 @@ def _as_day_start(date) -> np.ndarray:
     d = np.asarray(date)
     if not np.issubdtype(d.dtype, np.datetime64):
         raise TypeError(f"date: expected numpy datetime64 dates (UTC), got dtype {d.dtype}")
-    return d.astype("datetime64[D]").astype("datetime64[ns]")
+    d = d.astype("datetime64[D]")
+    valid = d[~np.isnat(d)] if d.ndim else (d if not np.isnat(d) else None)
+    if valid is not None and np.size(valid):
+        from ..timerange import check_utc_range
+        check_utc_range(np.min(valid), "date")        # datetime64[ns] would wrap it silently
+        check_utc_range(np.max(valid), "date")
+    return d.astype("datetime64[ns]")
 
 
 def _days_to_datetime(d) -> np.ndarray:

@@ -20,6 +20,7 @@ from ..errors import BoxchemError, MechanismError, Problem, SourceLocation
 from .formula import FormulaError, molar_mass, parse_formula
 from .model import (RATE_LAWS, Cycle, Family, Mechanism, MechanismChange, MechanismFile, Reaction,
                     Species, Term)
+from ..textio import read_text_file, split_lines, strip_bom
 
 __all__ = ["parse_mechanism", "load_mechanism", "parse_stored_mechanism", "LAW_KEYS", "SECTIONS",
            "EXTENDS_WORD"]
@@ -45,6 +46,8 @@ LAW_KEYS: dict[str, dict[str, object]] = {
 STRING_KEYS = frozenset({"of", "data", "on", "outside"})
 #: keys every reaction may carry (stored on the Reaction, not in parameters)
 COMMON_KEYS = ("f298", "g", "ref")
+#: deepest chain of include lines (a file including a file including ...)
+MAX_INCLUDE_DEPTH = 64
 #: words that cannot name a species
 RESERVED = frozenset({"hv", *RATE_LAWS, EXTENDS_WORD, "include", "atoms", "destroys"})
 
@@ -272,10 +275,19 @@ class _Reader:
             self.problems.append(Problem(f"{EXTENDS_WORD} loop: {chain}", include_loc))
             self.include_failed = True
             return
+        if len(self.stack) >= MAX_INCLUDE_DEPTH:
+            chain = " -> ".join(p.name for p in [*self.stack[:3], Path("..."), *self.stack[-2:]])
+            self.problems.append(Problem(
+                f"include chain deeper than {MAX_INCLUDE_DEPTH} files ({chain}); "
+                f"include the files from fewer levels", include_loc))
+            self.include_failed = True
+            return
         try:
-            text = path.read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError) as exc:
-            msg = f"cannot read mechanism file {str(path)!r}: {exc}"
+            text = read_text_file(path, MechanismError, "mechanism file")
+        except MechanismError as exc:
+            detail = exc.problems[0].message
+            detail = detail[len(str(path)) + 1:].lstrip() if detail.startswith(f"{path}:") else detail
+            msg = f"cannot read mechanism file {str(path)!r}: {detail}"
             self.problems.append(Problem(msg, include_loc))
             self.include_failed = include_loc is not None
             return
@@ -300,8 +312,8 @@ class _Reader:
     def _read_lines(self, text: str, source: str, base_dir: Path) -> None:
         self.texts.append(text)
         section: str | None = None
-        for lineno, raw in enumerate(text.splitlines(), start=1):
-            raw = raw.rstrip("\r\n")
+        # lines end at \n, \r\n or \r only (form feed, U+2028 ... are not line breaks)
+        for lineno, raw in enumerate(split_lines(strip_bom(text)), start=1):
             line = _strip_comment(raw).rstrip()
             if not line.strip():
                 continue

@@ -264,17 +264,17 @@ def load_spectral_file(path: str | Path) -> SpectralData:
 
     Raises DataFileError with ``file:line: what was found; what was expected``.
     """
+    from ..textio import decode_text, split_lines
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8-sig")
+        data = p.read_bytes()
     except FileNotFoundError:
         raise DataFileError(f"{p}: no such file; expected a spectral data file "
                             f"(see docs/spectral-data.md)") from None
-    except UnicodeDecodeError as exc:
-        raise DataFileError(f"{p}: not UTF-8 text ({exc.reason}); expected a CSV text file") from None
     except OSError as exc:
         raise DataFileError(f"{p}: cannot read ({exc.strerror})") from None
-    lines = text.splitlines()
+    text = decode_text(data, str(p), DataFileError, "spectral data file")
+    lines = split_lines(text)
     first = next((i for i, ln in enumerate(lines) if ln.strip()), None)
     if first is None:
         raise DataFileError(f"{p}:1: empty file; expected '# format: {FORMAT_NAME}' header "
