@@ -98,10 +98,10 @@ def _encoded(draw, text: str) -> bytes:
 # ---------------------------------------------------------------------------
 # mechanisms
 # ---------------------------------------------------------------------------
-MECH_FRAGMENTS = ["->", "+", "*", "hv", "M", "2", "0.5", "[species]", "[reactions]", "[replace]",
-                  "[remove]", "[cycles]", "[families]", "atoms(Cl)", "fixed", "lumped", "formula=",
+MECH_FRAGMENTS = ["->", "+", "*", "hv", "M", "2", "0.5", "[species]", "[reactions]", "[changed reactions]",
+                  "[dropped reactions]", "[replace]", "[cycles]", "[families]", "atoms(Cl)", "fixed", "lumped", "formula=",
                   "unbalanced", "of=clo_dimer", "on=psc", "gamma=", "A=", "E/R=", "k0=", "Fc=",
-                  "data=", "qy=", "l=", "f298=", "g=", 'include "small.mech"', 'include "nope.mech"',
+                  "data=", "qy=", "l=", "f298=", "g=", 'extends "small.mech"', 'extends "nope.mech"', 'include "small.mech"',
                   "O3", "ClO", "Cl2O2", "destroys", "reverse", "falloff", "surface", "photolysis",
                   "arrhenius", "constant", "A=1e308 E/R=-1e5", "K=1e-300 B=1e5", "k0=1e300 kinf=1e-300"]
 

@@ -120,7 +120,7 @@ def test_scale_1e300_names_the_reaction_and_its_line():
 
 def test_infinite_rate_coefficient_is_refused_by_check_and_by_the_scenario(tmp_path, capsys):
     mech = tmp_path / "inf.mech"
-    mech.write_text('include "stratosphere"\n[reactions]\n'
+    mech.write_text('extends "stratosphere"\n[reactions]\n'
                     'boom   O3 + Cl -> ClO + O2   arrhenius A=1e308 E/R=-1e5\n')
     assert main(["check", str(mech)]) == INPUT_ERROR
     assert f"{mech}:3:1: error: reaction 'boom': k = inf" in capsys.readouterr().err

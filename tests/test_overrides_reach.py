@@ -45,7 +45,7 @@ def test_python_override_of_the_mechanism_runs_that_mechanism(faster_chain):
     # A(6 h)/A0 = exp(-k 21600 s) with the overriding k = 2e-4 s-1 (closed form)
     assert _a_ratio(ds) == pytest.approx(math.exp(-2e-4 * 21600), rel=1e-5)
     assert ds.attrs["mechanism_source"] == str(faster_chain)
-    record = json.loads(ds.attrs["input_files"])
+    record = json.loads(ds.attrs["input_sources"])
     assert record["[run].mechanism"]["path"] == str(faster_chain.resolve())
     assert json.loads(ds.attrs["scenario_overrides"])["run.mechanism"] == str(faster_chain)
 
@@ -88,7 +88,7 @@ def test_trajectory_override_reaches_the_environment(tmp_path):
     ds_cold, ds_warm = boxchem.run(base), boxchem.run(warm)
     np.testing.assert_allclose(ds_cold.temperature.values, 190.0)
     np.testing.assert_allclose(ds_warm.temperature.values, 230.0)
-    record = json.loads(ds_warm.attrs["input_files"])
+    record = json.loads(ds_warm.attrs["input_sources"])
     assert record["[environment].trajectory"]["path"] == str((tmp_path / "warm.csv").resolve())
 
 

@@ -127,9 +127,9 @@ def test_line_numbers_follow_each_newline_convention(newline):
 def test_deep_include_chain_is_an_error(tmp_path):
     n = MAX_INCLUDE_DEPTH + 40
     for i in range(n):
-        body = f'include "f{i + 1}.mech"\n' if i + 1 < n else SMALL
+        body = f'extends "f{i + 1}.mech"\n' if i + 1 < n else SMALL
         (tmp_path / f"f{i}.mech").write_text(body)
-    with pytest.raises(MechanismError, match=f"include chain deeper than {MAX_INCLUDE_DEPTH}"):
+    with pytest.raises(MechanismError, match=f"extends chain deeper than {MAX_INCLUDE_DEPTH}"):
         load_mechanism(tmp_path / "f0.mech")
 
 

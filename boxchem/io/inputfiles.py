@@ -17,7 +17,7 @@ from typing import Any
 __all__ = ["input_file_record", "input_files_attribute", "INPUT_FILES_ATTRIBUTE"]
 
 #: global attribute of a result file holding the JSON record
-INPUT_FILES_ATTRIBUTE = "input_files"
+INPUT_FILES_ATTRIBUTE = "input_sources"
 
 
 def _sha256(path: Path) -> str:
@@ -50,5 +50,5 @@ def input_file_record(scenario: Any, mechanism: Any) -> dict[str, dict[str, str]
 
 
 def input_files_attribute(scenario: Any, mechanism: Any) -> str:
-    """:func:`input_file_record` as the JSON text of the ``input_files`` attribute."""
+    """:func:`input_file_record` as the JSON text of the ``input_sources`` attribute."""
     return json.dumps(input_file_record(scenario, mechanism), sort_keys=True)

@@ -278,8 +278,8 @@ class _Reader:
         if len(self.stack) >= MAX_INCLUDE_DEPTH:
             chain = " -> ".join(p.name for p in [*self.stack[:3], Path("..."), *self.stack[-2:]])
             self.problems.append(Problem(
-                f"include chain deeper than {MAX_INCLUDE_DEPTH} files ({chain}); "
-                f"include the files from fewer levels", include_loc))
+                f"extends chain deeper than {MAX_INCLUDE_DEPTH} files ({chain}); "
+                f"build on fewer levels of files", include_loc))
             self.include_failed = True
             return
         try:
