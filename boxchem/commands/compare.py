@@ -117,10 +117,16 @@ def run(args) -> int:
         base = select_member(base, args.base_member)
     heading = ""
 
+    times, notes = args.times, None
+
     def make(one):
-        return compare_results(base, one, times=args.times, at=args.at, species=args.species,
-                               family=args.family, top=args.top)
+        return compare_results(base, one, times=times, at=args.at, species=args.species,
+                               family=args.family, top=args.top, time_notes=notes)
     if is_members(other) and args.other_member is None:
+        if times is None:   # one set of times for every member: where the members' median change peaks
+            from ..diagnostics.comparison import largest_difference_time_members
+            when = largest_difference_time_members(base, other)
+            times, notes = (["end"], ["end"]) if when is None else ([when, "end"], ["largest median |dO3|", "end"])
         rows = rows_across_members(other, make, key_fields=("section", "time", "note", "term", "how"))
         n = max((r.get("n_members", 0) for r in rows), default=0)
         heading = f"OTHER: {n} successful members, each against BASE: median [5 %, 95 %]"

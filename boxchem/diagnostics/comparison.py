@@ -28,7 +28,7 @@ from .ozone_loss import accumulated_loss, has_total_loss
 from .result import ResultError, family_weights, is_family, names_or_error, stoichiometry
 
 __all__ = ["DEFAULT_SPECIES", "pick_time", "run_differences", "changed_reactions",
-           "largest_difference_time", "species_changes", "loss_changes", "rate_changes",
+           "largest_difference_time", "largest_difference_time_members", "species_changes", "loss_changes", "rate_changes",
            "compare_results", "percent_change", "touched_species", "reverse_pairs"]
 
 DEFAULT_SPECIES = ("O3", "ClO", "Cl2O2", "HCl", "ClONO2", "HOCl", "BrO", "NO2", "HNO3")
@@ -178,6 +178,19 @@ def _changed_by_rate_coefficient(base, other, common, eq) -> list[dict]:
 # ---------------------------------------------------------------------------
 # species and loss at times
 # ---------------------------------------------------------------------------
+def largest_difference_time_members(base: xr.Dataset, members: xr.Dataset, species: str = "O3"):
+    """Time where the median over members of |OTHER - BASE| of ``species`` is largest (None if 0)."""
+    shared = np.intersect1d(base["time"].values, members["time"].values)
+    if shared.size == 0:
+        return None
+    xb = base["mole_fraction"].sel(species=species, time=shared)
+    xo = members["mole_fraction"].sel(species=species, time=shared)
+    d = np.abs(xo - xb).median("member", skipna=True).values
+    if not np.isfinite(d).any() or not np.nanmax(d) > 0:
+        return None
+    return shared[int(np.nanargmax(d))]
+
+
 def largest_difference_time(base: xr.Dataset, other: xr.Dataset, species: str = "O3") -> np.datetime64 | None:
     """Output time (of both runs) where |OTHER - BASE| of ``species``' mole fraction is largest."""
     shared = np.intersect1d(base["time"].values, other["time"].values)
@@ -317,7 +330,7 @@ def touched_species(base: xr.Dataset, changed: list[dict]) -> tuple[str, ...]:
 
 
 def compare_results(base: xr.Dataset, other: xr.Dataset, *, times=None, at=(), species=None,
-                    family: str = "Ox", top: int = 10) -> list[dict]:
+                    family: str = "Ox", top: int = 10, time_notes=None) -> list[dict]:
     """Every comparison row: notes, changed reactions, species and loss by cycle at times, rate changes.
 
     ``times`` (default: the time of the largest O3 difference, then the end)
@@ -338,7 +351,7 @@ def compare_results(base: xr.Dataset, other: xr.Dataset, *, times=None, at=(), s
         largest = largest_difference_time(base, other, "O3")
         times, notes = (["end"], ["end"]) if largest is None else ([largest, "end"], ["largest |dO3|", "end"])
     else:
-        notes = [""] * len(times)
+        notes = list(time_notes) if time_notes is not None else [""] * len(times)
     times, notes = list(times) + list(at), list(notes) + ["--at"] * len(at)
     rows += species_changes(base, other, times, species, notes)
     if "cycle_rate" in base and "cycle_rate" in other:

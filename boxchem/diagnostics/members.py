@@ -96,9 +96,32 @@ def select_member(ds: xr.Dataset, key: int | str) -> xr.Dataset:
                           + (f": {msg}" if msg else "") + "; choose another with --member")
     one = ds.isel({MEMBER_DIM: i})
     one = one.drop_vars([v for v in one.variables if v.startswith("member_") or v == MEMBER_DIM])
+    one = _with_member_scale(one, ds, i)
     one.attrs = dict(ds.attrs, member_index=i, member_label=member_labels(ds)[i],
                      member_settings=_member_settings(ds, i))
     return one
+
+
+def _scale_columns(ds: xr.Dataset) -> dict[str, int]:
+    """reaction id -> column of member_table for the ``scale.<reaction id>`` columns."""
+    if "member_table" not in ds.variables:
+        return {}
+    return {str(f)[6:]: j for j, f in enumerate(ds["factor"].values) if str(f).startswith("scale.")}
+
+
+def _with_member_scale(one: xr.Dataset, ds: xr.Dataset, i: int) -> xr.Dataset:
+    """The member's total [scale] factor per reaction: the file's rate_scale_factor (the scenario's
+    own [scale]) times the member's ``scale.<id>`` factors (contract: multiplied onto [scale])."""
+    cols = _scale_columns(ds)
+    if "rate_scale_factor" not in one.variables or not cols:
+        return one
+    factor = one["rate_scale_factor"].values.astype(float).copy()
+    ids = [str(r) for r in one["reaction"].values]
+    table = ds["member_table"].values[i]
+    for rid, j in cols.items():
+        if rid in ids:
+            factor[ids.index(rid)] *= float(table[j])
+    return one.assign_coords(rate_scale_factor=("reaction", factor, one["rate_scale_factor"].attrs))
 
 
 def _member_settings(ds: xr.Dataset, i: int) -> str:
@@ -195,6 +218,16 @@ def members_dataset(runs: Sequence[xr.Dataset | None], table: Mapping[str, Seque
     out["member_message"] = (MEMBER_DIM, np.array(msgs, dtype=object), {"long_name": "member message"})
     out["member_failure_time"] = (MEMBER_DIM, np.full(m, np.nan), {
         "units": "s", "long_name": "time of failure since the run start (NaN when none)"})
+    # rate_scale_factor of a member file is the scenario's own [scale]; the template run had its
+    # member's scale.<id> factors multiplied in, which are taken out again here
+    if "rate_scale_factor" in out.variables:
+        base_scale = out["rate_scale_factor"].values.astype(float).copy()
+        ids = [str(r) for r in out["reaction"].values]
+        first = runs.index(template)
+        for key, vals in numeric.items():
+            if key.startswith("scale.") and key[6:] in ids and float(vals[first]) != 0:
+                base_scale[ids.index(key[6:])] /= float(vals[first])
+        out = out.assign_coords(rate_scale_factor=("reaction", base_scale, out["rate_scale_factor"].attrs))
     out.attrs = dict(template.attrs, boxchem_result_kind="members")
     return out
 
@@ -251,7 +284,8 @@ def rows_across_members(ds: xr.Dataset, make_rows, *, key_fields=("section", "pe
 
     Rows are matched by ``key_fields``; each numeric field becomes the median
     over members, with ``FIELD_p05`` and ``FIELD_p95`` beside it and
-    ``n_members`` the count.  Text fields keep the first member's value.
+    ``n_members`` the count.  Text fields keep the members' common value, or
+    say "(differs between members)".
     The loop runs once per member over reductions already made (a table of
     rows), not inside a computation over time.
     """
@@ -263,10 +297,12 @@ def rows_across_members(ds: xr.Dataset, make_rows, *, key_fields=("section", "pe
     for rows in per_member:
         for row in rows:
             key = tuple(row.get(k) for k in key_fields)
-            order.setdefault(key, dict(row))
+            first = order.setdefault(key, dict(row))
             for f, v in row.items():
                 if isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool):
                     values.setdefault(key, {}).setdefault(f, []).append(float(v))
+                elif first.get(f) != v:
+                    first[f] = "(differs between members)"
     out = []
     for key, first in order.items():
         row = dict(first)

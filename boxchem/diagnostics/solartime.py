@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-__all__ = ["box_longitude", "local_shift", "format_time", "TIME_BASES"]
+__all__ = ["scenario_location", "box_longitude", "local_shift", "format_time", "TIME_BASES"]
 
 #: what a user can ask for as the clock of days and day plots
 TIME_BASES = ("utc", "local")
@@ -23,8 +23,26 @@ def box_longitude(ds: xr.Dataset) -> float | None:
         v = v[np.isfinite(v)]
         if v.size:
             return float(v[0])
-    lon = ds.attrs.get("longitude")
-    return None if lon is None else float(lon)
+    lon = ds.attrs.get("longitude", scenario_location(ds).get("longitude"))
+    try:
+        return None if lon is None else float(lon)
+    except (TypeError, ValueError):
+        return None
+
+
+def scenario_location(ds: xr.Dataset) -> dict:
+    """[location] of the scenario text recorded in the file (the run's own input), or {}."""
+    text = ds.attrs.get("scenario")
+    if not isinstance(text, str) or "[location]" not in text:
+        return {}
+    import tomllib
+    try:
+        return dict(tomllib.loads(text).get("location", {}))
+    except tomllib.TOMLDecodeError:
+        return {}
+
+
+
 
 
 def local_shift(longitude: float | None) -> np.timedelta64:

@@ -16,7 +16,7 @@ import xarray as xr
 from .members import is_members, member_overview, successful_members, summarize_members
 from .ozone_loss import accumulated_loss, daily_loss, has_total_loss
 from .result import ResultError
-from .solartime import box_longitude, format_time
+from .solartime import box_longitude, format_time, scenario_location
 
 __all__ = ["summarize", "format_summary", "summarize_across_members", "format_member_summary",
            "describe_conditions", "scenario_name", "ACTIVATED_FRACTION", "DEACTIVATED_FRACTION"]
@@ -43,7 +43,12 @@ def _first_value(ds: xr.Dataset, name: str):
         v = v[np.isfinite(v)]
         return float(v[0]) if v.size else None
     value = ds.attrs.get(name)
-    return None if value is None else float(value)
+    if value is None and name in ("latitude", "longitude"):
+        value = scenario_location(ds).get(name)   # member files may not save the position series
+    try:
+        return None if value is None else float(value)
+    except (TypeError, ValueError):
+        return None
 
 
 def scenario_name(ds: xr.Dataset) -> str:
@@ -197,7 +202,8 @@ def format_summary(s: dict, *, scenario: str = "", wall_s: float | None = None, 
         lines.append(f"Odd-oxygen loss by the listed cycles: {s['cycle_loss_percent']:.0f} % of the initial O3 "
                      "(the total and the unattributed remainder need reaction_rate, not saved in this file).")
     if s["peak_day"] is not None:
-        lines.append(f"Fastest loss on {_day(s['peak_day'])} ({s.get('day_definition', 'UTC')} day): "
+        kind = "UTC" if s.get("day_definition", "UTC") == "UTC" else "local solar"
+        lines.append(f"Fastest loss on {_day(s['peak_day'])} ({kind} day): "
                      f"{s['peak_day_loss_percent']:.2f} % of the initial O3 ({_ppb(s['peak_day_loss_x'])}) in one day.")
     lines += ["", "Accumulated loss by catalytic cycle:",
               f"  {'cycle':14s} {'loss':>12s} {'share':>7s}"]
