@@ -22,7 +22,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 import xarray as xr
 
-from ..errors import BoxchemError
+from .result import ResultError
 
 __all__ = ["MEMBER_DIM", "STATUS_PENDING", "STATUS_SUCCESS", "STATUS_FAILED", "is_members",
            "member_labels", "member_index", "select_member", "successful_members",
@@ -38,7 +38,7 @@ DEFAULT_MEMBER_VARIABLES = ("mole_fraction", "family_number_density", "cycle_rat
                             "pressure", "air_number_density", "solar_zenith_angle")
 
 
-class MemberError(BoxchemError):
+class MemberError(ResultError):
     """A member that does not exist or did not succeed was asked for."""
 
 
