@@ -16,22 +16,61 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
-__all__ = ["write_dataset", "open_result", "netcdf_encoding"]
+__all__ = ["write_dataset", "open_result", "netcdf_encoding", "with_cf_attributes"]
 
 _COMPRESSION = {"zlib": True, "complevel": 4, "shuffle": True}
 
 
+#: long names of coordinates that may come without one (CF 1.10 recommends long_name or
+#: standard_name on every variable; the compliance checker reports coordinates without)
+_COORDINATE_LONG_NAMES = {
+    "member": "member index", "member_label": "member label", "factor": "member-table column name",
+    "text_factor": "non-numeric member-table column name", "species": "species name as in the mechanism",
+    "reaction": "reaction id as in the mechanism", "family": "species family name as in the mechanism",
+    "cycle": "catalytic cycle name as in the mechanism", "time": "time (UTC)",
+    "elapsed_time": "time since the start of the run",
+}
+
+
+def with_cf_attributes(ds: xr.Dataset) -> xr.Dataset:
+    """The CF 1.10 attributes every file needs, added where missing (a shallow copy).
+
+    * ``altitude`` (vertical coordinate): ``positive = "up"``, ``axis = "Z"`` (CF 4.3);
+    * every coordinate has a ``long_name``;
+    * ``Conventions = "CF-1.10"``.
+    Used by :func:`write_dataset` for run and member files alike (docs/output-format.md).
+    """
+    out = ds.copy(deep=False)
+    if "altitude" in out.variables:
+        out["altitude"].attrs.setdefault("positive", "up")
+        out["altitude"].attrs.setdefault("axis", "Z")
+    for name in out.coords:
+        attrs = out[name].attrs
+        if "long_name" not in attrs and "standard_name" not in attrs:
+            attrs["long_name"] = _COORDINATE_LONG_NAMES.get(str(name), str(name).replace("_", " "))
+    out.attrs.setdefault("Conventions", "CF-1.10")
+    return out
+
+
 def netcdf_encoding(ds: xr.Dataset) -> dict[str, dict]:
-    """Per-variable encoding: compression for float data, CF time units for time."""
+    """Per-variable encoding: compression for float data, CF time units for time.
+
+    Coordinates get no ``_FillValue`` (CF 2.5.1 forbids it on coordinate
+    variables; xarray adds one to float and time variables by default).
+    """
     encoding: dict[str, dict] = {}
+    coords = set(ds.coords)
     for name, var in ds.variables.items():
         if np.issubdtype(var.dtype, np.floating) and var.ndim > 0:
             encoding[name] = dict(_COMPRESSION)
+        if name in coords:
+            encoding.setdefault(name, {})["_FillValue"] = None
         if np.issubdtype(var.dtype, np.datetime64):
             first = np.datetime_as_string(var.values.ravel()[0], unit="s") if var.size else \
                 "1970-01-01T00:00:00"
             encoding[name] = {"units": f"seconds since {first.replace('T', ' ')}",
-                              "calendar": "proleptic_gregorian", "dtype": "float64"}
+                              "calendar": "proleptic_gregorian", "dtype": "float64",
+                              **({"_FillValue": None} if name in coords else {})}
     return encoding
 
 
@@ -50,6 +89,7 @@ def write_dataset(ds: xr.Dataset, path: str | Path) -> Path:
     os.close(fd)
     tmp = Path(tmp_name)
     try:
+        ds = with_cf_attributes(ds)
         ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=netcdf_encoding(ds))
         os.chmod(tmp, 0o666 & ~_current_umask())  # mkstemp creates 0600; use the usual mode
         os.replace(tmp, path)
