@@ -10,7 +10,7 @@ EXAMPLE = """examples:
   boxchem budget out.nc                         # Ox budget over the whole run
   boxchem budget out.nc --family Ox --period daily --format csv > daily.csv
   boxchem budget out.nc --species ClO --top 5   # one species
-  boxchem budget out.nc --period daily --days-in local   # days from local solar midnight
+  boxchem budget out.nc --period daily --clock local   # days from local solar midnight
   boxchem budget sweep.nc                       # a member file: median [5 %, 95 %] across members
   boxchem budget sweep.nc --member 2            # one member (index or label)
 
@@ -32,7 +32,7 @@ def register(subparsers) -> None:
     who.add_argument("--species", default=None, help="budget one species instead of a family (default: none, the family)")
     p.add_argument("--period", choices=("total", "daily", "all"), default="total",
                    help="whole run, per day, or both (default total)")
-    p.add_argument("--days-in", choices=("utc", "local"), default="utc", dest="days_in",
+    p.add_argument("--clock", choices=("utc", "local"), default="utc", dest="clock",
                    help="daily periods from UTC midnight or from local mean solar midnight at the box "
                         "(default utc)")
     p.add_argument("--top", type=int, default=8, metavar="N", help="terms per table (default 8)")
@@ -116,9 +116,9 @@ def run(args) -> int:
         names_or_error(ds, "family", [name], "family (--family)")
     if has_total_loss(ds):
         net_coefficients(ds, name)  # fails early, with the reason, if the run lacks stoichiometry
-    longitude = box_longitude(ds) if args.days_in == "local" else None
-    if args.days_in == "local" and longitude is None:
-        raise ResultError(f"--days-in local: {args.result} has no longitude of the box")
+    longitude = box_longitude(ds) if args.clock == "local" else None
+    if args.clock == "local" and longitude is None:
+        raise ResultError(f"--clock local: {args.result} has no longitude of the box")
 
     def make(one):
         return budget_records(one, name, top=args.top, period=args.period, basis=args.basis, longitude=longitude)

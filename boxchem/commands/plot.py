@@ -8,7 +8,7 @@ from ._table import DEFAULT_SPECIES, add_member_option
 EXAMPLE = """examples:
   boxchem plot out.nc                          # PNG figures into ./out-plots/
   boxchem plot out.nc -o figs --species O3 ClO BrO --log --format pdf
-  boxchem plot out.nc --time local             # diurnal figure and days in local solar time
+  boxchem plot out.nc --clock utc              # diurnal figure and days in UTC (default local solar)
   boxchem plot sweep.nc                        # member file: median and 5-95 % band across members
   boxchem plot sweep.nc --member 2             # one member, as a run
 
@@ -34,7 +34,7 @@ def register(subparsers) -> None:
                    help="species of the mixing-ratio figure (default: those of "
                         f"{' '.join(DEFAULT_SPECIES)} in the result)")
     p.add_argument("--log", action="store_true", help="mixing ratios on one logarithmic axis")
-    p.add_argument("--time", choices=("utc", "local"), default="local", dest="clock",
+    p.add_argument("--clock", choices=("utc", "local"), default="local", dest="clock",
                    help="clock of the diurnal figure and of the days of daily means: local mean solar "
                         "time at the box (default) or UTC")
     add_member_option(p)

@@ -11,9 +11,12 @@ EXAMPLE = """examples:
 
 KEY is section.key of the scenario file, scale.<reaction id> (a factor on the
 rate coefficient) or environment.temperature_offset (the scenario key: kelvin added to the
-scenario's temperature, replacing an offset the file sets).  The result has one dimension per varied key; a
-member that fails is recorded in member_status / member_error and the others
-complete (exit status 1 if any failed)."""
+scenario's temperature, replacing an offset the file sets).  Every value is
+checked before any member runs (an invalid one is an input error, exit status
+2).  The result has one dimension per varied key; a member that fails in the
+integration is recorded in member_status / member_error and the others
+complete (exit status 1 if any failed).  budget, plot, compare and summary
+read the file (per member with --member, or across members)."""
 
 
 def register(subparsers) -> None:
@@ -49,6 +52,7 @@ def run(args) -> int:
     failed = int(result.attrs.get("sweep_failed", 0))
     if not args.quiet:
         print(f"{out}: {result.attrs['sweep_members']} members, {failed} failed")
+        _print_members_table(result, out)
         if failed:
             status = result["member_status"].values.ravel()
             errors = result["member_error"].values.ravel()
@@ -59,14 +63,28 @@ def run(args) -> int:
     return 1 if failed else 0
 
 
+def _print_members_table(result, out) -> None:
+    """What the sweep produced: members, their settings and status, median and range (diagnostics)."""
+    from ..diagnostics.members import from_sweep_layout
+    from ..diagnostics.result import ResultError
+    from ..diagnostics.summary import format_member_summary, summarize_across_members
+    try:
+        members = from_sweep_layout(result.assign_attrs(source_file=str(out)))
+        print(format_member_summary(summarize_across_members(members), source=str(out)), end="")
+    except ResultError as exc:     # e.g. a sweep of start dates (elapsed time): no common time axis
+        print(f"(no members table: {exc})")
+
+
 def check_vary(scenario: str, vary) -> None:
-    """Refuse unknown keys, reaction ids and species before any member runs (exit status 2).
+    """Refuse unknown keys, reaction ids, species and invalid values before any member runs (exit 2).
 
     A typo in a key (``location.latitud``, ``scale.clo_clo_mm``,
-    ``initial.ClONo2``) would make every member fail after all of them were
-    started; it is an input error naming the --vary item instead.  Values are
-    still checked per member (a member with an invalid value is recorded as
-    failed and the others complete, as the help says).
+    ``initial.ClONo2``) or an impossible value (``location.latitude=-95``)
+    would make members fail after all of them were started; it is an input
+    error naming the --vary item instead.  Each value is applied alone to the
+    scenario, which validates it as a run would (no integration).  Members
+    can still fail in the integration; those are recorded as failed and the
+    others complete.
     """
     import difflib
 
@@ -92,3 +110,21 @@ def check_vary(scenario: str, vary) -> None:
             base.with_overrides(scale={name: 1.0}, origins=origins)
         else:
             base.with_overrides(initial={name: "0 ppbv"}, origins=origins)
+    check_vary_values(scenario, vary)
+
+
+def check_vary_values(scenario: str, vary) -> None:
+    """Apply every --vary value alone to the scenario (validation only, no run); errors name it."""
+    from ..analysis.sweep import vary_label
+    from ..scenario import load_scenario
+    base = load_scenario(scenario)
+    for key, values in vary.items():
+        section, name = key.split(".", 1)
+        for value in values:
+            origins = {key: vary_label(key, value)}
+            if section == "scale":
+                base.with_overrides(scale={name: value}, origins=origins)
+            elif section == "initial":
+                base.with_overrides(initial={name: value}, origins=origins)
+            else:
+                base.with_overrides(origins=origins, **{key: value})
