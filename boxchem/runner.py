@@ -417,6 +417,11 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
     setup = prepare(scenario)
     bar = None
     if progress is True:
+        from .warmup import cold_start_note
+        note = cold_start_note()
+        if note:
+            import sys
+            print(note, file=sys.stderr)
         bar = ProgressBar(scenario.duration_s)
         callback = bar
     else:

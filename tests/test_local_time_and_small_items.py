@@ -96,3 +96,17 @@ def test_heartbeat_when_not_a_terminal():
 def test_demo_takes_a_scenario_name(tmp_path, capsys):
     assert main(["demo", str(tmp_path / "d"), "--scenario", "no-such-scenario", "--quiet"]) == 2
     assert "no-such-scenario" in capsys.readouterr().err
+
+
+def test_compile_command_and_cold_cache_detection(tmp_path, monkeypatch, capsys):
+    from boxchem.warmup import cold_start_note, kernels_cached
+    assert main(["compile"]) == 0
+    out = capsys.readouterr().out
+    assert "compiled and cached" in out or "numpy path" in out
+    monkeypatch.setenv("NUMBA_CACHE_DIR", str(tmp_path))          # an empty cache: a fresh install
+    monkeypatch.delenv("BOXCHEM_JIT", raising=False)
+    from boxchem.solver.compiled import jit_available
+    if jit_available():
+        assert not kernels_cached() and "boxchem compile" in cold_start_note()
+    (tmp_path / "x.nbi").write_bytes(b"")
+    assert kernels_cached() and cold_start_note() == ""
