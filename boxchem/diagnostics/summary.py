@@ -265,7 +265,8 @@ def summarize_across_members(ds: xr.Dataset) -> dict:
             quantities.append(("total Ox loss", "% of initial O3", acc.sel(term="total")))
         else:
             quantities.append(("Ox loss by the listed cycles", "% of initial O3", acc.sum("term", skipna=False)))
-        quantities += [(f"loss by {t}", "% of initial O3", acc.sel(term=t)) for t in terms if t != "total"]
+        quantities += [(f"loss by {t}" if t != "unattributed" else "unattributed loss", "% of initial O3",
+                        acc.sel(term=t)) for t in terms if t != "total"]
     for name, units, da in quantities:
         s = summarize_members(da.where(xr.DataArray(ok, dims="member")))
         out["quantities"].append((name, units, float(s["p05"]), float(s["median"]), float(s["p95"])))

@@ -37,7 +37,7 @@ def with_cf_attributes(ds: xr.Dataset) -> xr.Dataset:
 
     * ``altitude`` (vertical coordinate): ``positive = "up"``, ``axis = "Z"`` (CF 4.3);
     * every coordinate has a ``long_name``;
-    * ``Conventions = "CF-1.10"``.
+    * ``Conventions = "CF-1.10"`` and a ``history`` line (CF 2.6.2) when missing.
     Used by :func:`write_dataset` for run and member files alike (docs/output-format.md).
     """
     out = ds.copy(deep=False)
@@ -49,6 +49,10 @@ def with_cf_attributes(ds: xr.Dataset) -> xr.Dataset:
         if "long_name" not in attrs and "standard_name" not in attrs:
             attrs["long_name"] = _COORDINATE_LONG_NAMES.get(str(name), str(name).replace("_", " "))
     out.attrs.setdefault("Conventions", "CF-1.10")
+    if not out.attrs.get("history"):       # CF 2.6.2; combining member runs can drop it
+        import datetime as _dt
+        now = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+        out.attrs["history"] = f"{now}: written by boxchem"
     return out
 
 
