@@ -205,7 +205,7 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         "cycle_family": ("cycle", np.array([c.family for c in mechanism.cycles], dtype=object),
                          {"long_name": "family destroyed by the cycle"}),
         "altitude": ((), float(np.asarray(environment_state.altitude).ravel()[0]),
-                     {"units": "m", "standard_name": "altitude",
+                     {"units": "m", "standard_name": "altitude", "positive": "up", "axis": "Z",
                       "long_name": "geometric altitude of the box at the start"}),
     }
     for name, values in _species_attrs(mechanism).items():
