@@ -354,7 +354,7 @@ def plot_ozone_loss(ds: xr.Dataset, family: str = "Ox", clock: str = "local"):
     final = acc["loss_percent"].isel(time=-1)
     run_loss = float(final.sel(term="total")) if with_total else float(final.sum("term"))
     below_floor = abs(run_loss) < LOSS_FLOOR_PERCENT
-    fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(9, 7.8), sharex=True, constrained_layout=True)
+    fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(11, 7.8), sharex=True, constrained_layout=True)
     long_run = _run_days(ds) > LONG_RUN_DAYS
     air = ds["air_number_density"]
     if long_run:
@@ -396,10 +396,11 @@ def plot_ozone_loss(ds: xr.Dataset, family: str = "Ox", clock: str = "local"):
                         edgecolor=OTHER_GREY, hatch="////", linewidth=0, zorder=0)
         ax1.plot([], [], color=OTHER_GREY, linewidth=6, alpha=0.4, label="partial day (hatched)")
     ax1.set_ylabel(rate_label)
+    _clip_start_transient(ax1, rate, with_total, below_floor)
     basis = acc.attrs["basis"]
     ax1.set_title(f"Ozone loss rate by catalytic cycle\n{_BASIS_TEXT.get(basis, basis)} ({basis} basis)",
                   loc="left", fontsize=9.5)
-    ax1.legend(frameon=False, fontsize=8, ncol=2, loc="upper left")
+    ax1.legend(frameon=False, fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0))
     _style(ax1)
 
     t = ds["time"].values
@@ -413,7 +414,7 @@ def plot_ozone_loss(ds: xr.Dataset, family: str = "Ox", clock: str = "local"):
         ax2.plot(t, zero(pct.sel(term="total").values), color="black", linewidth=1.6, label="total")
         ax2.plot(t, zero(pct.sel(term="unattributed").values), color="black", linewidth=1.0, linestyle="--",
                  label="unattributed")
-        ax2.legend(frameon=False, fontsize=8, loc="upper left")
+        ax2.legend(frameon=False, fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0))
     ax2.set_ylabel("accumulated loss [% of initial O$_3$]")
     ax2.set_title("Accumulated ozone loss by cycle", loc="left", fontsize=9.5)
     if below_floor:
@@ -427,6 +428,26 @@ def plot_ozone_loss(ds: xr.Dataset, family: str = "Ox", clock: str = "local"):
     _time_axis(ax2)
     _finish(fig, ds, "Ozone loss by catalytic cycle")
     return fig
+
+
+def _clip_start_transient(ax, rate: xr.DataArray, with_total: bool, below_floor: bool) -> None:
+    """Keep the first output times' adjustment of the initial state from setting the y scale.
+
+    The lower limit is the 2nd percentile of the total/remainder (not their
+    minimum, which is often the first instant); a clipped value is said so.
+    """
+    if below_floor or not with_total:
+        return
+    lines = np.concatenate([rate.sel(term=t).values for t in ("total", "unattributed")])
+    lines = lines[np.isfinite(lines)]
+    if lines.size < 10:
+        return
+    bottom, lowest = min(0.0, float(np.percentile(lines, 2))), float(lines.min())
+    top = ax.get_ylim()[1]
+    if lowest < bottom - 0.2 * (top - bottom):
+        ax.set_ylim(bottom - 0.05 * (top - bottom), top)
+        ax.text(1.0, 1.01, f"off scale below: minimum {lowest:.3g}\n(at the start, as the initial state adjusts)",
+                transform=ax.transAxes, ha="right", va="bottom", fontsize=7.5, color="#555555")
 
 
 def accumulated_loss_rates(ds: xr.Dataset, family: str, with_total: bool) -> xr.DataArray:
@@ -494,7 +515,7 @@ def plot_conditions(ds: xr.Dataset):
             for name, label, colour in areas:
                 ax.plot(t, ds[name].values * 1e8, color=colour, linewidth=1.4, label=label)
             ax.set_ylabel("surface area\n[$\\mu$m$^2$ cm$^{-3}$]")
-            ax.legend(frameon=False, fontsize=7.5, loc="upper right")
+            ax.legend(frameon=False, fontsize=7.5, loc="upper left", bbox_to_anchor=(1.0, 1.0))
         _style(ax)
         _time_axis(ax)
     _finish(fig, ds, "Conditions of the box")
@@ -676,8 +697,9 @@ def plot_comparison(base: xr.Dataset, other: xr.Dataset, family: str = "Ox",
         ax.xaxis.get_offset_text().set_visible(False)
 
     changed = changed_reactions(base, other)
-    rows = [r for r in rate_changes(base, other, top, family, touched_species(base, changed))
-            if r["section"] == "reaction_rate"]
+    all_rows = rate_changes(base, other, top, family, touched_species(base, changed))
+    rows = [r for r in all_rows if r["section"] == "reaction_rate"]
+    missing = [r["term"].split(":")[0] for r in all_rows if r["section"] == "note"]
     bar_names = [f"{r['term']} ({r['budget']})" for r in rows][::-1]
     effect = np.array([r["effect_percent"] for r in rows][::-1]) if rows else np.array([])
     colours = [OKABE_ITO["vermillion"] if c > 0 else OKABE_ITO["blue"] for c in effect]
@@ -690,8 +712,10 @@ def plot_comparison(base: xr.Dataset, other: xr.Dataset, family: str = "Ox",
     ax3.tick_params(axis="y", labelsize=8)
     _style(ax3)
     if not rows:
-        ax3.text(0.5, 0.5, "no reaction's effect changed\n(or the files have no reaction_rate)",
-                 transform=ax3.transAxes, ha="center")
+        ax3.text(0.5, 0.5, (f"{missing[0]}:\nno rate table" if missing else "no reaction's effect changed"),
+                 transform=ax3.transAxes, ha="center", va="center", fontsize=9)
+        ax3.set_xticks([])
+        ax3.set_yticks([])
     _finish(fig, base, f"{names[1]} against {names[0]}")
     return fig
 
