@@ -176,3 +176,19 @@ def test_todays_sweep_layout_reads_as_members():
     assert ds["member_status"].values.tolist() == [STATUS_SUCCESS, STATUS_FAILED]
     assert ds["member_label"].values.tolist() == ["location.latitude=-60.0", "location.latitude=-70.0"]
     assert ds["stoichiometry"].dims == ("species", "reaction")
+
+
+def test_compare_sets_the_change_beside_the_spread(files, capsys):
+    other = files["dir"] / "other.nc"
+    make_result(days=2.0, rate_scale={"j_dimer": 1.3}).to_netcdf(other)
+    assert main(["compare", str(files["base"]), str(other), "--spread", str(files["full"]),
+                 "--format", "csv"]) == 0
+    rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
+    dimer = [r for r in rows if r["section"] == "accumulated_loss" and r["term"] == "clo_dimer"][-1]
+    members = open_result(files["full"])
+    acc = members.boxchem.accumulated_loss()["loss_percent"].sel(term="clo_dimer").isel(time=-1).values
+    # half the 5-95 % range of the three members (numpy's linear quantiles; identity)
+    expected = 0.5 * (np.quantile(acc, 0.95) - np.quantile(acc, 0.05))
+    assert float(dimer["spread_points"]) == pytest.approx(expected, rel=1e-5)
+    assert main(["compare", str(files["base"]), str(other), "--spread", str(files["base"])]) == 2
+    assert "not a member file" in capsys.readouterr().err

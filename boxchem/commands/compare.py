@@ -13,6 +13,7 @@ EXAMPLE = """examples:
   boxchem compare base.nc faster_dimer.nc --at 2026-10-01 2026-09-15T12:00
   boxchem compare base.nc sweep.nc                  # every member of a sweep against BASE (median, range)
   boxchem compare base.nc sweep.nc --other-member 3 --format csv
+  boxchem compare base.nc mine.nc --at 2026-10-01 --spread base-uncertainty.nc
 
 First the reactions whose law, parameters or [scale] factor differ (read from
 the two files), and warnings when the runs differ in scenario, place or
@@ -45,6 +46,9 @@ def register(subparsers) -> None:
     add_member_option(p, "--other-member", "other_member",
                       "member of OTHER when it is a member file; without it every successful member is "
                       "compared with BASE and the table gives the median [5 %%, 95 %%]")
+    p.add_argument("--spread", default=None, metavar="MEMBERS.nc",
+                   help="a member file of BASE's uncertainty (e.g. an ensemble of perturbed rates): each "
+                        "change is set beside half the members' 5-95 %% range at the same time")
     p.add_argument("--plot", default=None, metavar="FILE", help="also write a figure (.png or .pdf)")
     p.add_argument("--format", choices=("text", "csv"), default="text", help="output format (default text)")
     p.set_defaults(func=run)
@@ -70,16 +74,24 @@ def render_text(rows: list[dict], base_name: str, other_name: str, heading: str 
     else:
         out.append("\nNo reaction differs in law, parameters or [scale] between the two files.")
     sp = [r for r in rows if r["section"] == "species"]
+    spread = any("spread_percent" in r or "spread_points" in r for r in rows)
     if sp:
-        out.append(format_table(["time (UTC)", "why", "species", "BASE [mol mol-1]", "OTHER [mol mol-1]", "change [%]"],
+        out.append(format_table(["time (UTC)", "why", "species", "BASE [mol mol-1]", "OTHER [mol mol-1]", "change [%]"]
+                                + (["spread [+-%]"] if spread else []),
                                 [[r["time"], r["note"], r["term"], _f(r, "base", ".4e"), _f(r, "other", ".4e"),
-                                  _f(r, "change_percent", "+.2f")] for r in sp], "\nSpecies"))
+                                  _f(r, "change_percent", "+.2f")] + ([_f(r, "spread_percent", ".2f")] if spread else [])
+                                 for r in sp], "\nSpecies"))
     lo = [r for r in rows if r["section"] == "accumulated_loss"]
     if lo:
-        out.append(format_table(["time (UTC)", "why", "cycle", "BASE [% O3]", "OTHER [% O3]", "change [points]"],
+        out.append(format_table(["time (UTC)", "why", "cycle", "BASE [% O3]", "OTHER [% O3]", "change [points]"]
+                                + (["spread [+-points]"] if spread else []),
                                 [[r["time"], r["note"], r["term"], _f(r, "base", ".3f"), _f(r, "other", ".3f"),
-                                  _f(r, "change_points", "+.3f")] for r in lo],
+                                  _f(r, "change_points", "+.3f")] + ([_f(r, "spread_points", ".3f")] if spread else [])
+                                 for r in lo],
                                 "\nAccumulated ozone loss by cycle (unattributed = total - cycles)"))
+    if spread:
+        out.append("  (spread: half the 5-95 % range of the --spread members at the same time; a change smaller "
+                   "than it is within that uncertainty)")
     rr = [r for r in rows if r["section"] == "reaction_rate"]
     if rr:
         out.append(format_table(["reaction", "equation", "BASE [cm-3 s-1]", "OTHER [cm-3 s-1]", "rate change [%]",
@@ -96,7 +108,7 @@ def render_text(rows: list[dict], base_name: str, other_name: str, heading: str 
 
 def render_csv(rows: list[dict]) -> str:
     fields = ["section", "time", "note", "term", "equation", "how", "base", "other", "change_percent",
-              "change_points", "effect_percent", "budget", "units"]
+              "change_points", "effect_percent", "budget", "spread_percent", "spread_points", "units"]
     extra = sorted({k for r in rows for k in r if k.endswith(("_p05", "_p95")) or k == "n_members"})
     return csv_text(rows, fields + extra)
 
@@ -137,6 +149,12 @@ def run(args) -> int:
             heading = f"OTHER member {other.attrs['member_index']} ({other.attrs['member_label']})"
         rows = make(other)
         plot_other = other
+    if args.spread:
+        from ..diagnostics.comparison import spread_beside
+        spread_file = open_result(args.spread)
+        if not is_members(spread_file):
+            raise ResultError(f"--spread {args.spread}: not a member file (it needs a member dimension)")
+        rows = spread_beside(rows, spread_file, args.family)
     print(render_csv(rows) if args.format == "csv" else render_text(rows, args.base, args.other, heading),
           end="\n" if args.format == "text" else "")
     if args.plot:

@@ -29,7 +29,7 @@ from .result import ResultError, family_weights, is_family, names_or_error, stoi
 
 __all__ = ["DEFAULT_SPECIES", "pick_time", "run_differences", "changed_reactions",
            "largest_difference_time", "largest_difference_time_members", "species_changes", "loss_changes", "rate_changes",
-           "compare_results", "percent_change", "touched_species", "reverse_pairs"]
+           "compare_results", "spread_beside", "percent_change", "touched_species", "reverse_pairs"]
 
 DEFAULT_SPECIES = ("O3", "ClO", "Cl2O2", "HCl", "ClONO2", "HOCl", "BrO", "NO2", "HNO3")
 #: relative tolerance for "same temperature / air density / k" in the fallback test
@@ -312,6 +312,36 @@ def rate_changes(base: xr.Dataset, other: xr.Dataset, top: int, family: str = "O
                      "effect_percent": float(effect[best[k], k]), "budget": budgets[best[k]],
                      "units": "cm-3 s-1"})
     return rows
+
+
+def spread_beside(rows: list[dict], members: xr.Dataset, family: str = "Ox") -> list[dict]:
+    """Set the change beside the spread of a member file (e.g. an uncertainty ensemble of BASE).
+
+    For every species row and accumulated-loss row, adds ``spread_percent``
+    (species: half the 5-95 % range of the members in % of their median) or
+    ``spread_points`` (loss: half the 5-95 % range in % points), at the same time.
+    """
+    from .members import successful_members
+    ok = xr.DataArray(successful_members(members), dims="member")
+    x = members["mole_fraction"].where(ok)
+    acc = None
+    if "cycle_rate" in members.variables:
+        acc = accumulated_loss(members, family, cycles_only=not has_total_loss(members))["loss_percent"].where(ok)
+    out = []
+    for r in rows:
+        r = dict(r)
+        if r["section"] in ("species", "accumulated_loss"):
+            t = pick_time(members, np.datetime64(r["time"]), "--spread")
+            if r["section"] == "species" and r["term"] in set(members["species"].values.tolist()):
+                v = x.sel(species=r["term"], time=t)
+                lo, med, hi = (float(q) for q in v.quantile([0.05, 0.5, 0.95], dim="member", skipna=True))
+                r["spread_percent"] = 50.0 * (hi - lo) / med if med else float("nan")
+            elif r["section"] == "accumulated_loss" and acc is not None and r["term"] in set(acc["term"].values.tolist()):
+                v = acc.sel(term=r["term"], time=t)
+                lo, hi = (float(q) for q in v.quantile([0.05, 0.95], dim="member", skipna=True))
+                r["spread_points"] = 0.5 * (hi - lo)
+        out.append(r)
+    return out
 
 
 def touched_species(base: xr.Dataset, changed: list[dict]) -> tuple[str, ...]:
