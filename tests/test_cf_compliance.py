@@ -1,4 +1,4 @@
-"""Run and member files pass the CF 1.10 check of the IOOS compliance checker with zero errors.
+"""Run, member and sweep files pass the CF 1.10 check of the IOOS compliance checker with zero errors.
 
 The checker (package ``compliance-checker`` from PyPI, in the test extra) is
 the reference: its high-priority results are errors.  Medium-priority
@@ -45,12 +45,17 @@ def runs():
     return [boxchem.run("polar-spring", **short), boxchem.run("polar-spring", scale={"clo_clo_m": 1.2}, **short)]
 
 
-@pytest.mark.parametrize("kind", ["run", "members"])
+@pytest.mark.parametrize("kind", ["run", "members", "members-all-variables", "sweep"])
 def test_zero_cf_errors(runs, tmp_path, kind):
     if kind == "run":
         path = write_dataset(runs[0], tmp_path / "run.nc")
-    else:
-        ds = members_dataset(runs, {"scale.clo_clo_m": [1.0, 1.2]}, labels=["base", "faster dimer"])
+    elif kind == "sweep":   # today's boxchem sweep layout (a dimension per varied key)
+        from boxchem.analysis.sweep import combine_members
+        ds = combine_members(["scale.clo_clo_m"], [[1.0, 1.2]], [(True, r) for r in runs], "polar-spring")
+        path = write_dataset(ds, tmp_path / "sweep.nc")
+    else:   # the default selection of variables, or all of a run's (position series included)
+        ds = members_dataset(runs, {"scale.clo_clo_m": [1.0, 1.2]}, labels=["base", "faster dimer"],
+                             **({"variables": None} if kind == "members-all-variables" else {}))
         path = write_dataset(ds, tmp_path / "members.nc")
     report = _cf_report(path, tmp_path)
     assert _failures(report["high_priorities"]) == []

@@ -99,6 +99,8 @@ def summarize(ds: xr.Dataset) -> dict:
     if is_members(ds):
         raise ResultError("summarize() takes one run; select a member (--member, "
                           "boxchem.diagnostics.members.select_member) or use summarize_across_members")
+    from .result import names_or_error
+    names_or_error(ds, "species", ["O3"], "species for the ozone summary")
     times = ds["time"].values
     species = [str(s) for s in ds["species"].values]
     o3 = ds["mole_fraction"].sel(species="O3").values
@@ -254,6 +256,8 @@ def summarize_across_members(ds: xr.Dataset) -> dict:
            "conditions": describe_conditions(ds)}
     if not ok.any():
         return out
+    from .result import names_or_error
+    names_or_error(ds, "species", ["O3"], "species for the ozone summary")
     o3 = ds["mole_fraction"].sel(species="O3")
     quantities = [("O3 at the end", "ppmv", o3.isel(time=-1) * 1e6),
                   ("O3 minimum", "ppmv", o3.min("time", skipna=False) * 1e6)]

@@ -37,10 +37,18 @@ def with_cf_attributes(ds: xr.Dataset) -> xr.Dataset:
 
     * ``altitude`` (vertical coordinate): ``positive = "up"``, ``axis = "Z"`` (CF 4.3);
     * every coordinate has a ``long_name``;
+    * in member/sweep files, ``latitude``/``longitude`` (varying along members)
+      become auxiliary coordinates, so the data are linked to them (CF 5.6);
     * ``Conventions = "CF-1.10"`` and a ``history`` line (CF 2.6.2) when missing.
     Used by :func:`write_dataset` for run and member files alike (docs/output-format.md).
     """
     out = ds.copy(deep=False)
+    # In member and sweep files the box position varies along member dimensions too; CF 5.6
+    # wants the data linked to latitude/longitude, which xarray does (a `coordinates`
+    # attribute on every variable that shares their dimensions) once they are coordinates.
+    position = [v for v in ("latitude", "longitude") if v in out.data_vars and out[v].ndim > 1]
+    if position:
+        out = out.set_coords(position)
     if "altitude" in out.variables:
         out["altitude"].attrs.setdefault("positive", "up")
         out["altitude"].attrs.setdefault("axis", "Z")
