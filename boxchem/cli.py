@@ -15,8 +15,8 @@ from . import __version__
 from .errors import BoxchemError
 
 #: sub-command modules, in the order ``boxchem --help`` lists them
-COMMANDS = ("check", "rates", "run", "rerun", "jvalues", "budget", "compare", "sweep", "ensemble", "sensitivity",
-            "uncertainty", "plot", "demo")
+COMMANDS = ("check", "rates", "run", "rerun", "jvalues", "budget", "compare", "summary", "sweep", "ensemble",
+            "sensitivity", "uncertainty", "plot", "demo", "compile")
 
 
 def build_parser() -> argparse.ArgumentParser:

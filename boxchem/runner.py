@@ -22,13 +22,14 @@ import numpy as np
 import xarray as xr
 
 from . import __version__
+from .diagnostics.cycles import cycle_description
 from .diagnostics import (cycle_coefficient_matrix, cycle_rate, family_number_density,
                           family_weight_matrix, net_stoichiometry_matrix)
 from .errors import IntegrationError, ScenarioError
 from .scenario import Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
 
 __all__ = ["run", "prepare", "integrate", "RunSetup", "initial_state", "build_environment",
-           "assemble_dataset", "derived_outputs", "species_number_density", "solver_options",
+           "assemble_dataset", "derived_outputs", "species_number_density", "solver_options", "reaction_definition",
            "COUNTER_NAMES", "CF_MOLE_FRACTION_NAMES"]
 
 #: work counters the integrator reports (DEVELOPERS.md, "Solver")
@@ -132,6 +133,17 @@ def build_environment(scenario: Scenario):
 # ---------------------------------------------------------------------------
 # the Dataset of the output contract
 # ---------------------------------------------------------------------------
+def reaction_definition(reaction) -> str:
+    """'arrhenius A=8e-12 E/R=2060.0 Tref=300.0 n=0.0': the law and its parameters as run.
+
+    Keys sorted, floats in their shortest exact form (repr), so two runs differ
+    in this text exactly when a parameter differs (read by ``boxchem compare``).
+    """
+    params = " ".join(f"{k}={v!r}" if isinstance(v, float) else f"{k}={v}"
+                      for k, v in sorted(reaction.parameters.items()))
+    return f"{reaction.law} {params}".strip()
+
+
 def _species_attrs(mechanism) -> dict[str, np.ndarray]:
     names = mechanism.species_names
     return {
@@ -206,10 +218,18 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         "rate_coefficient_units": ("reaction", np.array(
             [r.rate_coefficient_units for r in mechanism.reactions], dtype=object),
             {"long_name": "units of rate_coefficient for this reaction (molecule-based)"}),
+        "reaction_definition": ("reaction", np.array([reaction_definition(r) for r in mechanism.reactions],
+                                                      dtype=object),
+                                {"long_name": "rate law and its parameters as run (before [scale])"}),
+        "rate_scale_factor": ("reaction", np.array([float(scenario.scale.get(r, 1.0)) for r in reactions]),
+                              {"units": "1", "long_name": "factor of the scenario's [scale] on the "
+                               "rate coefficient"}),
+        "cycle_description": ("cycle", np.array([cycle_description(c, mechanism) for c in mechanism.cycles],
+                                                dtype=object), {"long_name": "readable label of the cycle"}),
         "cycle_family": ("cycle", np.array([c.family for c in mechanism.cycles], dtype=object),
                          {"long_name": "family destroyed by the cycle"}),
         "altitude": ((), float(np.asarray(environment_state.altitude).ravel()[0]),
-                     {"units": "m", "standard_name": "altitude",
+                     {"units": "m", "standard_name": "altitude", "positive": "up", "axis": "Z",
                       "long_name": "geometric altitude of the box at the start"}),
     }
     for name, values in _species_attrs(mechanism).items():
@@ -289,7 +309,8 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         "input_sources": _input_files_attribute(scenario, mechanism),
         "start_time": str(np.datetime_as_string(scenario.start, unit="s")) + "Z",
         "solver_rtol": scenario.rtol,
-        "solver_atol_cm-3": scenario.atol,
+        "solver_atol": scenario.atol,
+        "solver_atol_units": "cm-3",
         "solver_method": scenario.solver_method,
         "photolysis_method": scenario.photolysis_method,
         "albedo": scenario.albedo,
@@ -468,6 +489,11 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
     setup = prepare(scenario)
     bar = None
     if progress is True:
+        from .warmup import cold_start_note
+        note = cold_start_note()
+        if note:
+            import sys
+            print(note, file=sys.stderr)
         bar = ProgressBar(scenario.duration_s)
         callback = bar
     else:

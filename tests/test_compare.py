@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from boxchem.cli import main
-from boxchem.commands.compare import compare_results
+from boxchem.diagnostics.comparison import compare_results
 from conftest_diagnostics import make_result
 
 
@@ -44,12 +44,12 @@ def test_compare_cli_table_csv_and_plot(files, capsys, tmp_path):
     png = tmp_path / "cmp.png"
     assert main(["compare", str(files["base"]), str(files["other"]), "--plot", str(png)]) == 0
     text = capsys.readouterr().out
-    assert "Largest changes in time-mean reaction rates" in text and "j_dimer" in text
+    assert "Reactions whose net effect changed most" in text and "j_dimer" in text
     assert png.stat().st_size > 10_000
     assert main(["compare", str(files["base"]), str(files["other"]), "--format", "csv",
                  "--times", "2026-09-01T12:00"]) == 0
     rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
-    assert {r["section"] for r in rows} == {"species", "accumulated_loss", "reaction_rate"}
+    assert {r["section"] for r in rows} == {"changed_reaction", "species", "accumulated_loss", "reaction_rate"}
     assert all(r["time"] == "2026-09-01T12:00" for r in rows if r["section"] == "species")
 
 

@@ -28,7 +28,7 @@ def test_demo_writes_result_figures_and_summary(demo_dir):
         assert "O3" in ds["species"].values
     figures = sorted(p.name for p in demo_dir.glob("*.png"))
     assert figures == sorted(["mixing_ratios.png", "diurnal_clo_cl2o2.png", "ozone_loss.png",
-                              "chlorine_partitioning.png", "solar_zenith_angle.png"])
+                              "chlorine_partitioning.png", "conditions.png"])
     for name in figures:
         data = (demo_dir / name).read_bytes()
         assert data.startswith(PNG_MAGIC) and len(data) > 5000

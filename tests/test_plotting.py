@@ -21,7 +21,7 @@ def test_plot_all_writes_every_figure(tmp_path, days):
     paths, skipped = plot_all(make_result(days=days), tmp_path)
     assert skipped == []
     assert {p.stem for p in paths} == {"mixing_ratios", "diurnal_clo_cl2o2", "ozone_loss",
-                                       "chlorine_partitioning", "solar_zenith_angle"}
+                                       "chlorine_partitioning", "conditions"}
     for p in paths:
         assert p.stat().st_size > 10_000          # a real figure, not an empty canvas
         assert _drawn_fraction(p) > 0.02          # lines and areas were drawn

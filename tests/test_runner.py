@@ -99,7 +99,7 @@ def test_dataset_contract(chain):
     assert attrs["scenario"] == CHAIN.read_text()
     mech = load_scenario(CHAIN).mechanism
     assert attrs["mechanism_sha256"] == mech.text_sha256
-    assert attrs["solver_rtol"] == 1e-7 and attrs["solver_atol_cm-3"] == 1e-3
+    assert attrs["solver_rtol"] == 1e-7 and attrs["solver_atol"] == 1e-3 and attrs["solver_atol_units"] == "cm-3"
     assert attrs["scenario_overrides"] == '{"solver.rtol": "1e-07"}'
     assert attrs["integration_status"] == "success"
     for counter in ("steps", "rejected_steps", "rhs_evaluations", "jacobian_evaluations",

@@ -57,13 +57,18 @@ def test_real_sweep_of_shipped_scenario(tmp_path, capsys):
     from boxchem.cli import main
     from boxchem.io.memberfile import open_member_file
     out = tmp_path / "sweep.nc"
+    # an invalid value is refused before any member runs (exit 2), naming the --vary item
+    rc = main(["sweep", "stratosphere-box", "--vary", "location.latitude=-70,-95", "-o", str(out)])
+    assert rc == 2 and "--vary location.latitude=-95" in capsys.readouterr().err and not out.exists()
     rc = main(["sweep", "stratosphere-box", "--vary", "run.duration=6 h",
-               "--vary", "environment.temperature_offset=-2,2", "--vary", "location.latitude=-70,-95",
+               "--vary", "environment.temperature_offset=-2,2", "--vary", "location.latitude=-70",
                "-o", str(out), "--workers", "2", "--quiet"])
-    assert rc == 1  # latitude -95 is invalid: those members fail, the others complete
+    assert rc == 0
     ds = grid(open_member_file(out, load=True))
-    assert ds["member_status"].sel(location_latitude=-70.0).values.ravel().tolist() == [1, 1]
-    assert "latitude" in str(ds["member_message"].sel(location_latitude=-95.0).values.ravel()[0])
+    assert ds["member_status"].values.ravel().tolist() == [1, 1]
+    # the member file is read by the result commands
+    assert main(["budget", str(out), "--member", "1"]) == 0
+    assert "member 1" in capsys.readouterr().out
     t = ds["temperature"].sel(location_latitude=-70.0).isel(run_duration=0)
     # the offset is added to the scenario's temperature: members differ by exactly 4 K
     np.testing.assert_allclose((t.sel(environment_temperature_offset=2.0)

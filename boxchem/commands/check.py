@@ -94,6 +94,13 @@ def run(args) -> int:
     from ..mechanism import load_mechanism
     mechanism = load_mechanism(args.mechanism)
     from ..errors import SourceLocation, Problem
+    if not mechanism.reactions:
+        # an empty (or comment-only) file parses, but is no mechanism: nothing could run
+        what = "no species and no reactions" if not mechanism.species else "no reactions"
+        raise MechanismError([Problem(
+            f"the mechanism has {what}; a mechanism needs a [species] section and a [reactions] "
+            f"section with at least one reaction (see docs/mechanism-language.md)",
+            SourceLocation(str(mechanism.source or args.mechanism), 1))])
     from ..resources import resolve
     checking_shipped = _in_shipped_file(Problem("", SourceLocation(str(resolve(args.mechanism, "mechanisms")), 1)))
     # Warnings of an extended shipped mechanism (e.g. its source gases, never

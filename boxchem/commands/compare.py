@@ -1,174 +1,168 @@
-"""``boxchem compare BASE.nc OTHER.nc``: what changed between two runs."""
+"""``boxchem compare BASE.nc OTHER.nc``: what changed between two runs (and what caused it)."""
 from __future__ import annotations
 
 import argparse
 
-import numpy as np
-import xarray as xr
-
 from ._csv import csv_text
-from .budget import format_table
+from ._table import add_member_option, format_table, value_with_range
 
 EXAMPLE = """examples:
   boxchem run polar-spring -o base.nc
   boxchem run polar-spring --scale clo_clo_m=1.2 -o faster_dimer.nc
   boxchem compare base.nc faster_dimer.nc --plot compare.png
-  boxchem compare base.nc other.nc --times 2026-09-15 end --species O3 ClO --format csv
+  boxchem compare base.nc faster_dimer.nc --at 2026-10-01 2026-09-15T12:00
+  boxchem compare base.nc sweep.nc                  # every member of a sweep against BASE (median, range)
+  boxchem compare base.nc sweep.nc --other-member 3 --format csv
+  boxchem compare base.nc mine.nc --at 2026-10-01 --spread base-uncertainty.nc
 
-Shows species at the chosen times (nearest output time), the accumulated
-ozone loss by cycle at those times, and the reactions whose time-mean rates
-changed most.  Changes are OTHER relative to BASE."""
-
-DEFAULT_SPECIES = ("O3", "ClO", "Cl2O2", "HCl", "ClONO2", "HOCl", "BrO", "NO2", "HNO3")
+First the reactions whose law, parameters or [scale] factor differ (read from
+the two files), and warnings when the runs differ in scenario, place or
+period.  Then species and the accumulated ozone loss by cycle at the time of
+the largest O3 difference, at the end and at the --at dates (nearest output
+time), and the reactions whose net effect on the Ox budget (and on the
+budgets of the species the changed reactions touch) changed most, with
+reverse pairs netted (docs/diagnostics.md).  Changes are OTHER relative to BASE."""
 
 
 def register(subparsers) -> None:
     p = subparsers.add_parser(
-        "compare", help="compare two run results (species, ozone loss by cycle, reaction rates)",
-        description="Compare two boxchem results: species at chosen times, accumulated ozone loss "
-                    "by catalytic cycle, and the largest changes in reaction rates; as a table "
-                    "and optionally a plot.",
+        "compare", help="compare two results: what changed, when, by which cycle and reaction",
+        description="Compare two boxchem results: changed reactions, species and accumulated ozone "
+                    "loss by catalytic cycle at chosen times, and the reactions whose net effect "
+                    "changed most; as a table and optionally a plot.",
         epilog=EXAMPLE, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("base", metavar="BASE.nc", help="reference result")
     p.add_argument("other", metavar="OTHER.nc", help="result to compare with the reference")
-    p.add_argument("--times", nargs="+", default=["end"], metavar="TIME",
-                   help="UTC times (ISO, e.g. 2026-09-15T12:00), 'start' or 'end' (default end)")
+    p.add_argument("--at", nargs="+", default=[], metavar="TIME",
+                   help="further UTC dates/times (ISO, e.g. 2026-10-01 or 2026-09-15T12:00)")
+    p.add_argument("--times", nargs="+", default=None, metavar="TIME",
+                   help="replace the default times (largest O3 difference, end) by these "
+                        "(ISO, 'start' or 'end')")
     p.add_argument("--species", nargs="+", default=None, metavar="X",
-                   help=f"species to list (default those of {' '.join(DEFAULT_SPECIES)} present)")
+                   help="species to list (default those of O3 ClO Cl2O2 HCl ClONO2 HOCl BrO NO2 HNO3 present)")
     p.add_argument("--family", default="Ox", help="family whose loss is split by cycle (default Ox)")
     p.add_argument("--top", type=int, default=10, metavar="N", help="reaction-rate changes to list (default 10)")
+    add_member_option(p, "--base-member", "base_member", "member of BASE when it is a member file")
+    add_member_option(p, "--other-member", "other_member",
+                      "member of OTHER when it is a member file; without it every successful member is "
+                      "compared with BASE and the table gives the median [5 %%, 95 %%]")
+    p.add_argument("--spread", default=None, metavar="MEMBERS.nc",
+                   help="a member file of BASE's uncertainty (e.g. an ensemble of perturbed rates): each "
+                        "change is set beside half the members' 5-95 %% range at the same time")
     p.add_argument("--plot", default=None, metavar="FILE", help="also write a figure (.png or .pdf)")
     p.add_argument("--format", choices=("text", "csv"), default="text", help="output format (default text)")
     p.set_defaults(func=run)
 
 
-def _pick_time(ds: xr.Dataset, when: str, where: str) -> np.datetime64:
-    from ..diagnostics.result import ResultError
-    t = ds["time"].values
-    if when == "start":
-        return t[0]
-    if when == "end":
-        return t[-1]
-    try:
-        from ..timerange import check_utc_range
-        check_utc_range(np.datetime64(when.rstrip("Z"), "s"), where)   # never a wrapped time
-        value = np.datetime64(when.rstrip("Z"), "ns")
-    except ValueError:
-        raise ResultError(f"{where}: cannot read time {when!r}; write e.g. 2026-09-15T12:00, start or end") from None
-    if value < t[0] or value > t[-1]:
-        raise ResultError(f"{where}: time {when} is outside the run ({np.datetime_as_string(t[0], 's')} "
-                          f"to {np.datetime_as_string(t[-1], 's')})")
-    return t[int(np.argmin(np.abs(t - value)))]
+def _f(row, field, fmt):
+    return value_with_range(row, field, fmt) if field in row else ""
 
 
-def species_changes(base, other, times, species) -> list[dict]:
-    rows = []
-    for when in times:
-        tb, to = _pick_time(base, when, "--times (BASE)"), _pick_time(other, when, "--times (OTHER)")
-        for s in species:
-            xb = float(base["mole_fraction"].sel(species=s, time=tb))
-            xo = float(other["mole_fraction"].sel(species=s, time=to))
-            rows.append({"section": "species", "time": str(np.datetime_as_string(tb, "m")), "term": s,
-                         "base": xb, "other": xo, "change_percent": _percent(xo, xb), "units": "mol mol-1"})
-    return rows
-
-
-def _percent(new: float, old: float) -> float:
-    return 100.0 * (new - old) / old if old != 0 else (0.0 if new == 0 else np.inf)
-
-
-def loss_changes(base, other, times, family: str) -> list[dict]:
-    from ..diagnostics.ozone_loss import accumulated_loss
-    ab, ao = accumulated_loss(base, family), accumulated_loss(other, family)
-    terms = [str(t) for t in ab["term"].values if t in set(ao["term"].values.tolist())]
-    rows = []
-    for when in times:
-        tb, to = _pick_time(base, when, "--times (BASE)"), _pick_time(other, when, "--times (OTHER)")
-        for term in terms:
-            vb = float(ab["loss_percent"].sel(term=term, time=tb))
-            vo = float(ao["loss_percent"].sel(term=term, time=to))
-            rows.append({"section": "accumulated_loss", "time": str(np.datetime_as_string(tb, "m")),
-                         "term": term, "base": vb, "other": vo, "change_points": vo - vb,
-                         "units": "% of initial O3"})
-    return rows
-
-
-def rate_changes(base, other, top: int) -> list[dict]:
-    """Reactions whose time-mean rate changed most (absolute change), with the ratio."""
-    from ..diagnostics.budget import time_mean
-    common = [r for r in base["reaction"].values.tolist() if r in set(other["reaction"].values.tolist())]
-    mb = time_mean(base["reaction_rate"].sel(reaction=common))
-    mo = time_mean(other["reaction_rate"].sel(reaction=common))
-    diff = mo.values - mb.values
-    eq = base["equation"].sel(reaction=common).values if "equation" in base.coords else [""] * len(common)
-    rows = []
-    for j in np.argsort(-np.abs(diff), kind="stable")[:top]:
-        if diff[j] == 0:
-            break
-        rows.append({"section": "reaction_rate", "time": "run mean", "term": str(common[j]),
-                     "equation": str(eq[j]), "base": float(mb.values[j]), "other": float(mo.values[j]),
-                     "change_percent": _percent(float(mo.values[j]), float(mb.values[j])), "units": "cm-3 s-1"})
-    return rows
-
-
-def compare_results(base, other, *, times=("end",), species=None, family="Ox", top=10) -> list[dict]:
-    """All comparison rows: species, accumulated loss by cycle, reaction-rate changes."""
-    from ..diagnostics.result import ResultError, names_or_error
-    if species is None:
-        species = [s for s in DEFAULT_SPECIES
-                   if s in set(base["species"].values.tolist()) and s in set(other["species"].values.tolist())]
-    else:
-        names_or_error(base, "species", species, "species (--species, BASE)")
-        names_or_error(other, "species", species, "species (--species, OTHER)")
-    if top < 1:
-        raise ResultError(f"--top must be at least 1, got {top}")
-    rows = species_changes(base, other, times, species)
-    if "cycle_rate" in base and "cycle_rate" in other:
-        rows += loss_changes(base, other, times, family)
-    rows += rate_changes(base, other, top)
-    return rows
-
-
-def render_text(rows: list[dict], base_name: str, other_name: str) -> str:
+def render_text(rows: list[dict], base_name: str, other_name: str, heading: str = "") -> str:
     out = [f"Comparison: OTHER = {other_name} against BASE = {base_name}"]
+    if heading:
+        out.append(heading)
+    notes = [r for r in rows if r["section"] == "note"]
+    for r in notes:
+        out.append(f"WARNING: {r['term']}" if not r["term"].startswith(("BASE has no", "OTHER has no"))
+                   else f"note: {r['term']}")
+    ch = [r for r in rows if r["section"] == "changed_reaction"]
+    if ch:
+        out.append(format_table(["reaction", "equation", "what", "BASE", "OTHER"],
+                                [[r["term"], r["equation"], r["how"], r["base"], r["other"]] for r in ch],
+                                "\nReactions that differ between the runs (read from the files)"))
+    else:
+        out.append("\nNo reaction differs in law, parameters or [scale] between the two files.")
     sp = [r for r in rows if r["section"] == "species"]
+    spread = any("spread_percent" in r or "spread_points" in r for r in rows)
     if sp:
-        out.append(format_table(["time (UTC)", "species", "BASE [mol mol-1]", "OTHER [mol mol-1]", "change [%]"],
-                                [[r["time"], r["term"], f"{r['base']:.4e}", f"{r['other']:.4e}",
-                                  f"{r['change_percent']:+.2f}"] for r in sp], "\nSpecies"))
+        out.append(format_table(["time (UTC)", "why", "species", "BASE [mol mol-1]", "OTHER [mol mol-1]", "change [%]"]
+                                + (["spread [+-%]"] if spread else []),
+                                [[r["time"], r["note"], r["term"], _f(r, "base", ".4e"), _f(r, "other", ".4e"),
+                                  _f(r, "change_percent", "+.2f")] + ([_f(r, "spread_percent", ".2f")] if spread else [])
+                                 for r in sp], "\nSpecies"))
     lo = [r for r in rows if r["section"] == "accumulated_loss"]
     if lo:
-        out.append(format_table(["time (UTC)", "cycle", "BASE [% O3]", "OTHER [% O3]", "change [points]"],
-                                [[r["time"], r["term"], f"{r['base']:.3f}", f"{r['other']:.3f}",
-                                  f"{r['change_points']:+.3f}"] for r in lo],
+        out.append(format_table(["time (UTC)", "why", "cycle", "BASE [% O3]", "OTHER [% O3]", "change [points]"]
+                                + (["spread [+-points]"] if spread else []),
+                                [[r["time"], r["note"], r["term"], _f(r, "base", ".3f"), _f(r, "other", ".3f"),
+                                  _f(r, "change_points", "+.3f")] + ([_f(r, "spread_points", ".3f")] if spread else [])
+                                 for r in lo],
                                 "\nAccumulated ozone loss by cycle (unattributed = total - cycles)"))
+    if spread:
+        out.append("  (spread: half the 5-95 % range of the --spread members at the same time; a change smaller "
+                   "than it is within that uncertainty)")
     rr = [r for r in rows if r["section"] == "reaction_rate"]
     if rr:
-        out.append(format_table(["reaction", "equation", "BASE [cm-3 s-1]", "OTHER [cm-3 s-1]", "change [%]"],
-                                [[r["term"], r["equation"], f"{r['base']:.3e}", f"{r['other']:.3e}",
-                                  f"{r['change_percent']:+.2f}"] for r in rr],
-                                "\nLargest changes in time-mean reaction rates"))
-    else:
+        out.append(format_table(["reaction", "equation", "BASE [cm-3 s-1]", "OTHER [cm-3 s-1]", "rate change [%]",
+                                 "effect [% of budget]", "budget"],
+                                [[r["term"], r["equation"], _f(r, "base", ".3e"), _f(r, "other", ".3e"),
+                                  _f(r, "change_percent", "+.2f"), _f(r, "effect_percent", "+.3f"), r["budget"]]
+                                 for r in rr],
+                                "\nReactions whose net effect changed most (time means; reverse pairs netted;\n"
+                                " effect = change of the reaction's contribution to the budget, in % of its turnover)"))
+    elif not any(r["term"].startswith(("BASE has no", "OTHER has no")) for r in notes):
         out.append("\nNo reaction rate changed.")
     return "\n".join(out)
 
 
 def render_csv(rows: list[dict]) -> str:
-    return csv_text(rows, ["section", "time", "term", "equation", "base", "other", "change_percent",
-                           "change_points", "units"])
+    fields = ["section", "time", "note", "term", "equation", "how", "base", "other", "change_percent",
+              "change_points", "effect_percent", "budget", "spread_percent", "spread_points", "units"]
+    extra = sorted({k for r in rows for k in r if k.endswith(("_p05", "_p95")) or k == "n_members"})
+    return csv_text(rows, fields + extra)
 
 
 def run(args) -> int:
-    from ..diagnostics.result import open_result
+    from ..diagnostics.comparison import compare_results
+    from ..diagnostics.members import is_members, rows_across_members, select_member
+    from ..diagnostics.result import ResultError, open_result
     base, other = open_result(args.base), open_result(args.other)
-    rows = compare_results(base, other, times=args.times, species=args.species, family=args.family,
-                           top=args.top)
-    print(render_csv(rows) if args.format == "csv" else render_text(rows, args.base, args.other), end="\n"
-          if args.format == "text" else "")
+    for ds, key, flag, name in ((base, args.base_member, "--base-member", args.base),
+                                (other, args.other_member, "--other-member", args.other)):
+        if key is not None and not is_members(ds):
+            raise ResultError(f"{flag} {key}: {name} is a single run, not a member file")
+    if is_members(base):
+        if args.base_member is None:
+            raise ResultError(f"{args.base} is a member file: choose the reference member with --base-member "
+                              f"INDEX|LABEL (OTHER may be a member file compared member by member)")
+        base = select_member(base, args.base_member)
+    heading = ""
+
+    times, notes = args.times, None
+
+    def make(one):
+        return compare_results(base, one, times=times, at=args.at, species=args.species,
+                               family=args.family, top=args.top, time_notes=notes)
+    if is_members(other) and args.other_member is None:
+        if times is None:   # one set of times for every member: where the members' median change peaks
+            from ..diagnostics.comparison import largest_difference_time_members
+            when = largest_difference_time_members(base, other)
+            times, notes = (["end"], ["end"]) if when is None else ([when, "end"], ["largest median |dO3|", "end"])
+        rows = rows_across_members(other, make, key_fields=("section", "time", "note", "term", "how"))
+        n = max((r.get("n_members", 0) for r in rows), default=0)
+        heading = f"OTHER: {n} successful members, each against BASE: median [5 %, 95 %]"
+        plot_other = None
+    else:
+        if is_members(other):
+            other = select_member(other, args.other_member)
+            heading = f"OTHER member {other.attrs['member_index']} ({other.attrs['member_label']})"
+        rows = make(other)
+        plot_other = other
+    if args.spread:
+        from ..diagnostics.comparison import spread_beside
+        spread_file = open_result(args.spread)
+        if not is_members(spread_file):
+            raise ResultError(f"--spread {args.spread}: not a member file (it needs a member dimension)")
+        rows = spread_beside(rows, spread_file, args.family)
+    print(render_csv(rows) if args.format == "csv" else render_text(rows, args.base, args.other, heading),
+          end="\n" if args.format == "text" else "")
     if args.plot:
+        if plot_other is None:
+            raise ResultError("--plot with a member file as OTHER needs --other-member INDEX|LABEL")
         from ..plotting import save_comparison
-        path = save_comparison(base, other, args.plot, family=args.family,
-                               labels=(args.base, args.other))
+        path = save_comparison(base, plot_other, args.plot, family=args.family,
+                               labels=(args.base, args.other), at=args.at)
         if args.format == "text":
             print(f"\nplot written to {path}")
     return 0

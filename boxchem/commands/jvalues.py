@@ -53,6 +53,9 @@ def register(subparsers) -> None:
     p.add_argument("--temperature", default=None, help="temperature for cross sections (default 220 K)")
     p.add_argument("--day", metavar="YYYY-MM-DD",
                    help="scenario form: the UTC day to tabulate (default: the scenario's start day)")
+    p.add_argument("--clock", choices=("utc", "local"), default="utc",
+                   help="scenario form: the day runs from UTC midnight (default) or from local mean solar "
+                        "midnight at the box (UTC + longitude/15 h), so the sunlit period is not cut in two")
     p.add_argument("--step", default="10 min", help="scenario form: time step through the day (default 10 min)")
     p.add_argument("--plot", metavar="PNG", help="scenario form: draw J(t) of the main reactions to this file")
     p.add_argument("--reactions", nargs="+", metavar="ID",
@@ -76,7 +79,8 @@ def register(subparsers) -> None:
 def _conditions(args):
     # no default unit: a bare "20" read as metres gave J at the ground for a user meaning 20 km
     altitude = parse_quantity(args.altitude, "length", where="--altitude")
-    ozone = parse_quantity(args.ozone_column, "column", default_unit="DU", where="--ozone-column")
+    # no default unit either (as in scenarios and --altitude): write 300DU
+    ozone = parse_quantity(args.ozone_column, "column", where="--ozone-column")
     temperature = parse_quantity(args.temperature, "temperature", default_unit="K", where="--temperature")
     if not 0.0 <= args.albedo <= 1.0:
         raise BoxchemError(f"--albedo {args.albedo}: expected a value within 0..1")
@@ -305,7 +309,7 @@ def _run_scenario_day(args) -> int:
     if not 1.0 <= step <= 86400.0:
         raise BoxchemError(f"--step {args.step!r}: expected a step between 1 s and 1 d, e.g. 10min")
     day = _parse_day(args.day, scenario.start)
-    table = scenario_day_jvalues(scenario, day, step)
+    table = scenario_day_jvalues(scenario, day, step, clock=args.clock)
     if args.format == "csv":
         _print_day_csv(table)
     else:
@@ -343,10 +347,12 @@ def _parse_day(text, start) -> np.datetime64:
         raise BoxchemError(f"--day {text!r}: expected a UTC date YYYY-MM-DD, e.g. 2026-09-15") from None
 
 
-def scenario_day_jvalues(scenario, day, step_s: float = 600.0) -> dict:
-    """J [s-1] of every photolysis reaction through the UTC ``day`` at the scenario's box.
+def scenario_day_jvalues(scenario, day, step_s: float = 600.0, clock: str = "utc") -> dict:
+    """J [s-1] of every photolysis reaction through ``day`` at the scenario's box.
 
-    Times every ``step_s`` [s] from 00:00 to 24:00 UTC.  Conditions come from
+    Times every ``step_s`` [s] from 00:00 to 24:00 UTC, or with
+    ``clock="local"`` from 00:00 to 24:00 local mean solar time at the box's
+    longitude at the start (``local_shift`` in the result, UTC + shift = local).  Conditions come from
     the scenario's Environment (solar zenith angle from
     :mod:`boxchem.environment.solar`, temperature, ozone column, distance
     factor; time series are held at their end values outside their range),
@@ -365,8 +371,12 @@ def scenario_day_jvalues(scenario, day, step_s: float = 600.0) -> dict:
     if not photo:
         raise BoxchemError(f"jvalues: the scenario's mechanism {str(scenario.mechanism_path)!r} "
                            f"has no photolysis reactions")
+    from ..diagnostics.solartime import local_shift
     env = build_environment(scenario)
-    day = np.datetime64(day, "D").astype("datetime64[ns]")
+    shift = np.timedelta64(0, "ns")
+    if clock == "local":
+        shift = local_shift(float(np.asarray(env.at(np.array([0.0])).longitude).ravel()[0]))
+    day = np.datetime64(day, "D").astype("datetime64[ns]") - shift
     n = int(round(86400.0 / step_s))
     offsets = np.arange(n + 1) * step_s
     times = day + np.round(offsets * 1e9).astype("timedelta64[ns]")
@@ -390,18 +400,23 @@ def scenario_day_jvalues(scenario, day, step_s: float = 600.0) -> dict:
             "ozone_column": np.asarray(state.ozone_column, float),
             "j": j[:, photo], "ids": [mech.reactions[i].id for i in photo],
             "equations": [mech.reactions[i].equation for i in photo],
-            "methods": [rates.source.get(mech.reactions[i].id, "") for i in photo]}
+            "methods": [rates.source.get(mech.reactions[i].id, "") for i in photo],
+            "local_shift": shift, "clock": clock}
 
 
 def _iso(t) -> str:
     return f"{np.datetime_as_string(t, unit='s')}Z"
 
 
+def _local(t, table) -> str:
+    return np.datetime_as_string(t + table.get("local_shift", np.timedelta64(0, "ns")), unit="s")
+
+
 def _print_day_csv(table) -> None:
-    print("id,time,sza,horizon_sza,temperature_K,ozone_column_DU,j,method")
+    print("id,time,local_solar_time,sza,horizon_sza,temperature_K,ozone_column_DU,j,method")
     for r, rid in enumerate(table["ids"]):
         for i, t in enumerate(table["time"]):
-            print(f"{rid},{_iso(t)},{table['sza'][i]:.4f},{table['horizon'][i]:.3f},"
+            print(f"{rid},{_iso(t)},{_local(t, table)},{table['sza'][i]:.4f},{table['horizon'][i]:.3f},"
                   f"{table['temperature'][i]:.2f},{table['ozone_column'][i]:.2f},"
                   f"{table['j'][i, r]:.6e},{table['methods'][r]}")
 
@@ -416,14 +431,18 @@ def _print_day_text(table) -> None:
     # the last sample is 24:00, i.e. 00:00 of the next day: leave it out of the
     # minimum and maximum, which would otherwise be shown as "00:00" of this day
     day = slice(0, max(times.size - 1, 1))
-    print(f"J through {np.datetime_as_string(times[0], unit='D')} (UTC); minimum SZA "
-          f"{sza[day].min():.2f} deg at {_iso(times[int(np.argmin(sza[day]))])[11:16]} UTC; "
+    local = table.get("clock") == "local"
+    first = _local(times[0], table)[:10] if local else np.datetime_as_string(times[0], unit="D")
+    k_min = int(np.argmin(sza[day]))
+    print(f"J through {first} ({'local mean solar day, from ' + _iso(times[0]) if local else 'UTC'}); "
+          f"minimum SZA {sza[day].min():.2f} deg at {_iso(times[k_min])[11:16]} UTC "
+          f"({_local(times[k_min], table)[11:16]} local solar); "
           f"sun above the box's horizon for {sunlit[:-1].sum() * step_h:.1f} h")
-    print(f"{'id':<14} {'max J [s-1]':>12} {'at (UTC)':>9} {'24-h mean [s-1]':>16}  method      equation")
+    print(f"{'id':<14} {'max J [s-1]':>12} {'at (UTC)':>9} {'(local)':>8} {'24-h mean [s-1]':>16}  method      equation")
     for r, rid in enumerate(table["ids"]):
         k = int(np.argmax(j[day, r]))
-        print(f"{rid:<14} {j[k, r]:12.4e} {_iso(times[k])[11:16]:>9} {mean[r]:16.4e}  "
-              f"{table['methods'][r]:<10}  {table['equations'][r]}")
+        print(f"{rid:<14} {j[k, r]:12.4e} {_iso(times[k])[11:16]:>9} {_local(times[k], table)[11:16]:>8} "
+              f"{mean[r]:16.4e}  {table['methods'][r]:<10}  {table['equations'][r]}")
 
 
 def plot_day(table, path, reactions=None) -> None:
@@ -456,7 +475,10 @@ def plot_day(table, path, reactions=None) -> None:
     ax.set_yscale("log")
     ax.set_xlim(0, hours[-1])
     ax.set_xticks(np.arange(0, 25, 3))
-    ax.set_xlabel(f"time on {np.datetime_as_string(table['time'][0], unit='D')} [h UTC]")
+    if table.get("clock") == "local":
+        ax.set_xlabel(f"local mean solar time on {_local(table['time'][0], table)[:10]} [h]")
+    else:
+        ax.set_xlabel(f"time on {np.datetime_as_string(table['time'][0], unit='D')} [h UTC]")
     ax.set_ylabel("photolysis frequency J [s$^{-1}$]")
     ax.set_title("J through the day at the box (grey: sun below the box's horizon)", loc="left")
     ax.legend(loc="lower center", ncol=min(len(wanted), 5), fontsize=8, frameon=False)

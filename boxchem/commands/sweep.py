@@ -16,7 +16,10 @@ the file sets).  Every combination is one member of a member table (the last
 --vary varies fastest), run by the same engine as `boxchem ensemble`; the
 output is its member file (dimension member; the grid is in the attributes
 sweep_keys / sweep_shape).  A member that fails is recorded in member_status /
-member_message and the others complete (exit status 1 if any failed)."""
+member_message and the others complete (exit status 1 if any failed).  Every value is checked
+before any member runs (an invalid one is an input error, exit status 2).
+budget, plot, compare and summary read the file (per member with --member, or
+across members)."""
 
 
 def register(subparsers) -> None:
@@ -46,13 +49,15 @@ def run(args) -> int:
 
 
 def check_vary(scenario: str, vary) -> None:
-    """Refuse unknown keys, reaction ids and species before any member runs (exit status 2).
+    """Refuse unknown keys, reaction ids, species and invalid values before any member runs (exit 2).
 
     A typo in a key (``location.latitud``, ``scale.clo_clo_mm``,
-    ``initial.ClONo2``) would make every member fail after all of them were
-    started; it is an input error naming the --vary item instead.  Values are
-    still checked per member (a member with an invalid value is recorded as
-    failed and the others complete, as the help says).
+    ``initial.ClONo2``) or an impossible value (``location.latitude=-95``)
+    would make members fail after all of them were started; it is an input
+    error naming the --vary item instead.  Each value is applied alone to the
+    scenario, which validates it as a run would (no integration).  Members
+    can still fail in the integration; those are recorded as failed and the
+    others complete.
     """
     import difflib
 
@@ -78,3 +83,21 @@ def check_vary(scenario: str, vary) -> None:
             base.with_overrides(scale={name: 1.0}, origins=origins)
         else:
             base.with_overrides(initial={name: "0 ppbv"}, origins=origins)
+    check_vary_values(scenario, vary)
+
+
+def check_vary_values(scenario: str, vary) -> None:
+    """Apply every --vary value alone to the scenario (validation only, no run); errors name it."""
+    from ..analysis.sweep import vary_label
+    from ..scenario import load_scenario
+    base = load_scenario(scenario)
+    for key, values in vary.items():
+        section, name = key.split(".", 1)
+        for value in values:
+            origins = {key: vary_label(key, value)}
+            if section == "scale":
+                base.with_overrides(scale={name: value}, origins=origins)
+            elif section == "initial":
+                base.with_overrides(initial={name: value}, origins=origins)
+            else:
+                base.with_overrides(origins=origins, **{key: value})

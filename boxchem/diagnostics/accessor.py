@@ -43,3 +43,26 @@ class BoxchemAccessor:
     def partitioning(self, names=None) -> xr.Dataset:
         """Radical partitioning ratios over time [1]."""
         return _partitioning.partitioning(self._ds, names)
+
+    # -- member files (sweeps, ensembles) and summaries --------------------------------
+    def member(self, key) -> xr.Dataset:
+        """One member of a member file, by index or label, as a single-run-like Dataset."""
+        from .members import select_member
+        return select_member(self._ds, key)
+
+    def across_members(self, name: str) -> xr.Dataset:
+        """Median and 5-95 % range across the successful members of variable ``name``."""
+        from .members import successful_members, summarize_members
+        ok = xr.DataArray(successful_members(self._ds), dims="member")
+        return summarize_members(self._ds[name].where(ok))
+
+    def summary(self) -> dict:
+        """Key numbers (boxchem.diagnostics.summary): of the run, or across the members."""
+        from . import summary
+        from .members import is_members
+        return summary.summarize_across_members(self._ds) if is_members(self._ds) else summary.summarize(self._ds)
+
+    def compare(self, other: xr.Dataset, **options) -> list[dict]:
+        """Rows of ``boxchem compare`` with this Dataset as BASE (boxchem.diagnostics.comparison)."""
+        from .comparison import compare_results
+        return compare_results(self._ds, other, **options)

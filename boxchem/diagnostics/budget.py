@@ -63,8 +63,8 @@ def production_loss(ds: xr.Dataset, name: str, mechanism=None) -> xr.Dataset:
     require(ds, ["reaction_rate"], "production and loss")
     nu = net_coefficients(ds, name, mechanism)
     rate = ds["reaction_rate"]
-    prod = (rate * nu.clip(min=0.0)).transpose("time", "reaction")
-    loss = (rate * (-nu).clip(min=0.0)).transpose("time", "reaction")
+    prod = (rate * nu.clip(min=0.0)).transpose(..., "time", "reaction")
+    loss = (rate * (-nu).clip(min=0.0)).transpose(..., "time", "reaction")
     kind = "family" if _is_family(ds, name, mechanism) else "species"
     unit = {"units": BUDGET_UNITS}
     out = xr.Dataset(

@@ -39,7 +39,7 @@ import xarray as xr
 from .budget import production_loss
 from .result import ResultError, elapsed_seconds, names_or_error, require, stoichiometry
 
-__all__ = ["ox_loss", "accumulate", "accumulated_loss", "daily_loss", "local_solar_time",
+__all__ = ["has_total_loss", "ox_loss", "accumulate", "accumulated_loss", "daily_loss", "local_solar_time",
            "diurnal_average", "chain_length"]
 
 SECONDS_PER_DAY = 86400.0
@@ -98,7 +98,7 @@ def ox_loss(ds: xr.Dataset, family: str = "Ox", mechanism=None, basis: str = "re
             unit, long_name=f"production of {family} by reactions that consume a variable species"),
     }, attrs={"family": family, "basis": basis})
     if "cycle_rate" in ds.variables and ds.sizes.get("cycle", 0) > 0:
-        cycles = ds["cycle_rate"].transpose("time", "cycle")
+        cycles = ds["cycle_rate"].transpose(..., "time", "cycle")
         out["cycle_rate"] = cycles
         out["cycle_sum"] = cycles.sum("cycle").assign_attrs(unit, long_name="sum of the cycle rates")
     else:
@@ -122,8 +122,21 @@ def accumulate(rate: xr.DataArray) -> xr.DataArray:
     return rate.copy(data=np.moveaxis(acc, 0, axis)).assign_attrs({})
 
 
-def _loss_terms(ds: xr.Dataset, family: str, mechanism, basis: str) -> xr.DataArray:
-    """Loss rates along a ``term`` dimension: every cycle, the remainder, the total."""
+def has_total_loss(ds: xr.Dataset, mechanism=None) -> bool:
+    """True when the total (and so the unattributed) loss can be computed: reaction rates were saved."""
+    return "reaction_rate" in ds.variables
+
+
+def _loss_terms(ds: xr.Dataset, family: str, mechanism, basis: str, cycles_only: bool = False) -> xr.DataArray:
+    """Loss rates along a ``term`` dimension: every cycle, the remainder, the total.
+
+    ``cycles_only``: just the cycles (from ``cycle_rate``; for member files saved
+    without ``reaction_rate``, whose total loss is unknown).
+    """
+    if cycles_only:
+        require(ds, ["cycle_rate"], "the loss by cycle")
+        return ds["cycle_rate"].rename(cycle="term").drop_vars(
+            [c for c in ds["cycle_rate"].coords if c not in ("time", "cycle", "member")]).transpose(..., "time", "term")
     ox = ox_loss(ds, family, mechanism, basis)
     parts = []
     if "cycle_rate" in ox:
@@ -131,33 +144,38 @@ def _loss_terms(ds: xr.Dataset, family: str, mechanism, basis: str) -> xr.DataAr
     parts.append(ox["unattributed"].expand_dims(term=[UNATTRIBUTED]))
     parts.append(ox["total_loss"].expand_dims(term=[TOTAL]))
     terms = xr.concat([p.drop_vars([c for c in p.coords if c not in ("time", "term")]) for p in parts],
-                      dim="term").transpose("time", "term")
+                      dim="term").transpose(..., "time", "term")
     return terms
 
 
 def accumulated_loss(ds: xr.Dataset, family: str = "Ox", ozone: str = "O3",
-                     mechanism=None, basis: str = "recycled") -> xr.Dataset:
+                     mechanism=None, basis: str = "recycled", cycles_only: bool = False) -> xr.Dataset:
     """Accumulated odd-oxygen loss by cycle, unattributed and total.
 
     Returns a Dataset over (time, term), ``term`` = the cycles, then
     ``"unattributed"`` and ``"total"``, with
     ``loss_number_density`` [cm-3], ``loss_mole_fraction`` [mol mol-1] and
-    ``loss_percent`` [% of the initial ``ozone`` mixing ratio].
+    ``loss_percent`` [% of the initial ``ozone`` mixing ratio].  With
+    ``cycles_only`` the terms are the cycles alone (no total, no remainder).
     """
     require(ds, ["air_number_density", "mole_fraction"], "accumulated ozone loss")
     names_or_error(ds, "species", [ozone], "ozone species")
-    rates = _loss_terms(ds, family, mechanism, basis)
+    rates = _loss_terms(ds, family, mechanism, basis, cycles_only)
     n_air = ds["air_number_density"]
     acc = accumulate(rates)
     acc_x = accumulate(rates / n_air)
-    x0 = float(ds["mole_fraction"].sel(species=ozone).isel(time=0))
-    if not x0 > 0:
-        raise ResultError(f"initial {ozone} mole fraction is {x0}: percent loss is undefined")
+    x0 = ds["mole_fraction"].sel(species=ozone, drop=True).isel(time=0, drop=True)
+    bad = ~(x0 > 0) & x0.notnull()   # NaN: a failed member of a member file
+    if bool(bad.any()):
+        raise ResultError(f"initial {ozone} mole fraction is {float(x0.where(bad, drop=True).values.ravel()[0])}: "
+                          f"percent loss is undefined")
+    x0_attr = float(x0) if x0.ndim == 0 else float(x0.median())
     return xr.Dataset({
         "loss_number_density": acc.assign_attrs(units="cm-3", long_name=f"accumulated {family} loss"),
         "loss_mole_fraction": acc_x.assign_attrs(units="1", long_name=f"accumulated {family} loss as mole fraction of air"),
         "loss_percent": (100.0 * acc_x / x0).assign_attrs(units="%", long_name=f"accumulated {family} loss in percent of initial {ozone}"),
-    }, attrs={"family": family, "basis": basis, "initial_ozone_mole_fraction": x0})
+    }, attrs={"family": family, "basis": "cycles only" if cycles_only else basis,
+              "initial_ozone_mole_fraction": x0_attr})
 
 
 def local_solar_time(time: xr.DataArray, longitude: float | None) -> xr.DataArray:
@@ -189,17 +207,19 @@ def _day_spans(time: xr.DataArray, longitude: float | None):
     return days[keep], lo[keep], hi[keep]
 
 
-def _difference_over(values: np.ndarray, t: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
-    """values(hi) - values(lo) along axis 0, interpolating linearly in t."""
+def _difference_over(values: np.ndarray, t: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+                     axis: int = 0) -> np.ndarray:
+    """values(hi) - values(lo) along ``axis`` (time), interpolating linearly in t."""
+    values = np.moveaxis(values, axis, 0)
     flat = values.reshape(values.shape[0], -1)
     out = np.empty((lo.size, flat.shape[1]))
-    for k in range(flat.shape[1]):  # loop over terms (a handful), not over time
+    for k in range(flat.shape[1]):  # loop over terms (and members): a handful, not over time
         out[:, k] = np.interp(hi, t, flat[:, k]) - np.interp(lo, t, flat[:, k])
-    return out.reshape((lo.size,) + values.shape[1:])
+    return np.moveaxis(out.reshape((lo.size,) + values.shape[1:]), 0, axis)
 
 
 def daily_loss(ds: xr.Dataset, family: str = "Ox", ozone: str = "O3", longitude: float | None = None,
-               mechanism=None, basis: str = "recycled") -> xr.Dataset:
+               mechanism=None, basis: str = "recycled", cycles_only: bool = False) -> xr.Dataset:
     """Ozone loss per day by cycle: amount lost in each day and the day's mean rate.
 
     Days are UTC days, or local mean solar days when ``longitude`` [degrees
@@ -210,18 +230,21 @@ def daily_loss(ds: xr.Dataset, family: str = "Ox", ozone: str = "O3", longitude:
     ``loss_number_density`` [cm-3], ``loss_mole_fraction`` [1],
     ``loss_percent`` [%] and ``mean_rate`` [cm-3 s-1].
     """
-    acc = accumulated_loss(ds, family, ozone, mechanism, basis)
+    acc = accumulated_loss(ds, family, ozone, mechanism, basis, cycles_only)
     t = elapsed_seconds(ds)
     days, lo, hi = _day_spans(ds["time"], longitude)
     out = {}
+    dims = tuple("day" if d == "time" else d for d in acc["loss_percent"].dims)
+    axis = acc["loss_percent"].dims.index("time")
     for var in ("loss_number_density", "loss_mole_fraction", "loss_percent"):
-        out[var] = (("day", "term"), _difference_over(acc[var].values, t, lo, hi), acc[var].attrs)
+        out[var] = (dims, _difference_over(acc[var].values, t, lo, hi, axis), acc[var].attrs)
     span = hi - lo
     nd = out["loss_number_density"][1]
+    span_b = span.reshape([-1 if d == "day" else 1 for d in dims])
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean_rate = np.where(span[:, None] > 0, nd / span[:, None], np.nan)
+        mean_rate = np.where(span_b > 0, nd / span_b, np.nan)
     res = xr.Dataset(out, coords={"day": days.astype("datetime64[ns]"), "term": acc["term"]})
-    res["mean_rate"] = (("day", "term"), mean_rate, {"units": "cm-3 s-1", "long_name": "mean loss rate over the day"})
+    res["mean_rate"] = (dims, mean_rate, {"units": "cm-3 s-1", "long_name": "mean loss rate over the day"})
     res["covered_hours"] = ("day", span / 3600.0, {"units": "h"})
     res.attrs.update(acc.attrs, day_definition="UTC" if longitude is None else f"local mean solar, longitude {longitude}")
     return res

@@ -91,6 +91,14 @@ def _weights(ds: xr.Dataset, group: Group) -> dict[str, float]:
     return w
 
 
+def number_density(ds: xr.Dataset) -> xr.DataArray:
+    """Number densities [cm-3]: the run's, or mole fraction x air density (member files save only the former)."""
+    if "number_density" in ds.variables:
+        return ds["number_density"]
+    require(ds, ["mole_fraction", "air_number_density"], "number densities")
+    return (ds["mole_fraction"] * ds["air_number_density"]).assign_attrs(units="cm-3")
+
+
 def group_sum(ds: xr.Dataset, name: str) -> xr.DataArray:
     """Number density of a group (time) [cm-3]: the run's family when defined, else a species sum."""
     if name not in GROUPS:
@@ -98,10 +106,9 @@ def group_sum(ds: xr.Dataset, name: str) -> xr.DataArray:
     group = GROUPS[name]
     if group.family and is_family(ds, group.family) and "family_number_density" in ds.variables:
         return ds["family_number_density"].sel(family=group.family, drop=True)
-    require(ds, ["number_density"], f"the sum {name}")
     w = _weights(ds, group)
     weights = xr.DataArray(list(w.values()), dims="species", coords={"species": list(w)})
-    nd = ds["number_density"].sel(species=list(w))
+    nd = number_density(ds).sel(species=list(w))
     return (nd * weights).sum("species").assign_attrs(units="cm-3")
 
 
@@ -142,7 +149,8 @@ def chlorine_partitioning(ds: xr.Dataset) -> xr.Dataset:
     or organic chlorine when Cly counts atoms(Cl)); the parts then sum to 1
     by the family's definition, which the tests check.
     """
-    require(ds, ["number_density", "family_number_density"], "chlorine partitioning")
+    require(ds, ["family_number_density"], "chlorine partitioning")
+    density = number_density(ds)
     if not is_family(ds, "Cly"):
         raise ResultError("chlorine partitioning needs a family 'Cly' in the result; "
                           f"families: {', '.join(str(f) for f in ds['family'].values) if 'family' in ds.coords else '(none)'}")
@@ -156,11 +164,11 @@ def chlorine_partitioning(ds: xr.Dataset) -> xr.Dataset:
         if not w:
             continue
         counted.update(w)
-        nd = ds["number_density"].sel(species=list(w))
+        nd = density.sel(species=list(w))
         weights = w_cly.sel(species=list(w))
         out[name] = ((nd * weights).sum("species") / total).assign_attrs(units="1")
     rest = [str(s) for s in ds["species"].values if str(s) not in counted]
-    nd_rest = (ds["number_density"].sel(species=rest) * w_cly.sel(species=rest)).sum("species")
+    nd_rest = (density.sel(species=rest) * w_cly.sel(species=rest)).sum("species")
     out["other"] = (nd_rest / total).assign_attrs(units="1", members=" ".join(
         s for s in rest if float(w_cly.sel(species=s)) != 0))
     return out

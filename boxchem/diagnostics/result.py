@@ -30,6 +30,8 @@ __all__ = [
 
 #: variables without which a Dataset is not a boxchem result
 CORE_VARIABLES = ("number_density", "mole_fraction", "reaction_rate")
+#: a member file (sweep, ensemble) saves a selection; mole fractions are always among it
+MEMBER_CORE_VARIABLES = ("mole_fraction",)
 
 
 class ResultError(BoxchemError):
@@ -50,11 +52,17 @@ def open_result(path: str | Path) -> xr.Dataset:
         first = (str(exc).splitlines() or [""])[0].split(". ")[0][:160]
         raise ResultError(f"{path}: cannot be read as netCDF ({first}); "
                           f"expected a file written by 'boxchem run'") from None
-    missing = [v for v in CORE_VARIABLES if v not in ds.variables]
+    if "member_status" in ds.variables and "member" not in ds.dims:
+        from .members import from_sweep_layout   # today's sweep layout: a dimension per varied key
+        ds.attrs.setdefault("source_file", str(path))
+        ds = from_sweep_layout(ds)
+    core = MEMBER_CORE_VARIABLES if "member" in ds.dims else CORE_VARIABLES
+    missing = [v for v in core if v not in ds.variables]
     if missing or "time" not in ds.dims:
         raise ResultError(
             f"{path}: not a boxchem result: missing {', '.join(missing) or 'the time dimension'} "
-            f"(a result has {', '.join(CORE_VARIABLES)} over time; write one with 'boxchem run')")
+            f"(a result has {', '.join(core)} over time; write one with 'boxchem run', "
+            f"'boxchem sweep' or boxchem.ensemble)")
     ds.attrs.setdefault("source_file", str(path))
     return ds
 
@@ -83,9 +91,19 @@ def require(ds: xr.Dataset, names, what: str) -> None:
     """Raise ResultError naming every variable of ``names`` that ``ds`` lacks."""
     missing = [n for n in names if n not in ds.variables]
     if missing:
-        src = ds.attrs.get("source_file", "the Dataset")
-        raise ResultError(f"{src}: {what} needs the variable(s) {', '.join(missing)}, "
-                          f"which this result does not have")
+        raise ResultError(f"{ds.attrs.get('source_file', 'the Dataset')}: {what} needs the variable(s) "
+                          f"{', '.join(missing)}, which this result does not have{how_to_save(ds, missing)}")
+
+
+def how_to_save(ds: xr.Dataset, missing) -> str:
+    """The hint that ends a 'not saved' error: how to make a file that has ``missing``."""
+    if ds.attrs.get("boxchem_result_kind") == "members" or "member" in ds.dims:
+        names = ", ".join(repr(m) for m in missing)
+        return (f"; a member file holds only the variables it was asked to save: run the ensemble again "
+                f"with them included (boxchem.ensemble(..., save=[..., {names}]), or the ensemble "
+                f"command's save option), or re-run this member alone with 'boxchem run' "
+                f"(a single run saves everything)")
+    return "; 'boxchem run' writes it in every run file (was this file made by another tool or trimmed?)"
 
 
 def names_or_error(ds: xr.Dataset, dim: str, names, what: str) -> list[str]:

@@ -38,7 +38,6 @@ from types import SimpleNamespace
 from typing import Callable
 
 import numpy as np
-from scipy.optimize import brentq, minimize_scalar
 
 __all__ = [
     "EARTH_RADIUS_M",
@@ -511,6 +510,7 @@ def horizon_crossings(sza_function: Callable, t0: float, t1: float,
     is_min = (gs[interior] <= gs[interior - 1]) & (gs[interior] <= gs[interior + 1]) & (gs[interior] > 0)
     is_max = (gs[interior] >= gs[interior - 1]) & (gs[interior] >= gs[interior + 1]) & (gs[interior] < 0)
     for i, sgn in [(j, 1.0) for j in interior[is_min]] + [(j, -1.0) for j in interior[is_max]]:
+        from scipy.optimize import minimize_scalar  # imported here: ~0.5 s, only sunrise/sunset search needs it
         res = minimize_scalar(lambda t: sgn * g_scalar(t), bounds=(ts[i - 1], ts[i + 1]),
                               method="bounded", options={"xatol": tolerance_s})
         if sgn * res.fun < 0.0:
@@ -522,5 +522,6 @@ def horizon_crossings(sza_function: Callable, t0: float, t1: float,
         ga, gb = g_scalar(a), g_scalar(b)
         if ga == 0.0 or gb == 0.0 or np.sign(ga) == np.sign(gb):
             continue
+        from scipy.optimize import brentq
         roots.append(brentq(g_scalar, a, b, xtol=tolerance_s))
     return np.unique(np.asarray(roots, dtype=float))
