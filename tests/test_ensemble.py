@@ -213,19 +213,22 @@ def test_sweep_is_a_grid_on_the_same_engine(tmp_path, capsys):
     from boxchem.analysis.sweep import grid, run_sweep
     from boxchem.cli import main
     out = tmp_path / "sweep.nc"
+    # an invalid value is refused before any member runs (issue 12): exit 2, nothing written
     rc = main(["sweep", str(CHAIN), "--vary", "scale.a_to_b=0.5,2", "--vary",
                "location.latitude=-70,-95", "-o", str(out)])
-    assert rc == 1                       # latitude -95 is invalid: those members fail
+    assert rc == 2 and "--vary location.latitude=-95" in capsys.readouterr().err and not out.exists()
+    rc = main(["sweep", str(CHAIN), "--vary", "scale.a_to_b=0.5,2", "--vary",
+               "location.latitude=-70,-75", "-o", str(out)])
+    assert rc == 0
     printed = capsys.readouterr()
-    assert "4 members: 2 succeeded, 2 failed, 0 pending" in printed.out
-    assert "--vary location.latitude=-95: latitude must lie in [-90, 90]" in printed.err
+    assert "4 members: 4 succeeded, 0 failed, 0 pending" in printed.out
     ds = mf.open_member_file(out, load=True)
     assert ds.attrs["sweep_keys"] == "scale.a_to_b location.latitude"
     assert list(ds["member_label"].values)[:2] == ["scale.a_to_b=0.5 location.latitude=-70",
-                                                   "scale.a_to_b=0.5 location.latitude=-95"]
+                                                   "scale.a_to_b=0.5 location.latitude=-75"]
     g = grid(ds)
     assert g["mole_fraction"].dims[:2] == ("scale_a_to_b", "location_latitude")
-    assert g["member_status"].sel(location_latitude=-95.0).values.tolist() == [2, 2]
+    assert g["member_status"].values.ravel().tolist() == [1, 1, 1, 1]
     # a sweep member is the single run of the same values, within the solver tolerance
     swept = run_sweep(CHAIN, {"scale.a_to_b": [2.0]}, quiet=True)
     single = boxchem.run(CHAIN, scale={"a_to_b": 2.0})

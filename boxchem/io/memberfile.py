@@ -202,6 +202,8 @@ def create_member_file(path: str | Path, template: xr.Dataset,
                 encoding[name] = {"units": "seconds", "dtype": "float64"}
             elif var.dtype == np.int64:
                 encoding[name] = {"dtype": "int32"}
+            if name in template.coords and var.dtype.kind in "fcM":
+                encoding.setdefault(name, {})["_FillValue"] = None    # CF: coordinates carry no fill value
         template.to_netcdf(tmp, format="NETCDF3_64BIT" if fmt == "NETCDF3_64BIT_OFFSET" else fmt,
                            engine="netcdf4", encoding=encoding)
         _add_member_variables(tmp, template, variables)
