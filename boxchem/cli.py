@@ -15,7 +15,8 @@ from . import __version__
 from .errors import BoxchemError
 
 #: sub-command modules, in the order ``boxchem --help`` lists them
-COMMANDS = ("check", "rates", "run", "jvalues", "budget", "compare", "sweep", "plot", "demo")
+COMMANDS = ("check", "rates", "run", "jvalues", "budget", "compare", "sweep", "plot", "demo",
+            "fit", "fit_traces")
 
 
 def build_parser() -> argparse.ArgumentParser:
