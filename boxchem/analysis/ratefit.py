@@ -23,8 +23,10 @@ ln f298 = sigma_lnk(298 K), and g [K] the smallest value for which
 f(T) = f298 exp(|g (1/T - 1/298)|) covers the 1-sigma band at every
 measured temperature (for falloff: at every measured [M] as well, and
 f298 is the largest sigma_lnk(298 K, [M]) over the measured [M]).
-Outliers: |standardised residual| > 3, residual / sqrt(1 - h_ii) with h the
-leverage (hat-matrix diagonal) of the weighted fit.  See docs/lab-data.md.
+Outliers: |standardised residual| > 3, the externally studentised residual
+r_i / sqrt(s2_(i) (1 - h_ii)) with h the leverage (hat-matrix diagonal) of
+the weighted fit and s2_(i) the reduced chi2 without point i (at least 1
+when uncertainties are given).  See docs/lab-data.md.
 """
 from __future__ import annotations
 
@@ -103,7 +105,12 @@ def weighted_least_squares(model, p0, y, sigma, *, names, bounds=None, scaling="
 
     lo, hi = bounds if bounds is not None else (-np.inf, np.inf)
     best = None
+    dof_guess = max(y.size - n_par, 1)
     for start in [p0] + list(starts or ()):
+        # further starting points only while the best fit so far is poor (chi2/dof > 2) or failed:
+        # a good first fit is the minimum the others would find, at a fraction of the cost
+        if best is not None and best.status > 0 and 2 * best.cost / dof_guess <= 2.0:
+            break
         start = np.clip(np.asarray(start, dtype=float), lo, hi)
         try:
             with np.errstate(all="ignore"):
@@ -216,10 +223,22 @@ class RateFit:
 
     @property
     def standardised_residuals(self) -> np.ndarray:
+        """Externally studentised residuals r_i / sqrt(s2_(i) (1 - h_ii)).
+
+        r_i: the weighted residual; s2_(i) the reduced chi2 of the fit without
+        point i (one-step deletion formula), never below 1 when the file gives
+        uncertainties (the "if-larger" rule of the covariance), so that one
+        wild point neither hides itself nor drags its neighbours over the
+        threshold.
+        """
         r = self.result.weighted_residuals
-        if not self.weighted:  # unit weights: in units of the scatter-estimated sigma
-            r = r / math.sqrt(self.result.covariance_scale)
-        return r / np.sqrt(np.clip(1.0 - self.result.leverage, 1e-12, None))
+        h = np.clip(self.result.leverage, 0.0, 1.0 - 1e-12)
+        dof = self.result.dof
+        if dof < 2:
+            return r / np.sqrt(1.0 - h)
+        s2 = (self.result.chi2 - r**2 / (1.0 - h)) / (dof - 1)
+        s2 = np.maximum(s2, 1.0) if self.weighted else np.maximum(s2, 1e-300)
+        return r / np.sqrt(s2 * (1.0 - h))
 
     @property
     def outliers(self) -> np.ndarray:
@@ -300,7 +319,7 @@ def _start_arrhenius(T, lnk, w):
 
 
 def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float | None = 0.6,
-                   start: dict[str, float] | None = None) -> RateFit:
+                   start: dict[str, float] | None = None, scale_covariance: str | None = None) -> RateFit:
     """Fit ``law`` (a key of :data:`LAWS`) to a rate table.
 
     arrhenius: k = A exp(-(E/R)/T); modified-arrhenius: k = A (T/tref)^n
@@ -309,6 +328,9 @@ def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float
     ``fc`` (``fc=None`` fits it in [0.05, 1]) and k0, kinf referred to
     ``tref``; equilibrium: K = A exp(B/T) (a table of K or of
     k_forward/k_reverse).  ``start`` overrides starting values (mechanism keys).
+    ``scale_covariance`` overrides the chi2/dof scaling of the covariance
+    (default "if-larger" with uncertainties, "always" without; see
+    :func:`weighted_least_squares`).
     """
     if law not in LAWS:
         raise FitError(f"unknown law {law!r}; valid: {', '.join(LAWS)}")
@@ -382,7 +404,7 @@ def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float
     def model(p):
         return _ln_law(law, _param_dict(law, names, p, tref, fit_fc), T, M)
 
-    scaling = "if-larger" if weighted else "always"
+    scaling = scale_covariance or ("if-larger" if weighted else "always")
     res = weighted_least_squares(model, p0, lnk, rel, names=names, bounds=(lo, hi), scaling=scaling,
                                  starts=starts)
     if not weighted:
@@ -502,7 +524,7 @@ def mechanism_snippet(fit: RateFit, mechanism, reaction_id: str, *, base: str,
     if fit.law != "equilibrium":
         data_units = "cm3 s-1" if fit.law == "falloff" else fit.table.value_units
         if new.rate_coefficient_units != data_units:
-            raise FitError(f"{fit.table.source}: k is in {fit.table.value_units}, but {reaction_id} "
+            raise FitError(f"{fit.table.source}: k is in {data_units}, but {reaction_id} "
                            f"({reaction.equation}) as an {new.law} line has k in {new.rate_coefficient_units}; "
                            "check the k column's unit or choose another law/reaction")
     return text

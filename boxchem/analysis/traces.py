@@ -86,6 +86,13 @@ def fit_second_order(trace: Trace, *, baseline: bool = False, first_order_loss: 
     else:
         to_signal = 1.0
     sigma, scaling = _noise(trace, used)
+    # fit the signal in units of its largest value, so that every parameter is of order one
+    # (a concentration trace of 1e13 cm-3 would otherwise make the Jacobian look rank deficient)
+    unit = float(np.max(np.abs(y))) or 1.0
+    y = y / unit
+    to_signal = to_signal / unit
+    if trace.signal_sigma is not None:
+        sigma = sigma / unit
     # starting values: [A]0 from the first points, k from the slope of 1/[A] over the first half
     n0 = max(3, t.size // 20)
     a0 = max(float(np.mean(y[:n0])) / to_signal, 1e-30)
@@ -115,11 +122,14 @@ def fit_second_order(trace: Trace, *, baseline: bool = False, first_order_loss: 
                                  starts=[[p0[0] + 1.0] + p0[1:], [p0[0] - 1.0] + p0[1:]])
     k = math.exp(res.values[0])
     rel_fit = float(res.standard_errors[0])                  # sigma of ln k
+    model_signal = model(res.values) * unit
+    values = res.values.copy()
+    if baseline:
+        values[names.index("baseline")] *= unit
     rel_xs = trace.cross_section_rel_sigma if trace.signal_kind == "absorbance" else 0.0
     rel = math.hypot(rel_fit, rel_xs)
     return TraceFit(trace=trace, label="k", k=k, k_sigma=k * rel, k_sigma_fit=k * rel_fit,
-                    names=tuple(names), values=res.values, result=res, used=used,
-                    model_signal=model(res.values))
+                    names=tuple(names), values=values, result=res, used=used, model_signal=model_signal)
 
 
 def fit_first_order_decay(trace: Trace, *, baseline: bool = False) -> TraceFit:
@@ -129,6 +139,10 @@ def fit_first_order_decay(trace: Trace, *, baseline: bool = False) -> TraceFit:
     if t.size < 5:
         raise FitError(f"{trace.source}: {t.size} points after t = 0; a fit needs at least 5")
     sigma, scaling = _noise(trace, used)
+    unit = float(np.max(np.abs(y))) or 1.0     # parameters of order one (see fit_second_order)
+    y = y / unit
+    if trace.signal_sigma is not None:
+        sigma = sigma / unit
     positive = y > 0
     early = positive & (t <= np.quantile(t, 0.5))
     if early.sum() >= 3:
@@ -148,9 +162,11 @@ def fit_first_order_decay(trace: Trace, *, baseline: bool = False) -> TraceFit:
     res = weighted_least_squares(model, p0, y, sigma, names=names, scaling=scaling)
     kp = math.exp(res.values[0])
     rel = float(res.standard_errors[0])
+    values = res.values.copy()
+    values[1:] *= unit                          # S0 and baseline in the signal's unit
     return TraceFit(trace=trace, label="k'", k=kp, k_sigma=kp * rel, k_sigma_fit=kp * rel,
-                    names=tuple(names), values=res.values, result=res, used=used,
-                    model_signal=model(res.values))
+                    names=tuple(names), values=values, result=res, used=used,
+                    model_signal=model(res.values) * unit)
 
 
 @dataclass(frozen=True)

@@ -53,6 +53,8 @@ def register(subparsers) -> None:
                     "(default: that of the replaced line, else 0.6)")
     fc.add_argument("--fit-fc", action="store_true", help="fit Fc as well (falloff)")
     p.add_argument("--bath", metavar="GAS", help="use only the rows with this bath gas")
+    p.add_argument("--drop-outliers", action="store_true",
+                   help="fit once, then fit again without the flagged outliers (listed in the output)")
     p.set_defaults(func=run)
 
 
@@ -101,16 +103,26 @@ def run(args) -> int:
         fc = float(reaction.parameters.get("Fc", 0.6)) if reaction is not None else 0.6
 
     fit = fit_rate_table(table, args.law, tref=tref, fc=fc)
-    print(report(fit))
+    if args.drop_outliers and fit.outliers.any():
+        dropped = fit.table.line[fit.outliers]
+        print(report(fit))
+        print(f"refitting without the {dropped.size} flagged outlier(s): {args.data} line(s) "
+              + ", ".join(str(x) for x in dropped))
+        fit = fit_rate_table(table.select(~fit.outliers), args.law, tref=tref, fc=fc)
+        fit.notes.append("outliers of a first fit dropped: file line(s) " + ", ".join(str(x) for x in dropped))
+    text = None
     if args.output:
+        # built (and parsed back) before anything is printed or written: a unit or law mismatch
+        # with the replaced reaction is an input error
         out = Path(args.output)
-        base = _include_name(args.mechanism, out)
         command = "boxchem " + " ".join(shlex.quote(a) for a in sys.argv[1:]) if sys.argv[1:2] == ["fit"] \
             else ""
-        text = mechanism_snippet(fit, mechanism, args.reaction, base=base, base_dir=out.resolve().parent,
-                                 command=command)
-        write_text_atomic(out, text)
-        print(f"wrote {out} (include it, or point a scenario's [run] mechanism at it)")
+        text = mechanism_snippet(fit, mechanism, args.reaction, base=_include_name(args.mechanism, out),
+                                 base_dir=out.resolve().parent, command=command)
+    print(report(fit))
+    if text is not None:
+        write_text_atomic(args.output, text)
+        print(f"wrote {args.output} (include it, or point a scenario's [run] mechanism at it)")
     if args.plot:
         plot_rate_fit(fit, args.plot, reaction=reaction, mechanism=mechanism)
         print(f"wrote {args.plot}")
@@ -149,8 +161,13 @@ def report(fit) -> str:
                  for i in range(len(fit.names)) for j in range(i + 1, len(fit.names))]
         lines.append("  correlation: " + ", ".join(pairs))
     q = "K" if fit.law == "equilibrium" else "k"
-    lines.append(f"  f298 = {fit.f298:.4g}, g = {fit.g:.4g} K (1 sigma; {q}(298 K) = "
-                 f"{_value_at_298(fit):.4g} {'cm3 molecule-1' if q == 'K' else 'in the data unit'})")
+    unit = "cm3 molecule-1" if q == "K" else ("cm3 molecule-1 s-1" if fit.law == "falloff"
+                                               else _long_units(tab.value_units))
+    where = ""
+    if fit.law == "falloff":
+        where = f" at [M] = {_mean_density(fit):.3g} cm-3 (geometric mean of the data)"
+    lines.append(f"  f298 = {fit.f298:.4g}, g = {fit.g:.4g} K (1 sigma); {q}(298 K){where} = "
+                 f"{_value_at_298(fit):.4g} {unit}")
     z = fit.standardised_residuals
     for i in np.flatnonzero(fit.outliers):
         lines.append(f"  outlier: {tab.source}:{tab.line[i]}: T = {tab.temperature[i]:g} K, "
@@ -159,8 +176,15 @@ def report(fit) -> str:
     return "\n".join(lines)
 
 
+def _long_units(units: str) -> str:
+    return {"cm3 s-1": "cm3 molecule-1 s-1", "cm6 s-1": "cm6 molecule-2 s-1"}.get(units, units)
+
+
+def _mean_density(fit) -> float:
+    return float(np.exp(np.mean(np.log(fit.table.air_density))))
+
+
 def _value_at_298(fit) -> float:
-    M = fit.table.air_density
     if fit.law == "falloff":
-        return float(np.exp(fit.ln_k(298.0, float(np.exp(np.mean(np.log(M)))))))
+        return float(np.exp(fit.ln_k(298.0, _mean_density(fit))))
     return float(np.exp(fit.ln_k(298.0)))

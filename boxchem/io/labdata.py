@@ -56,7 +56,7 @@ _VALUE_ROLES = ("k", "k_forward", "k_reverse", "equilibrium")
 # ----------------------------------------------------------------------------- units
 
 _UNIT_TOKEN = re.compile(r"^(cm|molecules?|molec|s)(?:\^?\(?([-+]?\d+)\)?)?$")
-_SCALE = re.compile(r"^\s*(?:(\d+(?:\.\d*)?(?:[eE][-+]?\d+)?)|10\^\(?([-+]?\d+)\)?)\s*(?:[*x×]\s*)?")
+_SCALE = re.compile(r"^\s*(?:10\^\(?([-+]?\d+)\)?|(\d+(?:\.\d*)?(?:[eE][-+]?\d+)?))\s*(?:[*x×]\s*)?")
 _RATE_UNIT_HELP = ("cm3 molecule-1 s-1 (bimolecular), cm6 molecule-2 s-1 (termolecular) or s-1 "
                    "(first order), optionally with a factor such as '1e-12 cm3 molecule-1 s-1'")
 
@@ -75,7 +75,7 @@ def parse_rate_unit(unit: str) -> tuple[float, int, int]:
     if m and m.end() > 0 and (m.group(1) or m.group(2)):
         rest = text[m.end():]
         if rest and not rest[0].isdigit():
-            factor = float(m.group(1)) if m.group(1) else 10.0 ** int(m.group(2))
+            factor = 10.0 ** int(m.group(1)) if m.group(1) else float(m.group(2))
             text = rest
     exps = {"cm": 0, "molecule": 0, "s": 0}
     seen_molecule = False
@@ -92,7 +92,7 @@ def parse_rate_unit(unit: str) -> tuple[float, int, int]:
         base = {"molecules": "molecule", "molec": "molecule"}.get(tok.group(1), tok.group(1))
         exps[base] += sign * int(tok.group(2) or 1)
         seen_molecule |= base == "molecule"
-        sign = 1 if "/" not in raw else sign
+        sign = 1  # a '/' divides by the next factor only: cm3/molecule/s
     if exps["cm"] % 3:
         raise ValueError(f"cm exponent {exps['cm']} is not a multiple of 3")
     if seen_molecule and exps["molecule"] != -exps["cm"] // 3:
@@ -577,6 +577,8 @@ TRACE_KEYS = {
     "co_reactant": "number density of the excess co-reactant B, e.g. '1.2e14 cm-3'",
     "species": "name of the decaying species (for labels), e.g. ClO",
 }
+#: other spellings accepted for condition keys
+TRACE_KEY_ALIASES = {"temperature": "T", "pressure": "p", "air_density": "M"}
 TRACE_KINDS = ("second-order", "pseudo-first-order")
 _TIME_UNITS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6, "μs": 1e-6, "ns": 1e-9}
 _SIGNAL_COLUMNS = {"absorbance": ("base e", "base 10"), "concentration": ("cm-3",), "signal": ("arb",)}
@@ -682,9 +684,9 @@ def read_trace(path: str | Path, *, text: str | None = None) -> Trace:
             continue
         if "=" in body:
             key, _, value = body.partition("=")
-            key = key.strip()
+            key = TRACE_KEY_ALIASES.get(key.strip(), key.strip())
             if key not in TRACE_KEYS:
-                hint = difflib.get_close_matches(key, list(TRACE_KEYS), n=1)
+                hint = difflib.get_close_matches(key, list(TRACE_KEYS) + list(TRACE_KEY_ALIASES), n=1)
                 problems.add(i + 1, None, f"unknown condition '{key}'" + (f" - did you mean '{hint[0]}'?"
                              if hint else "") + f"; valid: {', '.join(TRACE_KEYS)}")
                 continue
