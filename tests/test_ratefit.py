@@ -203,6 +203,8 @@ def test_outlier_flagged_by_line():
     fit = fit_rate_table(_table(T12, k, 0.03 * k), "arrhenius")
     assert list(np.flatnonzero(fit.outliers)) == [5]
     assert fit.table.line[fit.outliers][0] == 7
+    # measured above the fit: positive residual (data minus fit)
+    assert fit.standardised_residuals[5] > 3 and fit.residuals_ln[5] > 0
     assert fit.result.reduced_chi2 > 3 and fit.result.covariance_scale == fit.result.reduced_chi2
 
 
@@ -272,3 +274,15 @@ def test_snippet_refuses_a_unit_mismatch_and_a_wrong_reaction():
 def test_override_text_is_the_one_spelling():
     assert mechanism_override_text("stratosphere", ["a  X -> Y  constant k=1"]) == \
         'include "stratosphere"\n\n[replace]\na  X -> Y  constant k=1\n'
+
+
+def test_clean_data_rarely_flag_outliers():
+    # Gaussian noise: |standardised residual| > 3 should be rare (0.3 % for a normal variable;
+    # somewhat more for a studentised one with few degrees of freedom; common practice, no source)
+    rng = np.random.default_rng(12)
+    k_true = _arrhenius(T12, 2.3e-11, 200.0)
+    flagged = 0
+    for _ in range(200):
+        k = k_true * np.exp(rng.normal(0, 0.05, T12.size))
+        flagged += int(fit_rate_table(_table(T12, k, 0.05 * k), "arrhenius").outliers.sum())
+    assert flagged / (200 * T12.size) < 0.01

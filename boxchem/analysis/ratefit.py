@@ -152,7 +152,7 @@ def weighted_least_squares(model, p0, y, sigma, *, names, bounds=None, scaling="
     U = J @ VT.T / s
     leverage = np.sum(U**2, axis=1)
     return LeastSquaresResult(values=best.x, covariance=cov * scale, chi2=chi2, dof=dof,
-                              covariance_scale=scale, weighted_residuals=-best.fun,
+                              covariance_scale=scale, weighted_residuals=best.fun,
                               leverage=leverage, jacobian=J, message=str(best.message))
 
 

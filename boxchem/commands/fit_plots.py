@@ -135,9 +135,12 @@ def plot_rate_fit(fit, path, *, reaction=None, mechanism=None, title: str = "") 
     text = "\n".join(f"{key} = {p[key]:.4g} ± {s[key]:.2g}" for key in s)
     text += f"\nf298 = {fit.f298:.3f}, g = {fit.g:.0f} K"
     text += f"\nchi2/dof = {fit.result.reduced_chi2:.2f}" if fit.weighted else "\n(unweighted)"
-    ax.text(0.02, 0.03, text, transform=ax.transAxes, fontsize=8.5, va="bottom",
-            bbox={"facecolor": "white", "alpha": 0.8, "edgecolor": "0.8"})
-    ax.legend(fontsize=7.5, loc="upper right")
+    text += _common_note(tab)
+    # the statistics box goes in the empty corner on the left: below a falling line, above a rising one
+    rising = lnk[-1] < lnk[0]        # Tg increases, so 1000/T decreases along the grid
+    ax.text(0.02, 0.97 if rising else 0.03, text, transform=ax.transAxes, fontsize=8.5,
+            va="top" if rising else "bottom", bbox={"facecolor": "white", "alpha": 0.8, "edgecolor": "0.8"})
+    ax.legend(fontsize=7.5, loc="lower right" if rising else "upper right")
     ax.set_title(title or f"{quantity}(T) fitted to {tab.name}", fontsize=10)
     top = ax.secondary_xaxis("top", functions=(lambda v: 1000.0 / np.maximum(v, 1e-9),
                                                lambda v: 1000.0 / np.maximum(v, 1e-9)))
@@ -148,6 +151,12 @@ def plot_rate_fit(fit, path, *, reaction=None, mechanism=None, title: str = "") 
     saved = save_figure_atomic(fig, path)
     plt.close(fig)
     return saved
+
+
+def _common_note(table) -> str:
+    if not table.common_rel_sigma:
+        return ""
+    return f"\ncommon ±{table.common_rel_sigma * 100:.3g} % (in the band,\nnot in the error bars)"
 
 
 def _residual_panel(axr, x, fit):
@@ -212,6 +221,7 @@ def _plot_falloff(fit, path, *, reaction=None, mechanism=None, title=""):
     text += f"\nFc = {p['Fc']:.3g}" + (" (fixed)" if "Fc" not in s else "") + f", Tref = {p['Tref']:g} K"
     text += f"\nf298 = {fit.f298:.3f}, g = {fit.g:.0f} K"
     text += f"\nchi2/dof = {fit.result.reduced_chi2:.2f}" if fit.weighted else "\n(unweighted)"
+    text += _common_note(tab)
     ax.text(0.98, 0.03, text, transform=ax.transAxes, fontsize=8.5, va="bottom", ha="right",
             bbox={"facecolor": "white", "alpha": 0.8, "edgecolor": "0.8"})
     ax.legend(fontsize=7.5, loc="upper left")
