@@ -127,15 +127,21 @@ def weighted_least_squares(model, p0, y, sigma, *, names, bounds=None, scaling="
         raise FitError("the fit failed at every starting point (the model is not finite there); "
                        "check the data's units and the chosen law")
     J = best.jac
-    # covariance as curve_fit computes it: Moore-Penrose inverse of J^T J via SVD, with
-    # singular values below eps * max(shape) * s_max treated as zero
-    _, s, VT = np.linalg.svd(J, full_matrices=False)
+    # covariance as curve_fit computes it (Moore-Penrose inverse of J^T J via SVD, singular values
+    # below eps * max(shape) * s_max count as zero), on the column-scaled Jacobian so that the
+    # rank test does not depend on the parameters' units (a slope in cm3 s-1 beside an intercept in s-1)
+    norms = np.linalg.norm(J, axis=0)
+    if np.any(norms == 0):
+        missing = ", ".join(n for n, v in zip(names, norms) if v == 0)
+        raise FitError(f"the data do not depend on {missing}: fix it or use a simpler law")
+    Js = J / norms
+    _, s, VT = np.linalg.svd(Js, full_matrices=False)
     threshold = np.finfo(float).eps * max(J.shape) * s[0]
     if np.any(s <= threshold):
         raise FitError("the data do not determine every parameter (" + ", ".join(names) + "): the "
                        "Jacobian is rank deficient; fix a parameter, use a simpler law, or add "
                        "measurements over a wider range of T (and [M])")
-    cov = (VT.T / s**2) @ VT
+    cov = ((VT.T / s**2) @ VT) / np.outer(norms, norms)
     dof = y.size - n_par
     chi2 = float(np.sum(best.fun**2))
     red = chi2 / dof if dof > 0 else math.nan
@@ -149,7 +155,7 @@ def weighted_least_squares(model, p0, y, sigma, *, names, bounds=None, scaling="
     else:
         scale = 1.0
     # leverage h_ii = diag(J (J^T J)^-1 J^T): the share of point i in its own fitted value
-    U = J @ VT.T / s
+    U = Js @ VT.T / s
     leverage = np.sum(U**2, axis=1)
     return LeastSquaresResult(values=best.x, covariance=cov * scale, chi2=chi2, dof=dof,
                               covariance_scale=scale, weighted_residuals=best.fun,

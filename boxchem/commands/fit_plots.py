@@ -245,7 +245,7 @@ def plot_traces(fits, path, *, max_columns: int = 4) -> Path:
     n = len(fits)
     ncol = min(max_columns, n)
     nrow = math.ceil(n / ncol)
-    fig = plt.figure(figsize=(3.6 * ncol, 3.3 * nrow))
+    fig = plt.figure(figsize=(3.8 * ncol, 3.6 * nrow))
     outer = fig.add_gridspec(nrow, ncol, hspace=0.45, wspace=0.35)
     for i, tf in enumerate(fits):
         inner = outer[i // ncol, i % ncol].subgridspec(2, 1, height_ratios=[3, 1], hspace=0.05)
@@ -259,9 +259,11 @@ def plot_traces(fits, path, *, max_columns: int = 4) -> Path:
         ax.plot(tr.time[used] * scale, tf.model_signal, color="tab:red", lw=1.3)
         axr.plot(tr.time[used] * scale, tr.signal[used] - tf.model_signal, ".", color="k", ms=1.5)
         axr.axhline(0, color="tab:red", lw=0.8)
-        rel = tf.k_sigma / tf.k
-        ax.set_title(f"{tr.name}\n{tr.temperature:.0f} K, [M] {tr.air_density:.2g}; "
-                     f"{tf.label} = {tf.k:.3g} ± {rel * 100:.2g} %", fontsize=7.5)
+        rel = tf.k_sigma_fit / tf.k
+        shared = f", cross section ±{tr.cross_section_rel_sigma * 100:.2g} %" \
+            if tf.k_sigma != tf.k_sigma_fit else ""
+        ax.set_title(f"{tr.name}\n{tr.temperature:.0f} K, [M] {tr.air_density:.2g} cm-3\n"
+                     f"{tf.label} = {tf.k:.3g} ± {rel * 100:.2g} % (fit){shared}", fontsize=7)
         ax.set_ylabel({"absorbance": "absorbance (ln)", "concentration": "[A] [cm-3]"}
                       .get(tr.signal_kind, "signal [arb]"), fontsize=7.5)
         ax.tick_params(labelsize=7, labelbottom=False)
