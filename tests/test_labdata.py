@@ -54,6 +54,14 @@ def test_space_separated_table_with_bracket_units_and_u_of_k(tmp_path):
     assert np.all(np.isnan(t.air_density))
 
 
+def test_quantity_calculus_headers(tmp_path):
+    # 'T / K' and 'k / 1e-12 cm3 molecule-1 s-1' as papers' tables write them; semicolons
+    path = _write(tmp_path, "q.csv", "T / K; k / 1e-12 cm3 molecule-1 s-1; k_err / %\n298; 12.0; 5\n")
+    t = read_rate_table(path)
+    np.testing.assert_allclose(t.value, [1.2e-11])
+    np.testing.assert_allclose(t.sigma, [0.6e-12])
+
+
 def test_forward_reverse_pairs_give_equilibrium_constant(tmp_path):
     path = _write(tmp_path, "d.txt", "T [K] k_forward [cm3 molecule-1 s-1] k_forward_err [%] k_reverse [s-1] "
                   "k_reverse_err [%]\n250 1e-13 3 2 4\n")

@@ -104,15 +104,20 @@ def test_coverage_of_one_and_two_sigma_intervals_over_many_seeds():
     inside2 = np.zeros((n, 2), bool)
     truth = np.array([math.log(2.3e-11), 200.0])
     k_true = _arrhenius(T12, 2.3e-11, 200.0)
+    within_f = np.zeros(n, bool)
     for i in range(n):
         k = k_true * np.exp(rng.normal(0, rel, T12.size))
         fit = fit_rate_table(_table(T12, k, rel * k), "arrhenius", scale_covariance="never")
         se = np.sqrt(np.diag(fit.covariance))
         inside1[i] = np.abs(fit.values - truth) < se
         inside2[i] = np.abs(fit.values - truth) < 2 * se
+        # f298 read as a lognormal geometric standard deviation: Pr(k/f <= k_true <= k f) = 68 %
+        # (the uncertainty convention of the KIDA database, kida.obs.u-bordeaux1.fr/help-uncertainties)
+        within_f[i] = abs(fit.ln_k(298.0) - math.log(2.3e-11 * math.exp(-200.0 / 298.0))) < math.log(fit.f298)
     # binomial 1-sigma of the rate over 600 seeds: 1.9 % (68 %), 0.85 % (95 %); allow ~3 sigma
     assert np.all(np.abs(inside1.mean(axis=0) - 0.683) < 0.06)
     assert np.all(np.abs(inside2.mean(axis=0) - 0.954) < 0.03)
+    assert abs(within_f.mean() - 0.683) < 0.06
 
 
 def test_coverage_of_falloff_intervals_and_of_the_band():

@@ -22,7 +22,10 @@ Evaluation-convention uncertainty (CONTRACTS.md, f298/g keys), at 1 sigma:
 ln f298 = sigma_lnk(298 K), and g [K] the smallest value for which
 f(T) = f298 exp(|g (1/T - 1/298)|) covers the 1-sigma band at every
 measured temperature (for falloff: at every measured [M] as well, and
-f298 is the largest sigma_lnk(298 K, [M]) over the measured [M]).
+f298 is the largest sigma_lnk(298 K, [M]) over the measured [M]).  So f298 is a
+lognormal geometric standard deviation (Pr(k/f <= k_true <= k f) ~ 68 %), as
+the KIDA kinetic database defines its F0 = exp(dk/k0) (kida.obs.u-bordeaux1.fr,
+"Uncertainty representations in KIDA").
 Outliers: |standardised residual| > 3, the externally studentised residual
 r_i / sqrt(s2_(i) (1 - h_ii)) with h the leverage (hat-matrix diagonal) of
 the weighted fit and s2_(i) the reduced chi2 without point i (at least 1

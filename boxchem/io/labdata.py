@@ -178,6 +178,11 @@ def _name_and_unit(text: str) -> tuple[str, str | None]:
     # 'u(k)' is a name (the uncertainty of k), not 'u' with the unit 'k'
     if m and m.group(1) and m.group(1).strip().lower() != "u":
         return m.group(1).strip(), (m.group(2) if m.group(2) is not None else m.group(3)).strip()
+    if "/" in text:
+        # the quantity-calculus spelling of papers' tables: 'T / K', 'k / 1e-12 cm3 molecule-1 s-1'
+        name, _, unit = text.partition("/")
+        if name.strip() and unit.strip():
+            return name.strip(), unit.strip()
     return text.strip(), None
 
 
