@@ -33,6 +33,13 @@ def test_fit_arrhenius_writes_a_runnable_mechanism_and_plot(tmp_path, capsys):
     r = next(r for r in mech.reactions if r.id == "cl_o3")
     assert r.law == "arrhenius" and r.f298 > 1 and "cl_o3_lab.csv" in r.ref
     # the synthetic file's invented truth is A = 2.6e-11, E/R = 230 K (examples/lab-fit/make_examples.py)
+    res = tmp_path / "res.csv"
+    assert main(["fit", str(EXAMPLES / "cl_o3_lab.csv"), "--law", "arrhenius", "--residuals", str(res)]) == 0
+    import csv
+    rows = list(csv.DictReader(line for line in res.read_text().splitlines() if not line.startswith("#")))
+    flagged = [r for r in rows if r["outlier"] == "1"]
+    # the planted outlier was multiplied by 1.25: above the fit
+    assert [r["line"] for r in flagged] == ["9"] and float(flagged[0]["residual_ln"]) > 0.15
     assert main(["fit", str(EXAMPLES / "cl_o3_lab.csv"), "--law", "arrhenius", "--drop-outliers"]) == 0
     text = capsys.readouterr().out
     assert "refitting without the 1 flagged outlier(s)" in text

@@ -53,6 +53,8 @@ def register(subparsers) -> None:
                     "(default: that of the replaced line, else 0.6)")
     fc.add_argument("--fit-fc", action="store_true", help="fit Fc as well (falloff)")
     p.add_argument("--bath", metavar="GAS", help="use only the rows with this bath gas")
+    p.add_argument("--residuals", metavar="CSV", help="write every point with its fitted value, residual, "
+                   "standardised residual and outlier flag")
     p.add_argument("--drop-outliers", action="store_true",
                    help="fit once, then fit again without the flagged outliers (listed in the output)")
     p.set_defaults(func=run)
@@ -63,7 +65,7 @@ def run(args) -> int:
     from ..io.labdata import read_rate_table
     from .fit_plots import plot_rate_fit, write_text_atomic
 
-    for option, value in (("-o", args.output), ("--plot", args.plot)):
+    for option, value in (("-o", args.output), ("--plot", args.plot), ("--residuals", args.residuals)):
         if value and not Path(value).resolve().parent.is_dir():
             raise BoxchemError(f"{option} {value}: folder {str(Path(value).parent)!r} does not exist")
     if args.plot and Path(args.plot).suffix.lower() not in (".png", ".pdf", ".svg"):
@@ -123,6 +125,9 @@ def run(args) -> int:
     if text is not None:
         write_text_atomic(args.output, text)
         print(f"wrote {args.output} (include it, or point a scenario's [run] mechanism at it)")
+    if args.residuals:
+        write_text_atomic(args.residuals, residual_table(fit))
+        print(f"wrote {args.residuals}")
     if args.plot:
         plot_rate_fit(fit, args.plot, reaction=reaction, mechanism=mechanism)
         print(f"wrote {args.plot}")
@@ -174,6 +179,29 @@ def report(fit) -> str:
                      f"{q} = {fit.k_effective[i]:.4g}, standardised residual {z[i]:+.2f} (kept in the fit)")
     lines += [f"  note: {n}" for n in fit.notes]
     return "\n".join(lines)
+
+
+RESIDUAL_COLUMNS = ["line", "temperature_K", "air_density_cm-3", "bath", "measured", "fitted", "units",
+                    "rel_sigma", "residual_ln", "standardised_residual", "outlier"]
+
+
+def residual_table(fit) -> str:
+    """CSV of every point: file line, conditions, measured and fitted value, residuals, outlier flag."""
+    from ._csv import csv_text
+
+    tab = fit.table
+    fitted = np.exp(fit.ln_k(tab.temperature, tab.air_density if fit.law == "falloff" else None))
+    units = "cm3 molecule-1" if fit.law == "equilibrium" else \
+        ("cm3 molecule-1 s-1" if fit.law == "falloff" else _long_units(tab.value_units))
+    rows = [{"line": int(tab.line[i]), "temperature_K": float(tab.temperature[i]),
+             "air_density_cm-3": float(tab.air_density[i]), "bath": tab.bath_gas[i],
+             "measured": float(fit.k_effective[i]), "fitted": float(fitted[i]), "units": units,
+             "rel_sigma": float(fit.rel_sigma[i]), "residual_ln": float(fit.residuals_ln[i]),
+             "standardised_residual": float(fit.standardised_residuals[i]),
+             "outlier": int(fit.outliers[i])} for i in range(len(tab))]
+    head = (f"# residuals of the {fit.law} fit to {tab.source}: residual_ln = ln(measured) - ln(fitted); "
+            "standardised = externally studentised; outlier = |standardised| > 3\n")
+    return head + csv_text(rows, RESIDUAL_COLUMNS)
 
 
 def _long_units(units: str) -> str:
