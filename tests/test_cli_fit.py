@@ -100,3 +100,10 @@ def test_bad_input_exit_2_with_message(tmp_path, capsys, args, message):
     captured = capsys.readouterr()
     assert message in captured.err and "Traceback" not in captured.err
     assert not (tmp_path / "x.mech").exists()
+
+
+def test_commands_listed_in_main_help(capsys):
+    with pytest.raises(SystemExit):
+        main(["--help"])
+    out = capsys.readouterr().out
+    assert "fit-traces" in out and " fit " in out
