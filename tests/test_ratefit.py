@@ -226,11 +226,13 @@ def test_common_uncertainty_widens_amplitudes_only():
 @pytest.mark.parametrize("law, T, message", [
     ("modified-arrhenius", [200, 200, 300, 300], "2 distinct temperature(s) cannot determine"),
     ("falloff", [200, 250, 300], "a falloff fit needs p or [M]"),
+    ("falloff-one-T", [250, 250, 250, 250, 250], "need measurements at two or more temperatures"),
 ])
 def test_underdetermined_or_incomplete_fits_are_errors(law, T, message):
     k = _arrhenius(np.asarray(T, float), 2.3e-11, 200.0)
+    M = np.geomspace(1e17, 1e19, len(T)) if law == "falloff-one-T" else None
     with pytest.raises(FitError, match=message.replace("[", r"\[").replace("(", r"\(").replace(")", r"\)")):
-        fit_rate_table(_table(T, k, 0.05 * k), law)
+        fit_rate_table(_table(T, k, 0.05 * k, M=M), law.replace("-one-T", ""))
 
 
 def test_mixed_bath_gases_refused_for_falloff():

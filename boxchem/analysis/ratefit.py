@@ -48,6 +48,11 @@ __all__ = ["FitError", "RateFit", "LAWS", "fit_rate_table", "weighted_least_squa
 
 #: |standardised residual| above which a point is flagged as an outlier
 OUTLIER_THRESHOLD = 3.0
+#: smallest singular value, relative to the largest, of the column-scaled Jacobian for which the
+#: parameters count as determined (a correlation closer to +-1 than about 1 - 1e-14 is not)
+RANK_TOLERANCE = 1e-7
+#: largest f298 a written mechanism line may carry (beyond it the fit does not determine k(298 K))
+MAX_WRITTEN_F298 = 100.0
 #: the evaluations' reference temperature of f298 [K]
 T_REFERENCE_UNCERTAINTY = 298.0
 #: fit laws and their parameters in fit space
@@ -139,7 +144,9 @@ def weighted_least_squares(model, p0, y, sigma, *, names, bounds=None, scaling="
         raise FitError(f"the data do not depend on {missing}: fix it or use a simpler law")
     Js = J / norms
     _, s, VT = np.linalg.svd(Js, full_matrices=False)
-    threshold = np.finfo(float).eps * max(J.shape) * s[0]
+    # the Jacobian comes from finite differences (relative error ~1e-10), so exactly collinear
+    # parameters (k0 and n at one temperature) show up as s_min/s_max ~ 1e-9, not 1e-16
+    threshold = max(RANK_TOLERANCE, np.finfo(float).eps * max(J.shape)) * s[0]
     if np.any(s <= threshold):
         raise FitError("the data do not determine every parameter (" + ", ".join(names) + "): the "
                        "Jacobian is rank deficient; fix a parameter, use a simpler law, or add "
@@ -270,7 +277,8 @@ class RateFit:
     def f298(self) -> float:
         """Uncertainty factor at 298 K: exp(1-sigma of ln k at 298 K) (max over measured [M] for falloff)."""
         M = np.unique(self.table.air_density) if self.law == "falloff" else None
-        return float(math.exp(np.max(self.ln_k_sigma(T_REFERENCE_UNCERTAINTY, M))))
+        ln_f = float(np.max(self.ln_k_sigma(T_REFERENCE_UNCERTAINTY, M)))
+        return math.exp(ln_f) if ln_f < 700.0 else math.inf
 
     @property
     def g(self) -> float:
@@ -280,6 +288,8 @@ class RateFit:
         if M is not None:
             sigma = sigma.max(axis=1)
         distance = np.abs(1.0 / self.table.temperature - 1.0 / T_REFERENCE_UNCERTAINTY)
+        if not math.isfinite(self.f298):
+            return math.inf
         excess = sigma - math.log(self.f298)
         ok = distance > 1e-9
         if not np.any(ok):
@@ -367,6 +377,9 @@ def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float
             raise FitError(f"{table.source}: rows use the bath gases {', '.join(baths)}; third-body "
                            "efficiencies differ, so fit one at a time (boxchem fit --bath NAME)")
     n_T = np.unique(np.round(T, 1)).size
+    if law == "falloff" and n_T < 2:
+        raise FitError(f"{table.source}: all rows are at {T[0]:g} K; the temperature exponents n and m "
+                       "of a falloff fit need measurements at two or more temperatures")
     if law != "falloff" and n_T < len(LAWS[law]):
         raise FitError(f"{table.source}: {n_T} distinct temperature(s) cannot determine the "
                        f"{len(LAWS[law])} parameters of {law}")
@@ -432,10 +445,11 @@ def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float
         notes.append(f"a common (correlated) relative uncertainty of {table.common_rel_sigma * 100:.3g} % "
                      "from the file is added to the amplitude parameters and the band")
     if law == "falloff" and fc is None:
-        fcv = res.values[names.index("Fc")]
-        if fcv <= 0.0501 or fcv >= 0.9999:
-            notes.append(f"Fc ended on its bound ({fcv:.3g}); the data do not determine it - fix it "
-                         "(--fc 0.6)")
+        i = names.index("Fc")
+        fcv, fcs = res.values[i], math.sqrt(covariance[i, i])
+        if fcv <= 0.06 or fcv >= 0.99 or fcs > 0.5 * fcv:
+            notes.append(f"Fc = {fcv:.3g} +- {fcs:.2g} (bounds 0.05-1): the data do not determine Fc; "
+                         "fix it (--fc 0.6)")
     return RateFit(law=law, table=table, names=tuple(names), values=res.values, covariance=covariance,
                    tref=tref, fc=fc, result=res, weighted=weighted, k_effective=value,
                    rel_sigma=rel, notes=notes)
@@ -525,6 +539,9 @@ def mechanism_snippet(fit: RateFit, mechanism, reaction_id: str, *, base: str,
     if fit.law == "falloff" and not reaction.third_body:
         raise FitError(f"--reaction {reaction_id}: a falloff line needs M on the left of its equation "
                        f"({reaction.equation})")
+    if not fit.f298 < MAX_WRITTEN_F298:
+        raise FitError(f"the fit leaves k at 298 K undetermined (f298 = {fit.f298:.3g}); no line written - "
+                       "fix parameters (--fc, a simpler law) or add measurements nearer 298 K")
     source_name = fit.table.name
     line = reaction_line(fit, reaction, source_name)
     text = _snippet_comments(fit, reaction, command) + mechanism_override_text(base, [line])
