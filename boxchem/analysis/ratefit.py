@@ -109,7 +109,12 @@ def weighted_least_squares(model, p0, y, sigma, *, names, bounds=None, scaling="
         raise FitError(f"{y.size} points cannot determine {n_par} parameters ({', '.join(names)})")
 
     def residual(p):
-        return (y - model(p)) / sigma
+        try:
+            return (y - model(p)) / sigma
+        except (OverflowError, ZeroDivisionError):
+            # a trial step far outside the model's range (exp of a huge log-parameter): an infinite
+            # residual makes the optimiser step back
+            return np.full(y.shape, np.inf)
 
     lo, hi = bounds if bounds is not None else (-np.inf, np.inf)
     best = None
@@ -125,7 +130,7 @@ def weighted_least_squares(model, p0, y, sigma, *, names, bounds=None, scaling="
                 res = optimize.least_squares(residual, start, jac="3-point", bounds=(lo, hi),
                                              method="trf", x_scale="jac", xtol=1e-12, ftol=1e-12,
                                              gtol=1e-12, max_nfev=4000)
-        except ValueError:
+        except (ValueError, OverflowError):
             continue
         if not np.all(np.isfinite(res.fun)):
             continue
