@@ -179,3 +179,36 @@ def test_pseudo_first_order_trace_needs_co_reactant(tmp_path):
         read_trace(_write(tmp_path, "p.txt", text))
     tr = read_trace(_write(tmp_path, "q.txt", text.replace("t [us]", "co_reactant = 2e13 cm-3\nt [us]")))
     assert tr.co_reactant == 2e13 and tr.time[1] == pytest.approx(1e-6)
+
+
+def test_mangled_lab_files_give_boxchem_errors_not_tracebacks():
+    # random character edits of the example files: every outcome is a result or a BoxchemError
+    # (a regression test for overflow in trial fit steps found this way; common practice, no source)
+    import random
+    from pathlib import Path
+
+    from boxchem.analysis.ratefit import fit_rate_table
+    from boxchem.analysis.traces import fit_traces
+    from boxchem.errors import BoxchemError
+
+    folder = Path(__file__).resolve().parents[1] / "examples" / "lab-fit"
+    cases = [(folder / "cl_o3_lab.csv", "arrhenius"), (folder / "clo_clo_m_lab.tsv", "falloff"),
+             (folder / "cl2o2_equilibrium_lab.txt", "equilibrium"),
+             (sorted((folder / "traces").glob("clo_*"))[0], None),
+             (sorted((folder / "traces").glob("cl_o3_*"))[0], None)]
+    rng = random.Random(4)
+    alphabet = list(" ,\t#[]()%=-+.eE0123456789kKTpM/\n;")
+    for _ in range(80):
+        path, law = rng.choice(cases)
+        chars = list(path.read_text())
+        for _ in range(rng.randint(1, 5)):
+            chars[rng.randrange(len(chars))] = rng.choice(alphabet)
+        text = "".join(chars)
+        try:
+            if law is None:
+                fit_traces([read_trace("mangled.txt", text=text)])
+            else:
+                fit = fit_rate_table(read_rate_table("mangled.csv", text=text), law)
+                assert fit.f298 >= 1.0 and fit.g >= 0.0
+        except BoxchemError as exc:
+            assert "mangled" in str(exc) or "fit" in str(exc) or "data" in str(exc) or "trace" in str(exc)

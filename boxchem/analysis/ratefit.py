@@ -51,6 +51,9 @@ OUTLIER_THRESHOLD = 3.0
 #: smallest singular value, relative to the largest, of the column-scaled Jacobian for which the
 #: parameters count as determined (a correlation closer to +-1 than about 1 - 1e-14 is not)
 RANK_TOLERANCE = 1e-7
+#: cap on the optimiser's function evaluations per fitted parameter (a good fit needs a few dozen;
+#: the cap keeps a hopeless start on mangled data from running for minutes)
+MAX_EVALUATIONS_PER_PARAMETER = 100
 #: largest f298 a written mechanism line may carry (beyond it the fit does not determine k(298 K))
 MAX_WRITTEN_F298 = 100.0
 #: the evaluations' reference temperature of f298 [K]
@@ -129,16 +132,19 @@ def weighted_least_squares(model, p0, y, sigma, *, names, bounds=None, scaling="
             with np.errstate(all="ignore"):
                 res = optimize.least_squares(residual, start, jac="3-point", bounds=(lo, hi),
                                              method="trf", x_scale="jac", xtol=1e-12, ftol=1e-12,
-                                             gtol=1e-12, max_nfev=4000)
+                                             gtol=1e-12, max_nfev=MAX_EVALUATIONS_PER_PARAMETER * n_par)
         except (ValueError, OverflowError):
             continue
         if not np.all(np.isfinite(res.fun)):
             continue
-        if best is None or res.cost < best.cost:
+        if best is None or res.cost < best.cost:  # status 0 (evaluation cap) is an error below
             best = res
     if best is None:
         raise FitError("the fit failed at every starting point (the model is not finite there); "
                        "check the data's units and the chosen law")
+    if best.status == 0:
+        raise FitError(f"the fit did not converge within {best.nfev} evaluations of the model; check the "
+                       "data (units, outliers) and the law, or give starting values")
     J = best.jac
     # covariance as curve_fit computes it (Moore-Penrose inverse of J^T J via SVD, singular values
     # below eps * max(shape) * s_max count as zero), on the column-scaled Jacobian so that the
