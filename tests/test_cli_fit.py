@@ -91,6 +91,8 @@ def test_fit_traces_then_fit(tmp_path, capsys):
     (["fit", "{ex}/cl_o3_lab.csv", "--law", "arrhenius", "--plot", "/no/such/dir/f.png"], "does not exist"),
     (["fit", "{bad}", "--law", "arrhenius"], "bad.csv:3:6: 'oops'"),
     (["fit-traces", "{bad}"], "missing condition 'kind = ...'"),
+    (["fit", "{ex}/cl_o3_lab.csv", "--law", "arrhenius", "--fix", "n=1"], "--fix n: not a fitted parameter"),
+    (["fit", "{ex}/cl_o3_lab.csv", "--law", "arrhenius", "--fix", "A"], "write KEY=NUMBER"),
 ])
 def test_bad_input_exit_2_with_message(tmp_path, capsys, args, message):
     bad = tmp_path / "bad.csv"

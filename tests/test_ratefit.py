@@ -293,3 +293,17 @@ def test_clean_data_rarely_flag_outliers():
         k = k_true * np.exp(rng.normal(0, 0.05, T12.size))
         flagged += int(fit_rate_table(_table(T12, k, 0.05 * k), "arrhenius").outliers.sum())
     assert flagged / (200 * T12.size) < 0.01
+
+
+def test_fixed_exponents_allow_a_falloff_fit_at_one_temperature():
+    # JPL 19-5 Table 2 ClO + ClO + M (recalled from memory) at 250 K only, n and m fixed at theirs
+    T = np.full(6, 250.0)
+    M = np.geomspace(1e17, 3e19, 6)
+    k = _falloff(T, M, 1.9e-32, 3.6, 3.7e-12, 1.6)
+    fit = fit_rate_table(_table(T, k, 0.05 * k, M=M), "falloff", fixed={"n": 3.6, "m": 1.6})
+    assert fit.names == ("ln_k0", "ln_kinf")
+    assert fit.parameters["k0"] == pytest.approx(1.9e-32, rel=1e-5)
+    assert fit.parameters["kinf"] == pytest.approx(3.7e-12, rel=1e-4)
+    assert fit.parameters["n"] == 3.6 and "n, m fixed" in fit.summary()
+    with pytest.raises(FitError, match="valid: k0, n, kinf, m"):
+        fit_rate_table(_table(T, k, 0.05 * k, M=M), "falloff", fixed={"E/R": 1.0})

@@ -199,10 +199,11 @@ class RateFit:
     k_effective: np.ndarray          # the fitted quantity: k (cm3 s-1 for falloff), or K
     rel_sigma: np.ndarray            # relative 1-sigma used for each point
     notes: list[str] = field(default_factory=list)
+    fixed: dict[str, float] = field(default_factory=dict)   # fixed parameters, in fit space
 
     # ---- model
     def _params(self, p) -> dict[str, float]:
-        return _param_dict(self.law, self.names, p, self.tref, self.fc)
+        return _param_dict(self.law, self.names, p, self.tref, self.fc, self.fixed)
 
     def ln_model(self, p, temperature, air_density=None) -> np.ndarray:
         """ln of the law at T [K] (and [M] [cm-3]) for fit-space parameters ``p``."""
@@ -325,6 +326,9 @@ class RateFit:
             M = self.table.air_density
             parts.append(f"[M] {M.min():.2g}-{M.max():.2g} cm-3")
         parts.append(f"chi2/dof={r.reduced_chi2:.2f}" if self.weighted else "unweighted")
+        if self.fixed:
+            fixed = [n[3:] if n.startswith("ln_") else n for n in self.fixed]
+            parts.append(f"{', '.join(fixed)} fixed")
         if self.outliers.any():
             parts.append(f"{int(self.outliers.sum())} outlier(s) flagged")
         return ", ".join(parts)
@@ -349,7 +353,8 @@ def _start_arrhenius(T, lnk, w):
 
 
 def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float | None = 0.6,
-                   start: dict[str, float] | None = None, scale_covariance: str | None = None) -> RateFit:
+                   start: dict[str, float] | None = None, scale_covariance: str | None = None,
+                   fixed: dict[str, float] | None = None) -> RateFit:
     """Fit ``law`` (a key of :data:`LAWS`) to a rate table.
 
     arrhenius: k = A exp(-(E/R)/T); modified-arrhenius: k = A (T/tref)^n
@@ -360,10 +365,13 @@ def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float
     k_forward/k_reverse).  ``start`` overrides starting values (mechanism keys).
     ``scale_covariance`` overrides the chi2/dof scaling of the covariance
     (default "if-larger" with uncertainties, "always" without; see
-    :func:`weighted_least_squares`).
+    :func:`weighted_least_squares`).  ``fixed`` holds parameters (mechanism
+    keys, e.g. ``{"n": 3.6, "m": 1.6}``) kept at the given values, for data
+    that cannot determine them (one temperature, one pressure regime).
     """
     if law not in LAWS:
         raise FitError(f"unknown law {law!r}; valid: {', '.join(LAWS)}")
+    fixed_fit = _fixed_in_fit_space(law, fixed or {}, fc)
     if law == "equilibrium" and table.kind != "K":
         raise FitError(f"{table.source}: an equilibrium fit needs k_forward and k_reverse columns "
                        "(or a K column); this file gives k")
@@ -388,12 +396,14 @@ def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float
             raise FitError(f"{table.source}: rows use the bath gases {', '.join(baths)}; third-body "
                            "efficiencies differ, so fit one at a time (boxchem fit --bath NAME)")
     n_T = np.unique(np.round(T, 1)).size
-    if law == "falloff" and n_T < 2:
+    if law == "falloff" and n_T < 2 and not {"n", "m"} <= set(fixed_fit):
         raise FitError(f"{table.source}: all rows are at {T[0]:g} K; the temperature exponents n and m "
-                       "of a falloff fit need measurements at two or more temperatures")
-    if law != "falloff" and n_T < len(LAWS[law]):
+                       "of a falloff fit need measurements at two or more temperatures, or fix them "
+                       "(boxchem fit --fix n=3.6 --fix m=1.6)")
+    n_free = len(LAWS[law]) - len(fixed_fit)
+    if law != "falloff" and n_T < n_free:
         raise FitError(f"{table.source}: {n_T} distinct temperature(s) cannot determine the "
-                       f"{len(LAWS[law])} parameters of {law}")
+                       f"{n_free} free parameters of {law}")
 
     weighted = table.sigma is not None
     rel = table.sigma / table.value if weighted else np.ones_like(value)
@@ -432,10 +442,19 @@ def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float
             alt = list(p0)
             alt[1], alt[3], alt[2] = n0, m0, math.log(kinf_guess * f_inf)
             starts.append(alt)
+    # keep only the free parameters
+    free = [i for i, n in enumerate(names) if n not in fixed_fit]
+    if not free:
+        raise FitError("every parameter is fixed: nothing to fit")
+    lo = np.broadcast_to(np.asarray(lo, dtype=float), (len(names),))[free]
+    hi = np.broadcast_to(np.asarray(hi, dtype=float), (len(names),))[free]
+    p0 = [p0[i] for i in free]
+    starts = [[st[i] for i in free] for st in starts]
+    names = [names[i] for i in free]
     fit_fc = fc
 
     def model(p):
-        return _ln_law(law, _param_dict(law, names, p, tref, fit_fc), T, M)
+        return _ln_law(law, _param_dict(law, names, p, tref, fit_fc, fixed_fit), T, M)
 
     scaling = scale_covariance or ("if-larger" if weighted else "always")
     res = weighted_least_squares(model, p0, lnk, rel, names=names, bounds=(lo, hi), scaling=scaling,
@@ -461,13 +480,37 @@ def fit_rate_table(table: RateTable, law: str, *, tref: float = 300.0, fc: float
         if fcv <= 0.06 or fcv >= 0.99 or fcs > 0.5 * fcv:
             notes.append(f"Fc = {fcv:.3g} +- {fcs:.2g} (bounds 0.05-1): the data do not determine Fc; "
                          "fix it (--fc 0.6)")
+    if fixed_fit:
+        notes.append("fixed (not fitted): " + ", ".join(f"{k}={v:g}" for k, v in (fixed or {}).items()))
     return RateFit(law=law, table=table, names=tuple(names), values=res.values, covariance=covariance,
                    tref=tref, fc=fc, result=res, weighted=weighted, k_effective=value,
-                   rel_sigma=rel, notes=notes)
+                   rel_sigma=rel, notes=notes, fixed=fixed_fit)
 
 
-def _param_dict(law, names, p, tref, fc):
-    d = dict(zip(names, p))
+#: mechanism keys fitted through their logarithm
+_LOG_KEYS = {"A": "ln_A", "k0": "ln_k0", "kinf": "ln_kinf", "K": "ln_K"}
+
+
+def _fixed_in_fit_space(law, fixed: dict[str, float], fc) -> dict[str, float]:
+    """{'n': 3.6, 'k0': 2e-32} -> {'n': 3.6, 'ln_k0': ln 2e-32}, checked against the law's keys."""
+    names = LAWS[law] + (("Fc",) if law == "falloff" and fc is None else ())
+    valid = [n[3:] if n.startswith("ln_") else n for n in names]
+    out = {}
+    for key, value in fixed.items():
+        if key not in valid:
+            raise FitError(f"--fix {key}: not a fitted parameter of {law}; valid: {', '.join(valid)}"
+                           + (" (Fc: use --fc)" if key == "Fc" else ""))
+        value = float(value)
+        if not math.isfinite(value) or (key in _LOG_KEYS and value <= 0):
+            raise FitError(f"--fix {key}={value:g}: " + ("must be positive" if key in _LOG_KEYS
+                                                         else "must be a finite number"))
+        out[_LOG_KEYS.get(key, key)] = math.log(value) if key in _LOG_KEYS else value
+    return out
+
+
+def _param_dict(law, names, p, tref, fc, fixed=None):
+    d = dict(fixed or {})
+    d.update(zip(names, p))
     if law in ("arrhenius", "modified-arrhenius"):
         return {"A": math.exp(d["ln_A"]), "E/R": float(d["E/R"]), "n": float(d.get("n", 0.0)),
                 "Tref": float(tref)}
@@ -581,7 +624,7 @@ def _snippet_comments(fit: RateFit, reaction, command: str) -> str:
     out.append("# parameters (1 sigma):")
     for key in s:
         out.append(f"#   {key:<5} = {p[key]:.5g} +- {s[key]:.3g}")
-    fixed = [f"{k}={p[k]:g}" for k in ("Tref", "Fc") if k in p and k not in s]
+    fixed = [f"{k}={p[k]:g}" for k in p if k not in s and not (fit.law == "arrhenius" and k in ("n", "Tref"))]
     if fixed:
         out.append(f"#   fixed: {', '.join(fixed)}")
     corr = fit.correlation

@@ -52,6 +52,9 @@ def register(subparsers) -> None:
     fc.add_argument("--fc", type=float, metavar="FC", help="fixed broadening factor for falloff "
                     "(default: that of the replaced line, else 0.6)")
     fc.add_argument("--fit-fc", action="store_true", help="fit Fc as well (falloff)")
+    p.add_argument("--fix", action="append", default=[], metavar="KEY=VALUE",
+                   help="keep a parameter at a value instead of fitting it (repeatable), e.g. "
+                        "--fix n=3.6 --fix m=1.6 for falloff data at one temperature")
     p.add_argument("--bath", metavar="GAS", help="use only the rows with this bath gas")
     p.add_argument("--residuals", metavar="CSV", help="write every point with its fitted value, residual, "
                    "standardised residual and outlier flag")
@@ -104,13 +107,22 @@ def run(args) -> int:
     if fc is None and not args.fit_fc:
         fc = float(reaction.parameters.get("Fc", 0.6)) if reaction is not None else 0.6
 
-    fit = fit_rate_table(table, args.law, tref=tref, fc=fc)
+    fixed = {}
+    for item in args.fix:
+        key, sep, value = item.partition("=")
+        try:
+            fixed[key.strip()] = float(value)
+        except ValueError:
+            raise BoxchemError(f"--fix {item}: write KEY=NUMBER, e.g. --fix n=3.6") from None
+        if not sep or not key.strip():
+            raise BoxchemError(f"--fix {item}: write KEY=NUMBER, e.g. --fix n=3.6")
+    fit = fit_rate_table(table, args.law, tref=tref, fc=fc, fixed=fixed)
     if args.drop_outliers and fit.outliers.any():
         dropped = fit.table.line[fit.outliers]
         print(report(fit))
         print(f"refitting without the {dropped.size} flagged outlier(s): {args.data} line(s) "
               + ", ".join(str(x) for x in dropped))
-        fit = fit_rate_table(table.select(~fit.outliers), args.law, tref=tref, fc=fc)
+        fit = fit_rate_table(table.select(~fit.outliers), args.law, tref=tref, fc=fc, fixed=fixed)
         fit.notes.append("outliers of a first fit dropped: file line(s) " + ", ".join(str(x) for x in dropped))
     text = None
     if args.output:
@@ -153,8 +165,7 @@ def report(fit) -> str:
     for key in s:
         lines.append(f"  {key:<5} = {p[key]:.5g} +- {s[key]:.3g} (1 sigma, {abs(s[key] / p[key]) * 100:.3g} %)"
                      if p[key] else f"  {key:<5} = {p[key]:.5g} +- {s[key]:.3g} (1 sigma)")
-    fixed = [f"{k}={p[k]:g}" for k in ("Tref", "Fc") if k in p and k not in s
-             and (fit.law != "arrhenius" or k != "Tref")]
+    fixed = [f"{k}={p[k]:g}" for k in p if k not in s and not (fit.law == "arrhenius" and k in ("n", "Tref"))]
     if fixed:
         lines.append(f"  fixed: {', '.join(fixed)}")
     r = fit.result
