@@ -133,6 +133,8 @@ def plot_rate_fit(fit, path, *, reaction=None, mechanism=None, title: str = "") 
     ax.set_ylabel(f"ln ({quantity} / {unit})")
     p, s = fit.parameters, fit.parameter_sigmas
     text = "\n".join(f"{key} = {p[key]:.4g} ± {s[key]:.2g}" for key in s)
+    text += "".join(f"\n{key} = {p[key]:.4g} (fixed)" for key in p
+                    if key not in s and key not in ("Fc", "Tref") and not (fit.law == "arrhenius" and key == "n"))
     text += f"\nf298 = {fit.f298:.3f}, g = {fit.g:.0f} K"
     text += f"\nchi2/dof = {fit.result.reduced_chi2:.2f}" if fit.weighted else "\n(unweighted)"
     text += _common_note(tab)
@@ -218,6 +220,8 @@ def _plot_falloff(fit, path, *, reaction=None, mechanism=None, title=""):
     ax.set_ylabel("k [cm3 molecule-1 s-1] (effective second order)")
     p, s = fit.parameters, fit.parameter_sigmas
     text = "\n".join(f"{key} = {p[key]:.4g} ± {s[key]:.2g}" for key in s)
+    text += "".join(f"\n{key} = {p[key]:.4g} (fixed)" for key in p
+                    if key not in s and key not in ("Fc", "Tref") and not (fit.law == "arrhenius" and key == "n"))
     text += f"\nFc = {p['Fc']:.3g}" + (" (fixed)" if "Fc" not in s else "") + f", Tref = {p['Tref']:g} K"
     text += f"\nf298 = {fit.f298:.3f}, g = {fit.g:.0f} K"
     text += f"\nchi2/dof = {fit.result.reduced_chi2:.2f}" if fit.weighted else "\n(unweighted)"
