@@ -16,6 +16,10 @@ def test_fit_help_has_examples(capsys):
         main(["fit", "--help"])
     out = capsys.readouterr().out
     assert "examples:" in out and "boxchem fit examples/lab-fit/" in out
+    # every example file the help names exists
+    import re
+    named = re.findall(r"examples/lab-fit/[\w./-]+", out)
+    assert named and all((EXAMPLES.parent.parent / p).exists() for p in named)
     with pytest.raises(SystemExit):
         main(["fit-traces", "--help"])
     assert "boxchem fit-traces examples/lab-fit/traces/" in capsys.readouterr().out

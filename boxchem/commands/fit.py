@@ -12,9 +12,10 @@ from ..errors import BoxchemError
 
 EXAMPLE = """examples:
   boxchem fit examples/lab-fit/cl_o3_lab.csv --law arrhenius --reaction cl_o3 -o cl_o3_fit.mech --plot cl_o3.png
-  boxchem fit examples/lab-fit/clo_clo_m_lab.csv --law falloff --reaction clo_clo_m \\
+  boxchem fit examples/lab-fit/clo_clo_m_lab.tsv --law falloff --reaction clo_clo_m \\
       --mechanism stratosphere -o snippet.mech --plot fit.png
-  boxchem fit examples/lab-fit/cl2o2_equilibrium_lab.csv --law equilibrium --reaction cl2o2_m
+  boxchem fit examples/lab-fit/cl2o2_equilibrium_lab.txt --law equilibrium --reaction cl2o2_m
+  boxchem fit one_temperature.csv --law falloff --fix n=3.6 --fix m=1.6
 
 The data file: one measurement per line, columns separated by commas, tabs or
 spaces, units in the header, '#' comments (docs/lab-data.md), e.g.

@@ -12,7 +12,7 @@ from ..errors import BoxchemError
 EXAMPLE = """examples:
   boxchem fit-traces examples/lab-fit/traces/clo_*.csv -o clo_k.csv --plot clo_traces.png
   boxchem fit clo_k.csv --law falloff --reaction clo_clo_m -o clo_fit.mech --plot clo_fit.png
-  boxchem fit-traces examples/lab-fit/traces/cl_o3_*.csv --baseline -o cl_o3_k.csv --plot pfo.png
+  boxchem fit-traces examples/lab-fit/traces/cl_o3_*.txt --baseline -o cl_o3_k.csv --plot pfo.png
 
 A trace file holds its conditions as 'key = value' lines, then a header and
 one row per time (docs/lab-data.md):
