@@ -267,7 +267,8 @@ def plot_traces(fits, path, *, max_columns: int = 4) -> Path:
         shared = f", cross section ±{tr.cross_section_rel_sigma * 100:.2g} %" \
             if tf.k_sigma != tf.k_sigma_fit else ""
         ax.set_title(f"{tr.name}\n{tr.temperature:.0f} K, [M] {tr.air_density:.2g} cm-3\n"
-                     f"{tf.label} = {tf.k:.3g} ± {rel * 100:.2g} % (fit){shared}", fontsize=7)
+                     f"{tf.label} = {tf.k:.3g} {'cm3 s-1' if tf.label == 'k' else 's-1'} "
+                     f"± {rel * 100:.2g} % (fit){shared}", fontsize=7)
         ax.set_ylabel({"absorbance": "absorbance (ln)", "concentration": "[A] [cm-3]"}
                       .get(tr.signal_kind, "signal [arb]"), fontsize=7.5)
         ax.tick_params(labelsize=7, labelbottom=False)
