@@ -16,7 +16,7 @@ from .errors import BoxchemError
 
 #: sub-command modules, in the order ``boxchem --help`` lists them
 COMMANDS = ("check", "rates", "run", "rerun", "jvalues", "budget", "compare", "summary", "sweep", "ensemble",
-            "sensitivity", "uncertainty", "plot", "demo", "compile")
+            "sensitivity", "uncertainty", "fit", "fit_traces", "plot", "demo", "compile")
 
 
 def build_parser() -> argparse.ArgumentParser:
