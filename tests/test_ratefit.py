@@ -254,7 +254,7 @@ def test_snippet_parses_and_the_mechanism_evaluates_the_fitted_k(tmp_path):
     k = _falloff(T, M, 2.0e-32, 3.8, 3.4e-12, 1.8)
     fit = fit_rate_table(_table(T, k, 0.05 * k, M=M), "falloff")
     text = mechanism_snippet(fit, strat, "clo_clo_m", base="stratosphere", base_dir=tmp_path)
-    assert "[replace]" in text and 'include "stratosphere"' in text
+    assert "[changed reactions]" in text and 'extends "stratosphere"' in text
     mech = parse_mechanism(text, base_dir=tmp_path)
     r = next(r for r in mech.reactions if r.id == "clo_clo_m")
     assert r.law == "falloff" and r.f298 == pytest.approx(fit.f298, abs=1e-3) and r.g == math.ceil(fit.g)
@@ -280,7 +280,7 @@ def test_snippet_refuses_a_unit_mismatch_and_a_wrong_reaction():
 
 def test_override_text_is_the_one_spelling():
     assert mechanism_override_text("stratosphere", ["a  X -> Y  constant k=1"]) == \
-        'include "stratosphere"\n\n[replace]\na  X -> Y  constant k=1\n'
+        'extends "stratosphere"\n\n[changed reactions]\na  X -> Y  constant k=1\n'
 
 
 def test_clean_data_rarely_flag_outliers():
