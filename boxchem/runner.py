@@ -25,7 +25,7 @@ from . import __version__
 from .diagnostics import (cycle_coefficient_matrix, cycle_rate, family_number_density,
                           family_weight_matrix, net_stoichiometry_matrix)
 from .errors import IntegrationError, ScenarioError
-from .scenario import Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
+from .scenario import EquilibriumRuleSpec, Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
 
 __all__ = ["run", "prepare", "RunSetup", "initial_state", "build_environment",
            "assemble_dataset", "COUNTER_NAMES", "CF_MOLE_FRACTION_NAMES"]
@@ -117,6 +117,10 @@ def build_environment(scenario: Scenario):
     def area(value, name):
         if isinstance(value, ThresholdRuleSpec):
             return PscThresholdRule(area_cm2_cm3=value.area, threshold_K=value.below, width_K=value.width)
+        if isinstance(value, EquilibriumRuleSpec):   # thermodynamic PSC area (environment/psc.py)
+            from .environment.psc import IceEquilibriumRule, NatEquilibriumRule
+            rule = NatEquilibriumRule if value.kind == "nat" else IceEquilibriumRule
+            return rule(number_density_cm3=value.number_density, geometric_std=value.geometric_std)
         return _series(value, name=name)
 
     return Environment(

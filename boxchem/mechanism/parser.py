@@ -34,9 +34,12 @@ LAW_KEYS: dict[str, dict[str, object]] = {
     "photolysis": {"required": (), "defaults": {"qy": 1.0, "scale": 1.0},
                    "optional": ("data", "l", "m", "n")},
     "surface": {"required": ("gamma", "on"), "defaults": {}},
+    # gamma from a named parameterization (gamma_from=) or a table in T (gamma_table=)
+    "uptake": {"required": ("on",), "defaults": {"scale": 1.0, "radius_um": 0.1},
+               "optional": ("gamma_from", "gamma_table")},
 }
 #: keys whose values are text, not numbers
-STRING_KEYS = frozenset({"of", "data", "on"})
+STRING_KEYS = frozenset({"of", "data", "on", "gamma_from", "gamma_table"})
 #: keys every reaction may carry (stored on the Reaction, not in parameters)
 COMMON_KEYS = ("f298", "g", "ref")
 #: words that cannot name a species
@@ -562,6 +565,10 @@ class _Reader:
             if "data" not in params and not lmn:
                 raise _LineError("photolysis needs data=NAME (cross-section data set) or the "
                                  "parametric form l= m= n=", law_tok.column)
+        if law == "uptake" and ("gamma_from" in params) == ("gamma_table" in params):
+            raise _LineError("uptake needs exactly one of gamma_from=NAME (a parameterization) or "
+                             "gamma_table=\"T:gamma T:gamma ...\" (K and reaction probability)",
+                             law_tok.column)
         for key, default in spec["defaults"].items():
             params.setdefault(key, default)
         return build()

@@ -25,6 +25,16 @@ by order] in mechanism reaction order and the fixed-species number densities
   form), evaluated at every call while the sun is above the box's horizon
   and skipped (J = 0 by the photolysis contract) below it.
 * the ``[scale]`` multipliers of the scenario (reaction id -> factor).
+
+State-dependent surfaces (docs/heterogeneous.md): ``uptake`` lines with
+``gamma_from=`` read the partial pressures of H2O, HCl and ClONO2, and the
+NAT/ice area rules of ``environment/psc.py`` read HNO3 and H2O.  The time
+loop calls :meth:`RateCoefficientModel.observe_state` with the start state and
+the state at every output time; k(t) then uses the composition last observed
+(lagged by at most one output interval, piecewise constant in time), so k(t)
+stays a deterministic function of t between observations and the compiled
+loop rebuilds its table from the observation time on.  ``uptake`` lines are
+evaluated exactly (cached on their conditions), not scaled by sqrt(T).
 """
 from __future__ import annotations
 
@@ -36,6 +46,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..environment.history import PscThresholdRule
+from ..environment.psc import CompositionHistory
 from ..errors import ScenarioError
 from .kinetics import CompiledKinetics
 
@@ -186,7 +197,21 @@ class RateCoefficientModel:
         self._nodes: dict = {}          # (i, j) -> ln k at T0 + i dT, ln M0 + j dlnM
         self._last_thermal = None       # ((T, [M]), k) of the last call
         self._surface_ref = None        # (T0, k per unit PSC, sulfate and ice area)
+        self._surface_cache = (None, None)   # (conditions, k) of the last exact surface evaluation
         self.thermal_evaluations = 0
+        # composition the state-dependent surfaces read (module docstring)
+        from ..mechanism.ratelaws import SURFACE_STATE_SPECIES
+        self._exact_surface = bool(getattr(evaluator, "temperature_dependent_gamma", False))
+        gamma_species = SURFACE_STATE_SPECIES if getattr(evaluator, "state_dependent_surface", False) else ()
+        self.surface_composition = CompositionHistory(gamma_species) if gamma_species else None
+        env_comp = getattr(environment, "composition", None)
+        watched = sorted(set(gamma_species) | set(env_comp.species if env_comp is not None else ()))
+        variable = {name: i for i, name in enumerate(self.kinetics.variable_species)}
+        fixed_names = list(self.kinetics.fixed_species)
+        self._watched = tuple(watched)
+        self._watched_index = np.array([variable.get(n, -1) for n in watched], dtype=np.intp)
+        self._watched_fixed = np.array([self._fixed_per_air[fixed_names.index(n)] if n in fixed_names
+                                        else 0.0 for n in watched])
 
     def _node(self, i: int, j: int) -> np.ndarray:
         log_k = self._nodes.get((i, j))
@@ -225,7 +250,44 @@ class RateCoefficientModel:
                     log_k = log_k + w * self._node(i + di, j + dj)
         return np.exp(log_k)
 
-    def _surface_k(self, T: float, psc: float, sulfate: float, ice: float) -> np.ndarray:
+    @property
+    def state_dependent(self) -> bool:
+        """True when some surface k or area depends on the box's composition."""
+        return bool(self._watched)
+
+    def observe_state(self, t_s: float, y) -> bool:
+        """Record the box's state ``y`` [cm-3] at ``t_s`` for the state-dependent surfaces.
+
+        Returns True when k(t) from ``t_s`` on may have changed (the caller
+        re-evaluates k and rebuilds interval tables), False when nothing here
+        depends on the state.  See the module docstring.
+        """
+        if not self._watched:
+            return False
+        air = float(self.environment.at(float(t_s)).air_density)
+        yv = np.asarray(y, dtype=float)
+        x = np.where(self._watched_index >= 0, yv[self._watched_index] / air, self._watched_fixed)
+        values = dict(zip(self._watched, x))
+        if self.surface_composition is not None:
+            self.surface_composition.record(t_s, [values[s] for s in self.surface_composition.species])
+        env_comp = getattr(self.environment, "composition", None)
+        if env_comp is not None:
+            env_comp.record(t_s, [values[s] for s in env_comp.species])
+        self._surface_cache = (None, None)
+        return True
+
+    def _surface_k(self, T: float, psc: float, sulfate: float, ice: float, pressure: float = 0.0,
+                   t_s: float = 0.0) -> np.ndarray:
+        if self._exact_surface:
+            pp = {}
+            if self.surface_composition is not None:
+                pp = {s: x * pressure for s, x in self.surface_composition.at(float(t_s)).items()}
+            key = (T, psc, sulfate, ice, *pp.values())
+            if self._surface_cache[0] == key:
+                return self._surface_cache[1]
+            k = np.asarray(self.evaluator.surface(T, psc, sulfate, ice, partial_pressures=pp), dtype=float)
+            self._surface_cache = (key, k)
+            return k
         if self._surface_ref is None:
             per_psc = np.asarray(self.evaluator.surface(T, 1.0, 0.0, 0.0), dtype=float)
             per_sulfate = np.asarray(self.evaluator.surface(T, 0.0, 1.0, 0.0), dtype=float)
@@ -297,14 +359,23 @@ class RateCoefficientModel:
         nr = len(self.multiplier)
         values = np.empty((n, nr + len(self._fixed_per_air)))
         conditions = np.stack([state.temperature, state.air_density, state.psc_area,
-                               state.sulfate_area, state.ice_area], axis=-1).astype(float)
+                               state.sulfate_area, state.ice_area, state.pressure, taus], axis=-1).astype(float)
+        surface_rows = None
+        if self._exact_surface:
+            # every node in one vectorised call (the composition is constant over a table: it
+            # starts at the last observation, module docstring)
+            pp = {}
+            if self.surface_composition is not None:
+                pp = {sp: x * conditions[:, 5] for sp, x in self.surface_composition.at(tau_a).items()}
+            surface_rows = np.asarray(self.evaluator.surface(conditions[:, 0], conditions[:, 2], conditions[:, 3],
+                                                             conditions[:, 4], partial_pressures=pp), dtype=float)
         for i in range(n):   # n nodes, each a cached thermal lookup: no loop over reactions
-            if i and np.array_equal(conditions[i], conditions[i - 1]):
+            if i and np.array_equal(conditions[i, :6], conditions[i - 1, :6]):
                 values[i] = values[i - 1]
                 continue
-            T, air, psc, sulfate, ice = (float(v) for v in conditions[i])
-            values[i, :nr] = (self._thermal_k(T, air) + self._surface_k(T, psc, sulfate, ice)) \
-                * self.multiplier
+            T, air, psc, sulfate, ice, p, tau = (float(v) for v in conditions[i])
+            surface = surface_rows[i] if surface_rows is not None else self._surface_k(T, psc, sulfate, ice)
+            values[i, :nr] = (self._thermal_k(T, air) + surface) * self.multiplier
             values[i, nr:] = air * self._fixed_per_air
         positive = np.all(values > 0.0, axis=0)
         with np.errstate(divide="ignore"):
@@ -351,7 +422,8 @@ class RateCoefficientModel:
         air = float(state.air_density)
         k = self._thermal_k(T, air) + self._surface_k(T, float(state.psc_area),
                                                        float(state.sulfate_area),
-                                                       float(state.ice_area))
+                                                       float(state.ice_area), float(state.pressure),
+                                                       float(t_seconds))
         if self.photolysis_rates is not None and \
                 float(state.solar_zenith_angle) < float(state.horizon_zenith_angle):
             j = np.asarray(self.photolysis_rates(state.solar_zenith_angle, state.ozone_column, T,

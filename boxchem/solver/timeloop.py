@@ -236,6 +236,11 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
         raise ValueError(f"y0: number densities must be finite and >= 0 cm-3; got {float(y[i])!r} for "
                          f"{kinetics.variable_species[i]!r} (index {i})")
 
+    # state-dependent surfaces (coefficients.observe_state): the state at the start and at
+    # every output time is recorded; k(t) uses the last record (het branch, docs/heterogeneous.md)
+    observe = getattr(coefficients, "observe_state", None)
+    if observe is not None:
+        observe(float(out[0]), y)
     if compiled is None:
         from .compiled import jit_available
         compiled = (jit_available() and on_accept is None
@@ -408,6 +413,12 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
         res.rhs_evaluations += 1
         if at_break:
             h = min(h, step_estimate())
+        if observe is not None and next_out < n_out and out[next_out] <= t and observe(t, y):
+            k0, fx0 = coefficients(tau0)      # the new composition applies from t on
+            res.coefficient_evaluations += 1
+            prev = None
+            f0c = kinetics.rhs(y, k0, fx0)
+            res.rhs_evaluations += 1
         while next_out < n_out and out[next_out] <= t:
             ys[next_out], ks[next_out], fxs[next_out] = y, k0, fx0
             next_out += 1
@@ -486,7 +497,8 @@ def _integrate_compiled(kinetics, coefficients, y, out, breaks, *, rtol, atol, f
         if table is None or t >= window_edges[window + 1]:
             while t >= window_edges[window + 1]:
                 window += 1
-            wa, wb = float(window_edges[window]), float(window_edges[window + 1])
+            # from t, not the window start: a table rebuilt after observe_state starts mid-window
+            wa, wb = max(t, float(window_edges[window])), float(window_edges[window + 1])
             table = coefficients.interval_table(wa, wb, side(wa, False), side(wb, True))
             res.coefficient_evaluations += 1
         status = cm.advance(t, t_next, y, h, h_max, restart, table.t_a, table.t_b, table.poly,
@@ -512,6 +524,9 @@ def _integrate_compiled(kinetics, coefficients, y, out, breaks, *, rtol, atol, f
         if t in break_set:
             restart = True          # first step after a jump of J: as at the start
             table = None            # the next window starts here (one-sided k)
+        observe = getattr(coefficients, "observe_state", None)
+        if observe is not None and next_out < n_out and out[next_out] <= t and observe(t, y):
+            table = None            # k from t on uses the new composition
         while next_out < n_out and out[next_out] <= t:
             k_out, fx_out = coefficients(side(t, False))
             res.coefficient_evaluations += 1
