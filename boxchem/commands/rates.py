@@ -68,7 +68,8 @@ def _rows(mechanism, temperatures, pressure, mole_fractions=None, areas=None):
     areas = dict(areas or {})
     missing = [s for s in SURFACE_STATE_SPECIES if s not in x and s != "ClONO2"]
     gamma = ks = None
-    if not (evaluator.state_dependent_surface and missing):
+    have_state = not (evaluator.state_dependent_surface and missing)
+    if have_state:
         pp = {s: np.full(T.shape, x.get(s, 0.0) * pressure) for s in SURFACE_STATE_SPECIES}
         gamma = evaluator.surface_gamma(T, pp)
         ks = evaluator.surface(T, areas.get("psc", 0.0), areas.get("sulfate", 0.0), areas.get("ice", 0.0),
@@ -81,7 +82,7 @@ def _rows(mechanism, temperatures, pressure, mole_fractions=None, areas=None):
             if r.law in SURFACE_LAWS:
                 on = str(r.parameters["on"])
                 needs = ("psc", "sulfate", "ice") if on == "all" else (on,)
-                if gamma is None and r.parameters.get("gamma_from"):
+                if not have_state and r.parameters.get("gamma_from"):
                     note = f"gamma needs {' and '.join('--' + s.lower() for s in missing)}"
                 else:
                     if gamma is None:   # lines that do not read the composition: any pressures do
