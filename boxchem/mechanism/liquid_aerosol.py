@@ -229,7 +229,7 @@ def gamma_hocl_hcl_shi2001(temperature, water_pressure_Pa, hcl_pressure_Pa, clon
     D = 6.4e-8 * T / s["viscosity"]
     m_hcl = s["h_hcl"] * p_hcl
     k = 1.25e9 * s["acidity"] * D * m_hcl                      # [s-1]
-    k_safe = np.maximum(k, 1e-300)
+    k_safe = np.maximum(k, 1e-30)       # no HCl: l -> large, f -> 0 (and gamma -> 0 below)
     length = np.sqrt(D / k_safe)
     f = _reacto_diffusive_factor(radius_cm, length)
     g_rxn = 4.0 * h * _R_L_ATM * T * np.sqrt(D * k) / c

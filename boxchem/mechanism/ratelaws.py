@@ -279,20 +279,21 @@ class RateEvaluator:
 
         temperature [K]; ``partial_pressures``: mapping of SURFACE_STATE_SPECIES
         to partial pressures [Pa] (broadcast with T), needed when a line has
-        gamma_from= (``state_dependent_surface``).  ``uptake`` lines carry their scale=.
+        gamma_from= (``state_dependent_surface``; without them those columns
+        are NaN).  ``uptake`` lines carry their scale=.
         """
         T = np.asarray(temperature, dtype=float)
         pp = dict(partial_pressures or {})
-        if self.state_dependent_surface:
-            missing = [s for s in SURFACE_STATE_SPECIES if s not in pp]
-            if missing:
-                raise ValueError(f"partial_pressures: gamma_from= lines need {', '.join(missing)} [Pa]")
+        # without the composition, gamma_from= columns are NaN (never a silent number)
+        have_state = all(s in pp for s in SURFACE_STATE_SPECIES)
         shape = np.broadcast_shapes(T.shape, *(np.shape(v) for v in pp.values()))
         gamma = np.broadcast_to(self._surf_gamma, shape + self._surf_gamma.shape).copy()
         by_radius = {}   # the droplet properties once per radius (usually one radius)
         for j, (model, table) in enumerate(zip(self._uptake_model, self._uptake_table)):
             # one entry per uptake line (a handful), each a vectorised formula over conditions
-            if model is not None:
+            if model is not None and not have_state:
+                g = np.nan
+            elif model is not None:
                 r = float(self._uptake_radius_cm[j])
                 if r not in by_radius:
                     by_radius[r] = liquid_gammas(T, pp["H2O"], pp["HCl"], pp["ClONO2"], r)
@@ -308,7 +309,8 @@ class RateEvaluator:
         temperature [K], psc_area (NAT/STS clouds), sulfate_area and ice_area
         (ice clouds) [cm2 cm-3] (broadcast; ice_area defaults to 0).
         ``on=all`` reactions see the sum of the three areas.  ``partial_pressures``
-        (SURFACE_STATE_SPECIES -> Pa) as in :meth:`surface_gamma`.
+        (SURFACE_STATE_SPECIES -> Pa) as in :meth:`surface_gamma`; without them
+        the k of gamma_from= lines is NaN where their surface has area (0 where not).
         """
         T = np.asarray(temperature, dtype=float)
         psc = np.asarray(psc_area, dtype=float)
@@ -323,6 +325,8 @@ class RateEvaluator:
                     + np.broadcast_to(sulf, shape)[..., None] * self._surf_sulfate
                     + np.broadcast_to(ice, shape)[..., None] * self._surf_ice)
             gamma = self.surface_gamma(np.broadcast_to(T, shape), pp)
-            k[..., self.surface_index] = surface_uptake(np.broadcast_to(T, shape)[..., None],
-                                                        gamma, self._surf_mass, area)
+            ks = surface_uptake(np.broadcast_to(T, shape)[..., None], gamma, self._surf_mass, area)
+            # no area: no uptake, whatever gamma; gamma_from= lines without the composition
+            # stay NaN where they have area (surface_gamma), so a missing input never looks valid
+            k[..., self.surface_index] = np.where(area == 0.0, 0.0, ks)
         return k
