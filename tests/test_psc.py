@@ -31,13 +31,13 @@ def test_nat_equation_hand_calculation():
     m, b = -2.7836 - 0.00088 * T, 38.9855 - 11397.0 / T + 0.009179 * T
     torr = 101325.0 / 760.0
     expected = 10 ** (m * math.log10(p_h2o_torr) + b) * torr
-    assert nat_hno3_equilibrium_pressure(T, p_h2o_torr * torr) == pytest.approx(expected, rel=1e-12)
+    assert nat_hno3_equilibrium_pressure(T, p_h2o_torr * torr) == pytest.approx(expected, rel=1e-12, abs=0)
 
 
 def test_ice_vapour_pressure_and_frost_point():
     # Murphy and Koop (2005): 611.657 Pa at the triple point (their eq. 7 reproduces it to 0.01 %),
     # and a frost point near 188 K for 5 ppmv H2O at 50 hPa (common knowledge of PSC studies)
-    assert ice_vapour_pressure(273.16) == pytest.approx(611.657, rel=1e-3)
+    assert ice_vapour_pressure(273.16) == pytest.approx(611.657, rel=1e-3, abs=0)
     assert 187.0 < frost_point(5e-6 * P) < 189.5
 
 
@@ -45,9 +45,9 @@ def test_lognormal_area_limits():
     # sigma = 1 is monodisperse: S = 4 pi r^2 N with V = 4/3 pi r^3 N (geometry)
     N, r = 2.0, 1e-4
     V = 4.0 / 3.0 * math.pi * r ** 3 * N
-    assert lognormal_surface_area(V, N, 1.0) == pytest.approx(4 * math.pi * r ** 2 * N, rel=1e-12)
+    assert lognormal_surface_area(V, N, 1.0) == pytest.approx(4 * math.pi * r ** 2 * N, rel=1e-12, abs=0)
     # a broader distribution holds the same volume on less area per exp(-ln^2 sigma) (lognormal moments)
-    assert lognormal_surface_area(V, N, 1.8) == pytest.approx(4 * math.pi * r ** 2 * N * math.exp(-math.log(1.8) ** 2))
+    assert lognormal_surface_area(V, N, 1.8) == pytest.approx(4 * math.pi * r ** 2 * N * math.exp(-math.log(1.8) ** 2), rel=1e-12, abs=0)
 
 
 def test_nat_rule_area_from_excess_hno3():
@@ -59,7 +59,7 @@ def test_nat_rule_area_from_excess_hno3():
     n = excess / (1.380649e-23 * T) * 1e-6             # cm-3 (ideal gas)
     volume = n * 117.06 / 6.02214076e23 / 1.62
     r = (3 * volume / (4 * math.pi)) ** (1 / 3)
-    assert rule(T, P, x) == pytest.approx(4 * math.pi * r ** 2, rel=1e-9)
+    assert rule(T, P, x) == pytest.approx(4 * math.pi * r ** 2, rel=1e-9, abs=0)
     # of order 1-10 um2 cm-3 for 10 ppbv HNO3 and 1 particle cm-3 (typical NAT PSC areas;
     # common knowledge)
     assert 1e-8 < rule(T, P, x) < 1e-7

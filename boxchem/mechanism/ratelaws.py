@@ -62,8 +62,10 @@ def termolecular_falloff(temperature, air_density, k0, n, kinf, m, Fc=0.6, Tref=
     k0(T) = k0 (T/Tref)^-n [cm6 s-1], kinf(T) = kinf (T/Tref)^-m [cm3 s-1],
     x = k0(T)[M]/kinf(T), k = k0(T)[M]/(1 + x) * Fc^(1/(1 + log10(x)^2)).
     Limits: k -> k0(T)[M] as [M] -> 0 and k -> kinf(T) as [M] -> inf.
-    Burkholder et al. (2019), JPL Publication 19-5, section 2, eq. (1)-(2)
-    (there Tref = 298 K; older evaluations used 300 K, hence the parameter).
+    Burkholder et al. (2019), JPL Publication 19-5, section 2, eq. (1)-(2),
+    where k0 and kinf are given at 300 K, k0(T) = k0^300 (T/300)^-n (the
+    default Tref = 300; recalled from memory - issue 11 review: this line said
+    298 K before, against the mechanism and docs).
     """
     T = np.asarray(temperature, dtype=float)
     M = np.asarray(air_density, dtype=float)
