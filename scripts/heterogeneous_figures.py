@@ -38,10 +38,10 @@ def gamma_figure(path: Path) -> None:
     t_ice = frost_point(x_h2o * p)
     for t, name in ((t_nat, "T_NAT (10 ppbv HNO3)"), (t_ice, "T_ice")):
         ax.axvline(t, color="tab:purple", lw=0.8)
-        ax.text(t + 0.3, 3e-3, name, color="tab:purple", rotation=90, fontsize=8)
+        ax.text(t + 0.3, 2.0, name, color="tab:purple", fontsize=7)
     ax.axvline(222.0, color="tab:green", lw=0.8)
-    ax.text(222.3, 3e-3, "midlatitude box", color="tab:green", rotation=90, fontsize=8)
-    ax.set_ylim(1e-11, 2)
+    ax.text(222.3, 2.0, "midlatitude box", color="tab:green", fontsize=7)
+    ax.set_ylim(1e-11, 20)
     ax.set_ylabel("reaction probability gamma")
     ax.set_title("Liquid sulfate aerosol at 50 hPa, 5 ppmv H2O, 1.5 ppbv HCl, 0.5 ppbv ClONO2, r = 0.1 um")
     ax.title.set_fontsize(9)
