@@ -131,11 +131,12 @@ def test_run_with_nat_rule_reports_the_area_it_used():
     ds = boxchem.run(_scenario())
     area = ds["psc_surface_area"].values
     assert np.all(area > 1e-9)                   # 190 K, 10 ppbv: NAT exists throughout
-    # the area at each output time is the rule at the box's own HNO3 and H2O then (lagged by at
-    # most one output interval; docs/heterogeneous.md)
+    # the area at each output time is the rule at the box's own HNO3 and H2O (recorded at output
+    # times when they moved by more than 1 %; docs/heterogeneous.md): within 2 % here, where the
+    # HNO3 excess over NAT equilibrium is large
     rule = NatEquilibriumRule()
     x = {s: ds["mole_fraction"].sel(species=s).values for s in ("HNO3", "H2O")}
-    np.testing.assert_allclose(area, rule(ds["temperature"].values, ds["pressure"].values, x), rtol=1e-9)
+    np.testing.assert_allclose(area, rule(ds["temperature"].values, ds["pressure"].values, x), rtol=2e-2)
     warm = boxchem.run(_scenario(T="200 K"))
     assert np.all(warm["psc_surface_area"].values == 0.0)
     assert nat_existence_temperature(0.1e-9 * 5500, 4.5e-6 * 5500) < 190.0

@@ -191,6 +191,7 @@ class CompositionHistory:
         self.species = tuple(species)
         self._times: list[float] = []
         self._values: list[np.ndarray] = []
+        self._arrays = None          # (times, values) as arrays, rebuilt after a record
 
     def record(self, t_s: float, mole_fractions) -> None:
         t = float(t_s)
@@ -199,6 +200,7 @@ class CompositionHistory:
             self._values.pop()
         self._times.append(t)
         self._values.append(np.asarray(mole_fractions, dtype=float).copy())
+        self._arrays = None
 
     def __len__(self) -> int:
         return len(self._times)
@@ -214,6 +216,11 @@ class CompositionHistory:
             else:
                 row = self._values[max(0, bisect.bisect_right(self._times, tf) - 1)]
             return {s: float(row[j]) for j, s in enumerate(self.species)}
-        values = np.array(self._values)
-        i = np.clip(np.searchsorted(self._times, np.asarray(t, dtype=float), side="right") - 1, 0, None)
+        if self._arrays is None:
+            self._arrays = (np.array(self._times), np.array(self._values))
+        times, values = self._arrays
+        ta = np.asarray(t, dtype=float)
+        if ta.size and float(ta.min()) >= times[-1]:      # the time loop: all after the last record
+            return {s: np.full(ta.shape, values[-1, j]) for j, s in enumerate(self.species)}
+        i = np.clip(np.searchsorted(times, ta, side="right") - 1, 0, None)
         return {s: values[i, j] for j, s in enumerate(self.species)}

@@ -33,7 +33,10 @@ loop calls :meth:`RateCoefficientModel.observe_state` with the start state and
 the state at every output time; k(t) then uses the composition last observed
 (lagged by at most one output interval, piecewise constant in time), so k(t)
 stays a deterministic function of t between observations and the compiled
-loop rebuilds its table from the observation time on.  ``uptake`` lines are
+loop rebuilds its table from the observation time on.  A new composition is
+recorded only when a watched mole fraction has moved by more than
+SURFACE_REFRESH_TOLERANCE (1 %; ClONO2, which enters only through the
+HCl-depletion factor: 20 %) since the last record.  ``uptake`` lines are
 evaluated exactly (cached on their conditions), not scaled by sqrt(T).
 """
 from __future__ import annotations
@@ -64,6 +67,14 @@ INTERVAL_NODES = 7
 MAX_TABLE_INTERVAL_S = 6 * 3600.0
 #: SZA spacing [deg] of the per-interval ln J grid for J that is not from a J table
 J_GRID_STEP_DEG = 0.02
+#: observe_state records a new composition only when a watched mole fraction moved by more
+#: than this fraction of its recorded value (or of SURFACE_REFRESH_FLOOR) - gammas and areas
+#: depend smoothly on them, and each record costs a table rebuild (docs/heterogeneous.md)
+SURFACE_REFRESH_TOLERANCE = 0.01
+#: the same for ClONO2, which enters only through the HCl-depletion factor (module docstring)
+SURFACE_REFRESH_TOLERANCE_CLONO2 = 0.2
+#: mole fraction [mol mol-1] below which changes do not count (0.1 pptv)
+SURFACE_REFRESH_FLOOR = 1e-13
 
 
 @dataclass(frozen=True)
@@ -198,6 +209,7 @@ class RateCoefficientModel:
         self._last_thermal = None       # ((T, [M]), k) of the last call
         self._surface_ref = None        # (T0, k per unit PSC, sulfate and ice area)
         self._surface_cache = (None, None)   # (conditions, k) of the last exact surface evaluation
+        self._last_observed = None           # (t, mole fractions) of the last record
         self.thermal_evaluations = 0
         # composition the state-dependent surfaces read (module docstring)
         from ..mechanism.ratelaws import SURFACE_STATE_SPECIES
@@ -210,6 +222,10 @@ class RateCoefficientModel:
         fixed_names = list(self.kinetics.fixed_species)
         self._watched = tuple(watched)
         self._watched_index = np.array([variable.get(n, -1) for n in watched], dtype=np.intp)
+        # ClONO2 enters the sulfate gammas only through the HCl-depletion factor F_HCl
+        # (Shi et al. 2001): a looser tolerance, so its diurnal swing does not force rebuilds
+        self._refresh_tolerance = np.array([SURFACE_REFRESH_TOLERANCE_CLONO2 if n == "ClONO2"
+                                            else SURFACE_REFRESH_TOLERANCE for n in watched])
         self._watched_fixed = np.array([self._fixed_per_air[fixed_names.index(n)] if n in fixed_names
                                         else 0.0 for n in watched])
 
@@ -267,6 +283,12 @@ class RateCoefficientModel:
         air = float(self.environment.at(float(t_s)).air_density)
         yv = np.asarray(y, dtype=float)
         x = np.where(self._watched_index >= 0, yv[self._watched_index] / air, self._watched_fixed)
+        last = self._last_observed
+        if last is not None and float(t_s) > last[0] and np.all(
+                np.abs(x - last[1]) <= self._refresh_tolerance * np.maximum(np.abs(last[1]),
+                                                                           SURFACE_REFRESH_FLOOR)):
+            return False           # composition as recorded: k(t) unchanged, no table rebuild
+        self._last_observed = (float(t_s), x)
         values = dict(zip(self._watched, x))
         if self.surface_composition is not None:
             self.surface_composition.record(t_s, [values[s] for s in self.surface_composition.species])
