@@ -26,7 +26,7 @@ from .diagnostics.cycles import cycle_description
 from .diagnostics import (cycle_coefficient_matrix, cycle_rate, family_number_density,
                           family_weight_matrix, net_stoichiometry_matrix)
 from .errors import IntegrationError, ScenarioError
-from .scenario import Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
+from .scenario import EquilibriumRuleSpec, Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
 
 __all__ = ["run", "prepare", "integrate", "RunSetup", "initial_state", "build_environment",
            "assemble_dataset", "derived_outputs", "species_number_density", "solver_options", "reaction_definition",
@@ -119,6 +119,10 @@ def build_environment(scenario: Scenario):
     def area(value, name):
         if isinstance(value, ThresholdRuleSpec):
             return PscThresholdRule(area_cm2_cm3=value.area, threshold_K=value.below, width_K=value.width)
+        if isinstance(value, EquilibriumRuleSpec):   # thermodynamic PSC area (environment/psc.py)
+            from .environment.psc import IceEquilibriumRule, NatEquilibriumRule
+            rule = NatEquilibriumRule if value.kind == "nat" else IceEquilibriumRule
+            return rule(number_density_cm3=value.number_density, geometric_std=value.geometric_std)
         return _series(value, name=name)
 
     return Environment(
@@ -453,6 +457,25 @@ def solver_options(scenario: Scenario) -> dict[str, Any]:
             "method": getattr(rosenbrock, scenario.solver_method.upper())}
 
 
+def state_observer(setup: RunSetup):
+    """The time loop's ``on_accept``: what must see the box's state as it runs, or None.
+
+    The ozone column following the box (``photolysis.observe``) and state-dependent
+    surfaces (``coefficients.observe_state``, docs/heterogeneous.md).
+    """
+    observers = [getattr(setup.photolysis, "observe", None)]
+    if getattr(setup.coefficients, "state_dependent", False):
+        observers.append(setup.coefficients.observe_state)
+    observers = [f for f in observers if f is not None]
+    if len(observers) <= 1:
+        return observers[0] if observers else None
+
+    def observe(t_s, y):
+        for f in observers:
+            f(t_s, y)
+    return observe
+
+
 def integrate(setup: RunSetup, *, progress=None):
     """Integrate one box of a prepared setup -> :class:`~boxchem.solver.timeloop.TimeLoopResult`.
 
@@ -462,7 +485,7 @@ def integrate(setup: RunSetup, *, progress=None):
     from .solver.timeloop import integrate_box
     return integrate_box(setup.kinetics, setup.coefficients, setup.y0, setup.output_times_s,
                          breakpoints_s=setup.breakpoints_s, progress=progress,
-                         on_accept=getattr(setup.photolysis, "observe", None),
+                         on_accept=state_observer(setup),
                          **solver_options(setup.scenario))
 
 

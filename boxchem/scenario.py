@@ -60,6 +60,8 @@ SCENARIO_KEYS: dict[str, tuple[str, ...]] = {
 _FREE_SECTIONS = ("initial", "scale")
 _SERIES_KEYS = ("times", "values", "time_unit", "unit")
 _RULE_KEYS = ("rule", "area", "below", "width")
+#: keys of the thermodynamic area rules (rule = "nat" / "ice"; boxchem/environment/psc.py)
+_EQUILIBRIUM_RULE_KEYS = ("rule", "particle_number_density", "geometric_std")
 
 #: top-level keys (not sections) of a file that builds on another scenario
 EXTENDS_KEY = "extends"
@@ -112,7 +114,19 @@ class ThresholdRuleSpec:
     width: float = 1.0
 
 
-Value = float | TimeSeriesSpec | ThresholdRuleSpec | None
+@dataclass(frozen=True)
+class EquilibriumRuleSpec:
+    """PSC area from thermodynamics: ``kind`` "nat" (HNO3 over NAT, Hanson and Mauersberger
+    1988) or "ice" (frost point, Murphy and Koop 2005), condensed excess in lognormal
+    particles of ``number_density`` [cm-3] and ``geometric_std`` [1]
+    (:mod:`boxchem.environment.psc`)."""
+
+    kind: str
+    number_density: float
+    geometric_std: float = 1.8
+
+
+Value = float | TimeSeriesSpec | ThresholdRuleSpec | EquilibriumRuleSpec | None
 
 
 @dataclass(frozen=True)
@@ -1025,12 +1039,15 @@ def _area_or_rule(value: Any, where: str, err: _Errors, start,
     ``default_below`` [K]: the rule's threshold when ``below`` is not given
     (the ice frost point for ice clouds); None makes ``below`` required.
     """
+    if isinstance(value, Mapping) and value.get("rule") in ("nat", "ice"):
+        return _equilibrium_rule(value, where, err)
     if isinstance(value, Mapping) and "rule" in value:
         for k in value:
             if k not in _RULE_KEYS:
                 err.add(f"{where}.{k}", f"unknown key in a rule; valid: {', '.join(_RULE_KEYS)}")
         if value["rule"] != "threshold":
-            err.add(f"{where}.rule", f"unknown rule {value['rule']!r}; valid: \"threshold\"")
+            err.add(f"{where}.rule", f"unknown rule {value['rule']!r}; valid: \"threshold\", \"nat\" "
+                                     f"(psc_surface_area), \"ice\" (ice_surface_area)")
             return None
         missing = [k for k in ("area", "below") if k not in value
                    and not (k == "below" and default_below is not None)]
@@ -1059,6 +1076,41 @@ def _area_or_rule(value: Any, where: str, err: _Errors, start,
         return ThresholdRuleSpec(area=area, below=below, width=width)
     return _series_or_value(value, "surface_area", where, err, start=start,
                             check=_non_negative("surface area", "cm2 cm-3"))
+
+
+def _equilibrium_rule(value: Mapping, where: str, err: _Errors):
+    """``{ rule = "nat" | "ice", particle_number_density = "1 cm-3", geometric_std = 1.8 }``."""
+    kind = value["rule"]
+    ok = True
+    for k in value:
+        if k not in _EQUILIBRIUM_RULE_KEYS:
+            err.add(f"{where}.{k}", f"unknown key in rule {kind!r}; valid: {', '.join(_EQUILIBRIUM_RULE_KEYS)}")
+            ok = False
+    if kind == "nat" and not where.endswith("psc_surface_area"):
+        err.add(f"{where}.rule", "rule \"nat\" belongs to [environment].psc_surface_area")
+        ok = False
+    if kind == "ice" and not where.endswith("ice_surface_area"):
+        err.add(f"{where}.rule", "rule \"ice\" belongs to [environment].ice_surface_area")
+        ok = False
+    default_n = 1.0 if kind == "nat" else 0.01
+    raw = value.get("particle_number_density", default_n)
+    number = None
+    if isinstance(raw, (int, float)) and not isinstance(raw, bool):
+        number = float(raw)
+    elif isinstance(raw, str) and raw.replace(" ", "").endswith("cm-3"):
+        try:
+            number = float(raw.replace(" ", "")[:-4])
+        except ValueError:
+            number = None
+    if number is None or not (number > 0 and math.isfinite(number)):
+        err.add(f"{where}.particle_number_density", f"got {raw!r}; valid: a number density > 0, e.g. \"1 cm-3\"")
+        ok = False
+    sigma = value.get("geometric_std", 1.8)
+    if not (isinstance(sigma, (int, float)) and not isinstance(sigma, bool) and math.isfinite(sigma)
+            and sigma >= 1.0):
+        err.add(f"{where}.geometric_std", f"got {sigma!r}; valid: a number >= 1, e.g. 1.8")
+        ok = False
+    return EquilibriumRuleSpec(kind, number, float(sigma)) if ok else None
 
 
 def _initial(table: Mapping[str, Any], mechanism: Any, err: _Errors) -> dict[str, tuple[float, str]]:

@@ -60,7 +60,8 @@ def _csv(out: str):
 def test_rates_csv(capsys):
     assert main(["rates", SMALL, "--temperature", "195", "298K", "--pressure", "50hPa", "--format", "csv"]) == 0
     rows = _csv(capsys.readouterr().out)
-    assert list(rows[0]) == ["id", "equation", "law", "temperature", "pressure", "air_density", "k", "units", "note"]
+    assert list(rows[0]) == ["id", "equation", "law", "temperature", "pressure", "air_density", "gamma", "k",
+                             "units", "note"]
     assert len(rows) == 12 * 2
     by = {(r["id"], float(r["temperature"])): r for r in rows}
     r = by[("cl_o3", 195.0)]
@@ -73,7 +74,7 @@ def test_rates_csv(capsys):
     j = by[("j_dimer", 298.0)]
     assert j["k"] == "" and "sun" in j["note"]
     s = by[("oclo_loss", 298.0)]
-    assert s["k"] == "" and "surface area" in s["note"]
+    assert s["k"] == "" and "-area for k" in s["note"] and s["gamma"] != ""   # issue 11: gamma shown
     o = by[("o_o2", 298.0)]
     assert o["units"] == "cm6 s-1"
 
@@ -133,3 +134,27 @@ def test_check_unreadable_and_non_finite(capsys, tmp_path):
     huge.write_text("[species]\nO3\n[reactions]\nr O3 -> O3 constant k=1e999 unbalanced\n")
     assert main(["check", str(huge)]) == 2
     assert f"{huge}:4:21: error: reaction 'r': k=inf is not a finite number" in capsys.readouterr().err
+
+
+def test_rates_surface_gamma_and_k(capsys):
+    """Issue 11: gamma and k = gamma v S / 4 of surface lines at given T, p, H2O, HCl and area."""
+    assert main(["rates", "stratosphere", "-T", "195", "222", "-p", "50hPa", "--h2o", "5ppmv", "--hcl",
+                 "1.8ppbv", "--clono2", "0.9ppbv", "--sulfate-area", "0.5 um2 cm-3", "--format", "csv"]) == 0
+    rows = _csv(capsys.readouterr().out)
+    by = {(r["id"], float(r["temperature"])): r for r in rows}
+    n2o5 = by[("het_n2o5_h2o_sa", 222.0)]
+    # k = gamma v S / 4, v = sqrt(8 R T / (pi M)) (kinetic theory; common practice, no source)
+    v = math.sqrt(8 * 8.314462618 * 222.0 / (math.pi * 0.108)) * 100
+    assert math.isclose(float(n2o5["k"]), 0.25 * float(n2o5["gamma"]) * v * 0.5e-8, rel_tol=1e-3)
+    cold, warm = by[("het_clono2_hcl_sa", 195.0)], by[("het_clono2_hcl_sa", 222.0)]
+    # liquid sulfate: ClONO2 + HCl is orders of magnitude slower at 222 K than at 195 K
+    # (Shi et al. 2001, JGR 106, 24259, their temperature dependence; recalled from memory)
+    assert float(cold["gamma"]) > 1e3 * float(warm["gamma"])
+
+
+def test_rates_surface_needs_composition(capsys):
+    assert main(["rates", "stratosphere", "-T", "195", "-p", "50hPa", "--format", "csv"]) == 0
+    rows = {r["id"]: r for r in _csv(capsys.readouterr().out)}
+    assert rows["het_clono2_hcl_sa"]["gamma"] == "" and "--h2o" in rows["het_clono2_hcl_sa"]["note"]
+    assert main(["rates", "stratosphere", "-T", "195", "-p", "50hPa", "--hcl", "2 furlongs"]) == 2
+    assert "--hcl" in capsys.readouterr().err

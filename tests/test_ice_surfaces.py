@@ -87,7 +87,9 @@ def test_shipped_ice_reactions(shipped):
     gammas = {(r.reactants[0].species, r.reactants[1].species): r.parameters["gamma"] for r in surf}
     assert gammas == {("ClONO2", "HCl"): 0.3, ("ClONO2", "H2O"): 0.3, ("HOCl", "HCl"): 0.2,
                       ("N2O5", "H2O"): 0.02, ("N2O5", "HCl"): 0.03, ("BrONO2", "H2O"): 0.3,
-                      ("BrONO2", "HCl"): 0.3}
+                      ("BrONO2", "HCl"): 0.3,
+                      # issue 11: HOBr + HCl on ice has its own line (was on=all, 0.1)
+                      ("HOBr", "HCl"): 0.3}
     assert all("ice" in r.ref and "recalled from memory" in r.ref for r in surf)
     # ClONO2 + H2O: about 0.3 on ice against 0.004 on NAT (JPL 19-5 Table 5, recalled)
     assert shipped.reaction("het_clono2_h2o_psc").parameters["gamma"] == pytest.approx(0.004)

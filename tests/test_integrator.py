@@ -483,7 +483,12 @@ def test_compiled_and_numpy_paths_agree_on_a_polar_day():
     assert np.max(np.abs(fast.y - slow.y) / scale) < 2e-3
     i = kin.variable_species.index("O3")
     assert np.max(np.abs(fast.y[:, i] / slow.y[:, i] - 1)) < 1e-4
-    np.testing.assert_allclose(fast.k, slow.k, rtol=1e-12)     # output k: exact in both
+    # output k: exact in both, except the sulfate gammas that read the box's own (lagged) HCl,
+    # ClONO2 and H2O (issue 11): those agree as closely as the two solutions do
+    state = [i for i, r in enumerate(mech.reactions) if r.parameters.get("gamma_from")]
+    other = np.setdiff1d(np.arange(kin.n_reactions), state)
+    np.testing.assert_allclose(fast.k[:, other], slow.k[:, other], rtol=1e-12)
+    np.testing.assert_allclose(fast.k[:, state], slow.k[:, state], rtol=2e-3)
     # comparable work: the compiled loop does the same steps, not fewer checks
     assert 0.7 < fast.steps / slow.steps < 1.4
 

@@ -56,7 +56,7 @@ def test_replace_with_relative_path_scales_j_by_the_lab_factor(tmp_path, monkeyp
     _write_lab_file(folder / "dimer.csv", LAB_FACTOR)
     (folder / "mine.mech").write_text(
         'extends "stratosphere"\n[changed reactions]\n'
-        'j_cl2o2  Cl2O2 + hv -> Cl + ClOO  photolysis data=dimer.csv  ref="test lab file"\n',
+        'j_cl2o2  Cl2O2 + hv -> Cl + ClOO  photolysis data=dimer.csv qy=0.9  ref="test lab file"\n',  # qy as shipped (issue 11)
         encoding="utf-8")
     elsewhere = tmp_path / "elsewhere"
     elsewhere.mkdir()

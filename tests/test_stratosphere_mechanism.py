@@ -221,12 +221,16 @@ def test_photolysis_uses_shared_data_names_and_has_fallbacks(mech):
 
 
 def test_heterogeneous_reactions_on_both_surfaces(mech):
-    surf = {r.id: r for r in mech.reactions if r.law == "surface"}
+    surf = {r.id: r for r in mech.reactions if r.law in ("surface", "uptake")}
     pairs = {("ClONO2", "HCl"), ("ClONO2", "H2O"), ("HOCl", "HCl"), ("N2O5", "H2O"),
              ("N2O5", "HCl"), ("BrONO2", "H2O"), ("BrONO2", "HCl"), ("HOBr", "HCl")}
     found = {(r.reactants[0].species, r.reactants[1].species) for r in surf.values()}
     assert pairs == found
-    assert {r.parameters["on"] for r in surf.values()} == {"psc", "sulfate", "ice", "all"}
+    # issue 11: HOBr + HCl is no longer on=all (no constant gamma on warm sulfate)
+    assert {r.parameters["on"] for r in surf.values()} == {"psc", "sulfate", "ice"}
+    # liquid sulfate lines take gamma from the published parameterizations (issue 11)
+    assert {r.id for r in surf.values() if r.law == "uptake"} == {
+        "het_clono2_hcl_sa", "het_clono2_h2o_sa", "het_hocl_hcl_sa", "het_brono2_h2o_sa"}
     # products as in JPL 19-5 Table 5 (recalled from memory)
     prods = {r.id: sorted(t.species for t in r.products for _ in range(int(t.coefficient))) for r in surf.values()}
     assert prods["het_clono2_hcl_psc"] == ["Cl2", "HNO3"]
@@ -235,7 +239,8 @@ def test_heterogeneous_reactions_on_both_surfaces(mech):
     assert prods["het_brono2_hcl_psc"] == ["BrCl", "HNO3"]
     # k = gamma v S / 4 with v = sqrt(8RT/(pi M)): N2O5 on 1e-8 cm2 cm-3 sulfate at 200 K
     # (kinetic theory of gases, common practice); M(N2O5) = 108.01 g mol-1 (IUPAC atomic weights)
-    k = RateEvaluator(mech).surface(200.0, 0.0, 1e-8)
+    k = RateEvaluator(mech).surface(200.0, 0.0, 1e-8, partial_pressures={"H2O": 0.025, "HCl": 1e-5,
+                                                                        "ClONO2": 0.0})
     v = math.sqrt(8 * 8.314462618 * 200.0 / (math.pi * 0.10801)) * 100.0  # cm s-1
     i = mech.reaction_ids.index("het_n2o5_h2o_sa")
     assert k[i] == approx0(0.1 * v * 1e-8 / 4, rel=1e-3)

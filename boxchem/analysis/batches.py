@@ -287,9 +287,11 @@ def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progre
     """The solver's batch call on the group's shared setup."""
     from ..solver.timeloop import integrate_batch
     setup = group.setup
-    observe = getattr(setup.photolysis, "observe", None)
+    from ..runner import state_observer
+    observe = state_observer(setup)
     if observe is not None and y0.shape[0] > 1:
-        # state-dependent J (ozone column following the box): one member at a time
+        # state-dependent J or surfaces (the coefficients follow this member's own state):
+        # one member at a time
         parts = [_integrate(group, y0[i:i + 1], log_multiplier[i:i + 1], progress)
                  for i in range(y0.shape[0])]
         return _stack(parts)

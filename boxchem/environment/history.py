@@ -20,6 +20,7 @@ import numpy as np
 
 from ..errors import DataFileError, ScenarioError
 from . import solar
+from .psc import STATE_RULES, CompositionHistory
 from .atmosphere import (BOLTZMANN_J_PER_K, air_number_density, altitude_from_pressure,
                          standard_atmosphere)
 
@@ -220,7 +221,7 @@ class EnvironmentState:
 
 def _check_quantity(name, value, *, low=None, high=None, low_inclusive=True, valid="", allow_rule=False):
     """Validate a float / TimeSeries argument; returns a float or a TimeSeries."""
-    if allow_rule and isinstance(value, PscThresholdRule):
+    if allow_rule and isinstance(value, (PscThresholdRule, *STATE_RULES)):
         return value
     if isinstance(value, TimeSeries):
         values = value.values
@@ -305,6 +306,10 @@ class Environment:
                                      valid="a surface area density >= 0 cm2 cm-3")
         self.ice_area = prepared("ice_area", ice_area, low=0.0, allow_rule=True,
                                  valid="a surface area density >= 0 cm2 cm-3")
+        # mole fractions the time loop records for composition-dependent area rules (psc.py)
+        needs = sorted({s for a in (self.psc_area, self.ice_area) if isinstance(a, STATE_RULES)
+                        for s in a.needs})
+        self.composition = CompositionHistory(needs) if needs else None
         if pressure is None and altitude is None:
             raise ScenarioError("pressure/altitude: give a pressure [Pa], an altitude [m], or both")
         if pressure is not None:
@@ -362,14 +367,23 @@ class Environment:
         z = value(self.altitude)
         sza, dist = solar._zenith_and_distance_factor(self._start_days + t / 86400.0, lat, lon)
         hz = np.full(t.shape, self._horizon) if self._horizon is not None else solar.horizon_zenith_angle(z)
-        psc = self.psc_area(T) if isinstance(self.psc_area, PscThresholdRule) else value(self.psc_area)
-        ice = self.ice_area(T) if isinstance(self.ice_area, PscThresholdRule) else value(self.ice_area)
+        psc = self._area(self.psc_area, t, T, p, value)
+        ice = self._area(self.ice_area, t, T, p, value)
         return EnvironmentState(
             time_s=t, temperature=T, pressure=p, air_density=air_number_density(p, T),
             latitude=lat, longitude=_wrap_longitude(lon), altitude=z,
             solar_zenith_angle=sza, horizon_zenith_angle=hz,
             ozone_column=value(self.ozone_column), psc_area=psc,
             sulfate_area=value(self.sulfate_area), ice_area=ice, distance_factor=dist)
+
+    def _area(self, rule, t, T, p, value):
+        """A surface area [cm2 cm-3]: a threshold rule of T, a composition rule of
+        (T, p, the recorded mole fractions at t), or a constant/series."""
+        if isinstance(rule, PscThresholdRule):
+            return rule(T)
+        if isinstance(rule, STATE_RULES):
+            return rule(T, p, self.composition.at(t))
+        return value(rule)
 
     def _at_scalar(self, t: float) -> EnvironmentState:
         """``at`` for one time, in float arithmetic (about ten microseconds per call)."""
@@ -392,9 +406,9 @@ class Environment:
         else:  # horizon_zenith_angle for one altitude
             hz = 90.0 + math.degrees(math.acos(solar.EARTH_RADIUS_M / (solar.EARTH_RADIUS_M + max(z, 0.0))))
         psc = (float(self.psc_area(T)) if self.psc_area.__class__ is PscThresholdRule
-               else value(self.psc_area))
+               else float(self._area(self.psc_area, t, T, p, value)))
         ice = (float(self.ice_area(T)) if self.ice_area.__class__ is PscThresholdRule
-               else value(self.ice_area))
+               else float(self._area(self.ice_area, t, T, p, value)))
         f64 = np.float64
         return EnvironmentState(
             f64(t), f64(T), f64(p), f64(p / (T * _BOLTZMANN_CM3)), f64(lat),

@@ -29,7 +29,10 @@ from ..errors import SourceLocation
 #: laws whose k(T, [M]) already contains the third-body density
 LAWS_WITH_AIR_DENSITY = frozenset({"falloff", "chemact"})
 #: every rate law name the mechanism language knows
-RATE_LAWS = ("constant", "arrhenius", "falloff", "chemact", "reverse", "photolysis", "surface")
+RATE_LAWS = ("constant", "arrhenius", "falloff", "chemact", "reverse", "photolysis", "surface", "uptake")
+#: laws of uptake on particle surfaces: k = gamma v S / 4, first order in the first reactant
+#: (``surface``: constant gamma; ``uptake``: gamma from a parameterization or a T table)
+SURFACE_LAWS = frozenset({"surface", "uptake"})
 
 
 @dataclass(frozen=True)
@@ -101,7 +104,7 @@ class Reaction:
     @property
     def rate_coefficient_units(self) -> str:
         """UDUNITS string of k: s-1, cm3 s-1, cm6 s-1 (molecule-based)."""
-        if self.law in ("photolysis", "surface"):
+        if self.law == "photolysis" or self.law in SURFACE_LAWS:
             return "s-1"
         n = self.order
         if n <= 1:

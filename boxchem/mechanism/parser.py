@@ -41,9 +41,12 @@ LAW_KEYS: dict[str, dict[str, object]] = {
     "photolysis": {"required": (), "defaults": {"qy": 1.0, "scale": 1.0},
                    "optional": ("data", "l", "m", "n", "outside")},
     "surface": {"required": ("gamma", "on"), "defaults": {}},
+    # gamma from a named parameterization (gamma_from=) or a table in T (gamma_table=)
+    "uptake": {"required": ("on",), "defaults": {"scale": 1.0, "radius_um": 0.1},
+               "optional": ("gamma_from", "gamma_table")},
 }
 #: keys whose values are text, not numbers
-STRING_KEYS = frozenset({"of", "data", "on", "outside"})
+STRING_KEYS = frozenset({"of", "data", "on", "outside", "gamma_from", "gamma_table"})
 #: keys every reaction may carry (stored on the Reaction, not in parameters)
 COMMON_KEYS = ("f298", "g", "ref")
 #: deepest chain of include lines (a file including a file including ...)
@@ -643,6 +646,10 @@ class _Reader:
             if "data" not in params and not lmn:
                 raise _LineError("photolysis needs data=NAME (cross-section data set) or the "
                                  "parametric form l= m= n=", law_tok.column)
+        if law == "uptake" and ("gamma_from" in params) == ("gamma_table" in params):
+            raise _LineError("uptake needs exactly one of gamma_from=NAME (a parameterization) or "
+                             "gamma_table=\"T:gamma T:gamma ...\" (K and reaction probability)",
+                             law_tok.column)
         for key, default in spec["defaults"].items():
             params.setdefault(key, default)
         return build()

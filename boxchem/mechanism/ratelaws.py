@@ -21,12 +21,13 @@ from __future__ import annotations
 
 import numpy as np
 
+from .liquid_aerosol import liquid_gammas
 from .model import Mechanism
 
 __all__ = [
     "R_GAS", "SURFACE_COREACTANT_HALF", "arrhenius", "termolecular_falloff", "chemical_activation",
     "equilibrium_constant", "parametric_photolysis", "mean_molecular_speed", "surface_uptake",
-    "RateEvaluator",
+    "parse_gamma_table", "gamma_from_table", "SURFACE_STATE_SPECIES", "RateEvaluator",
 ]
 
 #: molar gas constant [J mol-1 K-1] (exact since the 2019 SI redefinition; CODATA 2018)
@@ -61,8 +62,10 @@ def termolecular_falloff(temperature, air_density, k0, n, kinf, m, Fc=0.6, Tref=
     k0(T) = k0 (T/Tref)^-n [cm6 s-1], kinf(T) = kinf (T/Tref)^-m [cm3 s-1],
     x = k0(T)[M]/kinf(T), k = k0(T)[M]/(1 + x) * Fc^(1/(1 + log10(x)^2)).
     Limits: k -> k0(T)[M] as [M] -> 0 and k -> kinf(T) as [M] -> inf.
-    Burkholder et al. (2019), JPL Publication 19-5, section 2, eq. (1)-(2)
-    (there Tref = 298 K; older evaluations used 300 K, hence the parameter).
+    Burkholder et al. (2019), JPL Publication 19-5, section 2, eq. (1)-(2),
+    where k0 and kinf are given at 300 K, k0(T) = k0^300 (T/300)^-n (the
+    default Tref = 300; recalled from memory - issue 11 review: this line said
+    298 K before, against the mechanism and docs).
     """
     T = np.asarray(temperature, dtype=float)
     M = np.asarray(air_density, dtype=float)
@@ -140,6 +143,44 @@ def surface_uptake(temperature, gamma, molar_mass, surface_area):
         * np.asarray(surface_area, dtype=float)
 
 
+#: species whose partial pressures [Pa] the ``uptake`` law's parameterizations read
+SURFACE_STATE_SPECIES = ("H2O", "HCl", "ClONO2")
+
+
+def parse_gamma_table(text: str):
+    """``"T:gamma T:gamma ..."`` (K, reaction probability; spaces or commas between pairs)
+    -> (T [K], gamma [1]) arrays.  T must increase strictly, 0 < gamma <= 1.
+    Raises ValueError saying which pair is wrong and what is valid."""
+    pairs = [p for p in str(text).replace(",", " ").split() if p]
+    if not pairs:
+        raise ValueError(f"{text!r} holds no T:gamma pair; valid: e.g. \"185:0.3 195:0.1 205:0.01\"")
+    temps, gammas = [], []
+    for pair in pairs:
+        t, sep, g = pair.partition(":")
+        try:
+            t_val, g_val = float(t), float(g)
+        except ValueError:
+            raise ValueError(f"{pair!r} is not T:gamma (two numbers with ':' between); "
+                             f"valid: e.g. 195:0.1") from None
+        if not sep or not np.isfinite(t_val) or t_val <= 0:
+            raise ValueError(f"{pair!r}: T must be a temperature > 0 K; valid: e.g. 195:0.1")
+        if not (0.0 < g_val <= 1.0):
+            raise ValueError(f"{pair!r}: gamma={g_val:g} is not a reaction probability; valid: 0 < gamma <= 1")
+        if temps and t_val <= temps[-1]:
+            raise ValueError(f"{pair!r}: temperatures must increase strictly (after {temps[-1]:g} K)")
+        temps.append(t_val)
+        gammas.append(g_val)
+    return np.array(temps), np.array(gammas)
+
+
+def gamma_from_table(temperature, table_T, table_gamma):
+    """gamma [1] at T [K] from a measured table: ln gamma linear in T between the
+    nodes, the end values held outside them (common practice for tabulated uptake
+    coefficients, no source; docs/heterogeneous.md)."""
+    T = np.asarray(temperature, dtype=float)
+    return np.exp(np.interp(T, table_T, np.log(table_gamma)))
+
+
 def _indices(reactions, law: str) -> np.ndarray:
     return np.array([i for i, r in enumerate(reactions) if r.law == law], dtype=np.intp)
 
@@ -180,8 +221,24 @@ class RateEvaluator:
 
         self.photolysis_index = _indices(rx, "photolysis")
 
-        self.surface_index = _indices(rx, "surface")
-        self._surf_gamma = _param(rx, self.surface_index, "gamma")
+        # constant-gamma lines first, then uptake lines (gamma from a parameterization/table)
+        self.constant_gamma_index = _indices(rx, "surface")
+        self.uptake_index = _indices(rx, "uptake")
+        self.surface_index = np.concatenate([self.constant_gamma_index, self.uptake_index]).astype(np.intp)
+        n_const = self.constant_gamma_index.size
+        self._surf_gamma = np.concatenate([_param(rx, self.constant_gamma_index, "gamma"),
+                                           np.ones(self.uptake_index.size)])
+        self._uptake_scale = _param(rx, self.uptake_index, "scale")
+        self._uptake_radius_cm = _param(rx, self.uptake_index, "radius_um") * 1e-4
+        self._uptake_model = [rx[i].parameters.get("gamma_from") for i in self.uptake_index]
+        self._uptake_table = [parse_gamma_table(rx[i].parameters["gamma_table"])
+                              if rx[i].parameters.get("gamma_from") is None else None
+                              for i in self.uptake_index]
+        self._uptake_slice = slice(n_const, n_const + self.uptake_index.size)
+        #: True when some gamma depends on the box's composition (H2O, HCl, ClONO2)
+        self.state_dependent_surface = any(m is not None for m in self._uptake_model)
+        #: True when some gamma depends on temperature (k is then not just ~ sqrt(T))
+        self.temperature_dependent_gamma = bool(self.uptake_index.size)
         species = {s.name: s for s in mechanism.species}
         self._surf_mass = np.array([species[rx[i].reactants[0].species].molar_mass
                                     for i in self.surface_index], dtype=float)
@@ -219,23 +276,59 @@ class RateEvaluator:
             k[..., self._rev] = k[..., self._rev_of] / equilibrium_constant(T, self._rev_K, self._rev_B)
         return k
 
-    def surface(self, temperature, psc_area, sulfate_area, ice_area=0.0) -> np.ndarray:
+    def surface_gamma(self, temperature, partial_pressures=None) -> np.ndarray:
+        """gamma [1] of every surface column (order of ``surface_index``), shape T.shape + (n,).
+
+        temperature [K]; ``partial_pressures``: mapping of SURFACE_STATE_SPECIES
+        to partial pressures [Pa] (broadcast with T), needed when a line has
+        gamma_from= (``state_dependent_surface``; without them those columns
+        are NaN).  ``uptake`` lines carry their scale=.
+        """
+        T = np.asarray(temperature, dtype=float)
+        pp = dict(partial_pressures or {})
+        # without the composition, gamma_from= columns are NaN (never a silent number)
+        have_state = all(s in pp for s in SURFACE_STATE_SPECIES)
+        shape = np.broadcast_shapes(T.shape, *(np.shape(v) for v in pp.values()))
+        gamma = np.broadcast_to(self._surf_gamma, shape + self._surf_gamma.shape).copy()
+        by_radius = {}   # the droplet properties once per radius (usually one radius)
+        for j, (model, table) in enumerate(zip(self._uptake_model, self._uptake_table)):
+            # one entry per uptake line (a handful), each a vectorised formula over conditions
+            if model is not None and not have_state:
+                g = np.nan
+            elif model is not None:
+                r = float(self._uptake_radius_cm[j])
+                if r not in by_radius:
+                    by_radius[r] = liquid_gammas(T, pp["H2O"], pp["HCl"], pp["ClONO2"], r)
+                g = by_radius[r][model]
+            else:
+                g = gamma_from_table(T, *table)
+            gamma[..., self._uptake_slice.start + j] = np.broadcast_to(g, shape) * self._uptake_scale[j]
+        return gamma
+
+    def surface(self, temperature, psc_area, sulfate_area, ice_area=0.0, partial_pressures=None) -> np.ndarray:
         """k [s-1] of every surface reaction, k = gamma v S / 4; other columns 0.
 
         temperature [K], psc_area (NAT/STS clouds), sulfate_area and ice_area
         (ice clouds) [cm2 cm-3] (broadcast; ice_area defaults to 0).
-        ``on=all`` reactions see the sum of the three areas.
+        ``on=all`` reactions see the sum of the three areas.  ``partial_pressures``
+        (SURFACE_STATE_SPECIES -> Pa) as in :meth:`surface_gamma`; without them
+        the k of gamma_from= lines is NaN where their surface has area (0 where not).
         """
         T = np.asarray(temperature, dtype=float)
         psc = np.asarray(psc_area, dtype=float)
         sulf = np.asarray(sulfate_area, dtype=float)
         ice = np.asarray(ice_area, dtype=float)
-        shape = np.broadcast_shapes(T.shape, psc.shape, sulf.shape, ice.shape)
+        pp = dict(partial_pressures or {})
+        shape = np.broadcast_shapes(T.shape, psc.shape, sulf.shape, ice.shape,
+                                    *(np.shape(v) for v in pp.values()))
         k = np.zeros(shape + (self.n_reactions,))
         if self.surface_index.size:
             area = (np.broadcast_to(psc, shape)[..., None] * self._surf_psc
                     + np.broadcast_to(sulf, shape)[..., None] * self._surf_sulfate
                     + np.broadcast_to(ice, shape)[..., None] * self._surf_ice)
-            k[..., self.surface_index] = surface_uptake(np.broadcast_to(T, shape)[..., None],
-                                                        self._surf_gamma, self._surf_mass, area)
+            gamma = self.surface_gamma(np.broadcast_to(T, shape), pp)
+            ks = surface_uptake(np.broadcast_to(T, shape)[..., None], gamma, self._surf_mass, area)
+            # no area: no uptake, whatever gamma; gamma_from= lines without the composition
+            # stay NaN where they have area (surface_gamma), so a missing input never looks valid
+            k[..., self.surface_index] = np.where(area == 0.0, 0.0, ks)
         return k

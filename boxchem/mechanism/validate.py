@@ -15,7 +15,7 @@ from typing import Iterable
 
 from ..errors import Problem, SourceLocation
 from .formula import is_element
-from .model import Mechanism, Reaction
+from .model import SURFACE_LAWS, Mechanism, Reaction
 
 __all__ = ["validate_mechanism", "SURFACE_TARGETS"]
 
@@ -147,7 +147,7 @@ def _check_reaction(r: Reaction, species, known, reactions, ignore_reactions, er
         err(f"reaction {r.id!r}: hv on the left needs the photolysis law, found {r.law!r}", _at(loc, r.law))
     if r.law == "photolysis" and r.photolysis and (len(r.reactants) != 1 or r.reactants[0].coefficient != 1):
         err(f"reaction {r.id!r}: photolysis takes exactly one molecule besides hv", _at(loc, "hv"))
-    if r.law == "surface":
+    if r.law in SURFACE_LAWS:
         on = r.parameters.get("on")
         if on not in SURFACE_TARGETS:
             err(f"reaction {r.id!r}: on={on} is not a surface; valid: on=psc, on=sulfate, on=ice, on=all",
@@ -159,6 +159,8 @@ def _check_reaction(r: Reaction, species, known, reactions, ignore_reactions, er
                     f"has no formula (give it formula=...)", _at(loc, first.name))
         if r.third_body:
             err(f"reaction {r.id!r}: a surface reaction takes no third body M", _at(loc, "M"))
+    if r.law == "uptake":
+        _check_uptake(r, loc, err)
     if not r.reactants:
         err(f"reaction {r.id!r}: no reactants", loc)
 
@@ -191,6 +193,31 @@ def _check_reaction(r: Reaction, species, known, reactions, ignore_reactions, er
         _check_balance(r, species, err)
 
 
+def _check_uptake(r: Reaction, loc, err) -> None:
+    """gamma_from= must name a parameterization; gamma_table= must parse (docs/heterogeneous.md)."""
+    from .liquid_aerosol import LIQUID_GAMMA_MODELS
+    from .ratelaws import parse_gamma_table
+
+    name = r.parameters.get("gamma_from")
+    if name is not None and name not in LIQUID_GAMMA_MODELS:
+        err(f"reaction {r.id!r}: gamma_from={name} is not a known parameterization"
+            f"{_suggest(str(name), tuple(LIQUID_GAMMA_MODELS))}; valid: {', '.join(LIQUID_GAMMA_MODELS)}",
+            _at(loc, "gamma_from", suffix="="))
+    table = r.parameters.get("gamma_table")
+    if table is not None:
+        try:
+            parse_gamma_table(str(table))
+        except ValueError as exc:
+            err(f"reaction {r.id!r}: gamma_table: {exc}", _at(loc, "gamma_table", suffix="="))
+    if name is not None and r.parameters.get("on") not in ("sulfate",):
+        err(f"reaction {r.id!r}: gamma_from={name} is a liquid sulfate parameterization; valid: on=sulfate",
+            _at(loc, "on", suffix="="))
+    radius = r.parameters.get("radius_um", 0.1)
+    if not (isinstance(radius, float) and math.isfinite(radius) and radius > 0):
+        err(f"reaction {r.id!r}: radius_um={radius} is not a droplet radius > 0 [um]",
+            _at(loc, "radius_um", suffix="="))
+
+
 def _m_on_right(r: Reaction) -> bool:
     eq = r.equation.split("->", 1)
     return len(eq) == 2 and re.search(r"(?<![A-Za-z0-9_])M(?![A-Za-z0-9_])", eq[1]) is not None
@@ -207,11 +234,11 @@ def _check_reverse(r: Reaction, reactions, ignore_reactions, err) -> None:
     if fwd.law == "reverse":
         err(f"reaction {r.id!r}: of={of} is itself a reverse reaction; name the forward reaction", loc)
         return
-    if fwd.law in ("photolysis", "surface"):
+    if fwd.law == "photolysis" or fwd.law in SURFACE_LAWS:
         err(f"reaction {r.id!r}: of={of} is a {fwd.law} reaction; reverse needs a thermal forward reaction",
             loc)
         return
-    if fwd.photolysis or fwd.law == "surface":
+    if fwd.photolysis or fwd.law in SURFACE_LAWS:
         return
     same = (_stoich(r.reactants) == _stoich(fwd.products) and _stoich(r.products) == _stoich(fwd.reactants)
             and r.third_body == fwd.third_body)
@@ -256,7 +283,7 @@ def _check_duplicates(reactions, err) -> None:
     for r in reactions:
         key = (frozenset(_stoich(r.reactants).items()), frozenset(_stoich(r.products).items()),
                r.law, r.third_body, r.photolysis,
-               r.parameters.get("on") if r.law == "surface" else None)
+               r.parameters.get("on") if r.law in SURFACE_LAWS else None)
         if key in seen:
             first = seen[key]
             err(f"reactions {first.id!r} and {r.id!r} have the same equation and law ({r.law}); "

@@ -25,6 +25,19 @@ by order] in mechanism reaction order and the fixed-species number densities
   form), evaluated at every call while the sun is above the box's horizon
   and skipped (J = 0 by the photolysis contract) below it.
 * the ``[scale]`` multipliers of the scenario (reaction id -> factor).
+
+State-dependent surfaces (docs/heterogeneous.md): ``uptake`` lines with
+``gamma_from=`` read the partial pressures of H2O, HCl and ClONO2, and the
+NAT/ice area rules of ``environment/psc.py`` read HNO3 and H2O.  The time
+loop calls :meth:`RateCoefficientModel.observe_state` with the start state and
+the state at every output time; k(t) then uses the composition last observed
+(lagged by at most one output interval, piecewise constant in time), so k(t)
+stays a deterministic function of t between observations and the compiled
+loop rebuilds its table from the observation time on.  A new composition is
+recorded only when a watched mole fraction has moved by more than
+SURFACE_REFRESH_TOLERANCE (1 %; ClONO2, which enters only through the
+HCl-depletion factor: 20 %) since the last record.  ``uptake`` lines are
+evaluated exactly (cached on their conditions), not scaled by sqrt(T).
 """
 from __future__ import annotations
 
@@ -36,6 +49,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..environment.history import PscThresholdRule
+from ..environment.psc import CompositionHistory
 from ..errors import ScenarioError
 from .kinetics import CompiledKinetics
 
@@ -56,6 +70,14 @@ MAX_TABLE_INTERVAL_S = 6 * 3600.0
 MAX_DARK_TABLE_INTERVAL_S = 24 * 3600.0
 #: SZA spacing [deg] of the per-interval ln J grid for J that is not from a J table
 J_GRID_STEP_DEG = 0.02
+#: observe_state records a new composition only when a watched mole fraction moved by more
+#: than this fraction of its recorded value (or of SURFACE_REFRESH_FLOOR) - gammas and areas
+#: depend smoothly on them, and each record costs a table rebuild (docs/heterogeneous.md)
+SURFACE_REFRESH_TOLERANCE = 0.01
+#: the same for ClONO2, which enters only through the HCl-depletion factor (module docstring)
+SURFACE_REFRESH_TOLERANCE_CLONO2 = 0.2
+#: mole fraction [mol mol-1] below which changes do not count (0.1 pptv)
+SURFACE_REFRESH_FLOOR = 1e-13
 
 
 @dataclass(frozen=True)
@@ -189,7 +211,26 @@ class RateCoefficientModel:
         self._nodes: dict = {}          # (i, j) -> ln k at T0 + i dT, ln M0 + j dlnM
         self._last_thermal = None       # ((T, [M]), k) of the last call
         self._surface_ref = None        # (T0, k per unit PSC, sulfate and ice area)
+        self._surface_cache = (None, None)   # (conditions, k) of the last exact surface evaluation
+        self._last_observed = None           # (t, mole fractions) of the last record
         self.thermal_evaluations = 0
+        # composition the state-dependent surfaces read (module docstring)
+        from ..mechanism.ratelaws import SURFACE_STATE_SPECIES
+        self._exact_surface = bool(getattr(evaluator, "temperature_dependent_gamma", False))
+        gamma_species = SURFACE_STATE_SPECIES if getattr(evaluator, "state_dependent_surface", False) else ()
+        self.surface_composition = CompositionHistory(gamma_species) if gamma_species else None
+        env_comp = getattr(environment, "composition", None)
+        watched = sorted(set(gamma_species) | set(env_comp.species if env_comp is not None else ()))
+        variable = {name: i for i, name in enumerate(self.kinetics.variable_species)}
+        fixed_names = list(self.kinetics.fixed_species)
+        self._watched = tuple(watched)
+        self._watched_index = np.array([variable.get(n, -1) for n in watched], dtype=np.intp)
+        # ClONO2 enters the sulfate gammas only through the HCl-depletion factor F_HCl
+        # (Shi et al. 2001): a looser tolerance, so its diurnal swing does not force rebuilds
+        self._refresh_tolerance = np.array([SURFACE_REFRESH_TOLERANCE_CLONO2 if n == "ClONO2"
+                                            else SURFACE_REFRESH_TOLERANCE for n in watched])
+        self._watched_fixed = np.array([self._fixed_per_air[fixed_names.index(n)] if n in fixed_names
+                                        else 0.0 for n in watched])
 
     def _node(self, i: int, j: int) -> np.ndarray:
         log_k = self._nodes.get((i, j))
@@ -228,7 +269,50 @@ class RateCoefficientModel:
                     log_k = log_k + w * self._node(i + di, j + dj)
         return np.exp(log_k)
 
-    def _surface_k(self, T: float, psc: float, sulfate: float, ice: float) -> np.ndarray:
+    @property
+    def state_dependent(self) -> bool:
+        """True when some surface k or area depends on the box's composition."""
+        return bool(self._watched)
+
+    def observe_state(self, t_s: float, y) -> bool:
+        """Record the box's state ``y`` [cm-3] at ``t_s`` for the state-dependent surfaces.
+
+        Returns True when k(t) from ``t_s`` on may have changed (the caller
+        re-evaluates k and rebuilds interval tables), False when nothing here
+        depends on the state.  See the module docstring.
+        """
+        if not self._watched:
+            return False
+        air = float(self.environment.at(float(t_s)).air_density)
+        yv = np.asarray(y, dtype=float)
+        x = np.where(self._watched_index >= 0, yv[self._watched_index] / air, self._watched_fixed)
+        last = self._last_observed
+        if last is not None and float(t_s) > last[0] and np.all(
+                np.abs(x - last[1]) <= self._refresh_tolerance * np.maximum(np.abs(last[1]),
+                                                                           SURFACE_REFRESH_FLOOR)):
+            return False           # composition as recorded: k(t) unchanged, no table rebuild
+        self._last_observed = (float(t_s), x)
+        values = dict(zip(self._watched, x))
+        if self.surface_composition is not None:
+            self.surface_composition.record(t_s, [values[s] for s in self.surface_composition.species])
+        env_comp = getattr(self.environment, "composition", None)
+        if env_comp is not None:
+            env_comp.record(t_s, [values[s] for s in env_comp.species])
+        self._surface_cache = (None, None)
+        return True
+
+    def _surface_k(self, T: float, psc: float, sulfate: float, ice: float, pressure: float = 0.0,
+                   t_s: float = 0.0) -> np.ndarray:
+        if self._exact_surface:
+            pp = {}
+            if self.surface_composition is not None:
+                pp = {s: x * pressure for s, x in self.surface_composition.at(float(t_s)).items()}
+            key = (T, psc, sulfate, ice, *pp.values())
+            if self._surface_cache[0] == key:
+                return self._surface_cache[1]
+            k = np.asarray(self.evaluator.surface(T, psc, sulfate, ice, partial_pressures=pp), dtype=float)
+            self._surface_cache = (key, k)
+            return k
         if self._surface_ref is None:
             per_psc = np.asarray(self.evaluator.surface(T, 1.0, 0.0, 0.0), dtype=float)
             per_sulfate = np.asarray(self.evaluator.surface(T, 0.0, 1.0, 0.0), dtype=float)
@@ -315,11 +399,8 @@ class RateCoefficientModel:
         conditions = np.stack([state.temperature, state.air_density, state.psc_area,
                                state.sulfate_area, state.ice_area], axis=-1).astype(float)
         T, air, psc, sulfate, ice = conditions.T
-        if self._surface_ref is None:
-            self._surface_k(float(T[0]), 0.0, 0.0, 0.0)
-        T0, per_psc, per_sulfate, per_ice = self._surface_ref
-        surface = np.sqrt(T / T0)[:, None] * (psc[:, None] * per_psc + sulfate[:, None] * per_sulfate
-                                             + ice[:, None] * per_ice)
+        # the composition is constant over a table: it starts at the last observation
+        surface = self._surface_k_many(T, psc, sulfate, ice, state.pressure, np.full(n, tau_a))
         values[:, :nr] = (self._thermal_k_many(T, air) + surface) * self.multiplier
         values[:, nr:] = air[:, None] * self._fixed_per_air
         positive = np.all(values > 0.0, axis=0)
@@ -383,6 +464,29 @@ class RateCoefficientModel:
                 log_k[use] += w[use, None] * nodes
         return np.exp(log_k)
 
+    def _surface_k_many(self, T, psc, sulfate, ice, pressure, composition_times) -> np.ndarray:
+        """Surface k (n, n_reactions) at n conditions, in one vectorised call.
+
+        ``uptake`` lines (``_exact_surface``) are evaluated exactly with the
+        composition observed at ``composition_times``; plain surface lines are
+        scaled from a reference evaluation by sqrt(T) (mean molecular speed).
+        """
+        T = np.asarray(T, dtype=float)
+        if self._exact_surface:
+            pp = {}
+            if self.surface_composition is not None:
+                p = np.broadcast_to(np.asarray(pressure, dtype=float), T.shape)
+                pp = {sp: np.asarray(x) * p
+                      for sp, x in self.surface_composition.at(np.asarray(composition_times, float)).items()}
+            return np.asarray(self.evaluator.surface(T, psc, sulfate, ice, partial_pressures=pp),
+                              dtype=float).reshape(T.size, -1)
+        if self._surface_ref is None:
+            self._surface_k(float(T.ravel()[0]), 0.0, 0.0, 0.0)
+        T0, per_psc, per_sulfate, per_ice = self._surface_ref
+        return np.sqrt(T / T0)[:, None] * (np.asarray(psc)[:, None] * per_psc
+                                           + np.asarray(sulfate)[:, None] * per_sulfate
+                                           + np.asarray(ice)[:, None] * per_ice)
+
     def at_times(self, times_s):
         """(k (n, n_reactions), fixed (n, n_fixed)) at many times [s]: ``self(t)`` for each, vectorised.
 
@@ -398,13 +502,8 @@ class RateCoefficientModel:
         def col(v):
             return np.broadcast_to(np.asarray(v, dtype=float), times.shape).astype(float)
         T, air = col(state.temperature), col(state.air_density)
-        k = self._thermal_k_many(T, air)
-        if self._surface_ref is None:
-            self._surface_k(float(T[0]), 0.0, 0.0, 0.0)
-        T0, per_psc, per_sulfate, per_ice = self._surface_ref
-        k = k + np.sqrt(T / T0)[:, None] * (col(state.psc_area)[:, None] * per_psc
-                                           + col(state.sulfate_area)[:, None] * per_sulfate
-                                           + col(state.ice_area)[:, None] * per_ice)
+        k = self._thermal_k_many(T, air) + self._surface_k_many(
+            T, col(state.psc_area), col(state.sulfate_area), col(state.ice_area), col(state.pressure), times)
         if self.photolysis_rates is not None:
             sza = col(state.solar_zenith_angle)
             lit = sza < col(state.horizon_zenith_angle)
@@ -421,7 +520,8 @@ class RateCoefficientModel:
         air = float(state.air_density)
         k = self._thermal_k(T, air) + self._surface_k(T, float(state.psc_area),
                                                        float(state.sulfate_area),
-                                                       float(state.ice_area))
+                                                       float(state.ice_area), float(state.pressure),
+                                                       float(t_seconds))
         if self.photolysis_rates is not None and \
                 float(state.solar_zenith_angle) < float(state.horizon_zenith_angle):
             j = np.asarray(self.photolysis_rates(state.solar_zenith_angle, state.ozone_column, T,

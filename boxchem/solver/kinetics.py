@@ -113,7 +113,7 @@ class CompiledKinetics:
                     net[index[term.species], r] += term.coefficient
             slots: list[int] = []
             sats: list[int] = []
-            if reaction.law == "surface":
+            if reaction.law in ("surface", "uptake"):   # model.SURFACE_LAWS
                 if reaction.reactants:
                     slots.append(index[reaction.reactants[0].species])
                 for term in reaction.reactants[1:]:

@@ -1,0 +1,259 @@
+"""Science checks tight enough that a factor-2 error in a key rate, J or gamma fails (issue 11, item 6).
+
+Each check names its source beside it.  ``benchmarks/factor2_check.py``
+multiplies each key quantity by 2 and by 0.5 in turn (tests/perturb_plugin.py)
+and reports which of these tests fail; its output is in docs/heterogeneous.md.
+
+Where a reference value is recalled from memory rather than read from the
+source, the comment says so: the team's search tools did not return the text
+of the JPL 19-5 tables.  Tolerances are the evaluation's own uncertainty
+factor f(T) = f298 exp(|g (1/T - 1/298)|) where one is given, and never looser
+than a factor 1.5, so that a factor of 2 always fails.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+import boxchem
+from boxchem.environment.atmosphere import air_number_density
+from boxchem.mechanism import load_mechanism
+from boxchem.mechanism.liquid_aerosol import liquid_gammas
+from boxchem.mechanism.ratelaws import RateEvaluator
+
+
+@pytest.fixture(scope="module")
+def mech():
+    return load_mechanism("stratosphere")
+
+
+@pytest.fixture(scope="module")
+def evaluator(mech):
+    return RateEvaluator(mech)
+
+
+def _uncertainty(f298, g, T):
+    # the evaluated-data tables' convention (JPL 19-5 section 1; CONTRACTS.md)
+    return f298 * math.exp(abs(g * (1.0 / T - 1.0 / 298.0)))
+
+
+def _k(evaluator, mech, rid, T, pressure_Pa=5000.0):
+    M = air_number_density(pressure_Pa, T)
+    return float(evaluator.thermal(T, M)[mech.reaction_ids.index(rid)])
+
+
+def _jpl_falloff(T, M, k0_300, n, kinf_300, m):
+    # JPL 19-5 section 2 termolecular form, written out here independently of ratelaws.py:
+    # k0(T) = k0(300) (T/300)^-n, kinf(T) = kinf(300) (T/300)^-m, Fc = 0.6
+    k0 = k0_300 * (T / 300.0) ** -n * M
+    kinf = kinf_300 * (T / 300.0) ** -m
+    x = k0 / kinf
+    return k0 / (1 + x) * 0.6 ** (1 / (1 + math.log10(x) ** 2))
+
+
+# ---------------------------------------------------------------- rate coefficients
+@pytest.mark.parametrize("T", [200.0, 230.0, 298.0])
+def test_cl_o3_against_jpl(evaluator, mech, T):
+    # JPL 19-5 Table 1A: Cl + O3, A = 2.3e-11, E/R = 200 K, f298 = 1.15, g = 100
+    # (recalled from memory; the IUPAC expression differs by < 15 % here)
+    ref = 2.3e-11 * math.exp(-200.0 / T)
+    ratio = _k(evaluator, mech, "cl_o3", T) / ref
+    assert 1 / _uncertainty(1.15, 100, T) < ratio < _uncertainty(1.15, 100, T)
+
+
+@pytest.mark.parametrize("T, p_hPa", [(190.0, 50.0), (200.0, 30.0), (220.0, 100.0)])
+def test_clo_clo_m_against_jpl(evaluator, mech, T, p_hPa):
+    # JPL 19-5 Table 2: ClO + ClO + M -> Cl2O2 + M, k0 = 1.9e-32 (n = 3.6), kinf = 3.7e-12
+    # (m = 1.6), f298 = 1.15 (recalled from memory)
+    M = air_number_density(p_hPa * 100.0, T)
+    ref = _jpl_falloff(T, M, 1.9e-32, 3.6, 3.7e-12, 1.6)
+    ratio = _k(evaluator, mech, "clo_clo_m", T, p_hPa * 100.0) / ref
+    assert 1 / 1.3 < ratio < 1.3
+
+
+@pytest.mark.parametrize("T", [190.0, 220.0, 298.0])
+def test_clo_bro_against_jpl(evaluator, mech, T):
+    # JPL 19-5 Table 1A, ClO + BrO channels (recalled from memory), f298 = 1.2, g = 100 each:
+    # -> Br + OClO 9.5e-13 exp(550/T); -> Br + ClOO 2.3e-12 exp(260/T); -> BrCl + O2 4.1e-13 exp(290/T)
+    refs = {"clo_bro_a": 9.5e-13 * math.exp(550 / T), "clo_bro_b": 2.3e-12 * math.exp(260 / T),
+            "clo_bro_c": 4.1e-13 * math.exp(290 / T)}
+    f = _uncertainty(1.2, 100, T)
+    for rid, ref in refs.items():
+        assert 1 / f < _k(evaluator, mech, rid, T) / ref < f, rid
+
+
+# ---------------------------------------------------------------- cross sections and J
+def test_o3_cross_section_hg_line():
+    # O3 absorption at the mercury line 253.65 nm: 1.13e-17 cm2 at room temperature
+    # (the reference value of UV ozone photometry, Hearn 1961 / BIPM-ISO 13964; recalled from memory)
+    from boxchem.photolysis.crosssections import cross_section_data
+    sigma = float(np.asarray(cross_section_data("O3")(np.array([253.65]), 295.0)).ravel()[0])
+    assert sigma == pytest.approx(1.13e-17, rel=0.05, abs=0)   # abs=0: approx defaults to abs 1e-12
+
+
+def test_o3_cross_section_huggins_band():
+    # O3 at 310 nm and room temperature ~ 1e-19 cm2 within a factor 1.3 (Molina and Molina 1986 /
+    # JPL 19-5 Table 4; recalled from memory): the band that sets J(O1D) in the stratosphere
+    from boxchem.photolysis.crosssections import cross_section_data
+    sigma = float(np.asarray(cross_section_data("O3")(np.array([310.0]), 295.0)).ravel()[0])
+    assert 1e-19 / 1.3 < sigma < 1e-19 * 1.3
+
+
+def _photolysis(mech, albedo=0.3, altitude_m=20000.0):
+    from boxchem.photolysis.rates import PhotolysisRates
+    return PhotolysisRates(mech, altitude_m=altitude_m, albedo=albedo, method="spectral")
+
+
+def test_j_cl2o2_equals_its_spectral_integral(mech):
+    # J = integral sigma(lambda) phi F(lambda) dlambda (definition; common practice, no source), with
+    # the shipped Cl2O2 cross sections (JPL 19-5 / Papanastasiou et al. 2009, see the data file) and
+    # the model's own actinic flux, computed here on the flux grid independently of the J table.
+    # No published J(Cl2O2) value was found by search: this check guards the J machinery, not sigma.
+    from boxchem.photolysis.actinic import flux_grid
+    from boxchem.photolysis.crosssections import cross_section_data
+    phot = _photolysis(mech)
+    i = mech.reaction_ids.index("j_cl2o2")
+    j_model = float(np.asarray(phot(np.array([60.0]), 300.0, 200.0, 1.0)).reshape(-1, len(mech.reactions))[0, i])
+    from boxchem.photolysis.spectrum import model_wavelength_edges
+    edges = model_wavelength_edges()
+    edges = edges[(edges >= 200.0) & (edges <= 450.0)]
+    flux = np.asarray(flux_grid(np.array([60.0]), 20000.0, np.array([300.0]), albedo=0.3,
+                                wavelength_edges_nm=edges, temperature_K=200.0)).reshape(-1)
+    sigma = cross_section_data("Cl2O2").bin_average(edges, 200.0)
+    qy = float(mech.reactions[i].parameters["qy"])
+    j_ref = float(np.sum(sigma * qy * flux[: sigma.size] * np.diff(edges)))
+    assert j_model == pytest.approx(j_ref, rel=0.10, abs=0)
+
+
+def test_j_no2_against_balloon_measurement(mech):
+    # J(NO2) = 1.05e-2 s-1 measured at about 24 km with the sun high (Madronich, Hastie, Ridley,
+    # Schiff, J. Atmos. Chem. 3, 233-245, 1985; value as quoted in issue 11).  Stated measurement
+    # uncertainty about 10 % (recalled); the model's albedo-0 value must lie within 25 % of it.
+    phot = _photolysis(mech, albedo=0.0, altitude_m=24000.0)
+    i = mech.reaction_ids.index("j_no2")
+    j = float(np.asarray(phot(np.array([30.0]), 300.0, 220.0, 1.0)).reshape(-1, len(mech.reactions))[0, i])
+    assert 1.05e-2 / 1.25 < j < 1.05e-2 * 1.25
+
+
+# ---------------------------------------------------------------- gammas
+def test_nat_gammas_against_jpl(evaluator, mech):
+    # JPL 19-5 Table 5, NAT (recalled from memory): ClONO2 + HCl 0.2, ClONO2 + H2O 0.004,
+    # HOCl + HCl 0.1, N2O5 + H2O 4e-4, N2O5 + HCl 3e-3; BrONO2 on "psc": the ice value 0.3
+    ref = {"het_clono2_hcl_psc": 0.2, "het_clono2_h2o_psc": 0.004, "het_hocl_hcl_psc": 0.1,
+           "het_n2o5_h2o_psc": 4e-4, "het_n2o5_hcl_psc": 3e-3, "het_brono2_h2o_psc": 0.3,
+           "het_brono2_hcl_psc": 0.3, "het_hobr_hcl": 0.1}
+    pp = {"H2O": 0.025, "HCl": 1e-5, "ClONO2": 5e-6}
+    gamma = evaluator.surface_gamma(np.array([192.0]), {k: np.array([v]) for k, v in pp.items()})[0]
+    col = {mech.reaction_ids[i]: j for j, i in enumerate(evaluator.surface_index)}
+    for rid, g in ref.items():
+        assert gamma[col[rid]] == pytest.approx(g, rel=0.2, abs=0), rid
+
+
+@pytest.mark.parametrize("T", [192.0, 196.0, 200.0, 210.0])
+def test_sulfate_gammas_are_the_published_parameterizations(evaluator, mech, T):
+    # the shipped sulfate lines use Shi et al. (2001) / Hanson (2003) as JPL 19-5 recommends, and
+    # N2O5 + H2O = 0.1 (JPL 19-5 Table 5, recalled): model gamma vs the parameterization itself
+    p = 5000.0
+    pp = {"H2O": 5e-6 * p, "HCl": 1.5e-9 * p, "ClONO2": 0.5e-9 * p}
+    ref = liquid_gammas(T, pp["H2O"], pp["HCl"], pp["ClONO2"], 1e-5)
+    expected = {"het_clono2_hcl_sa": ref["shi2001_clono2_hcl"], "het_clono2_h2o_sa": ref["shi2001_clono2_h2o"],
+                "het_hocl_hcl_sa": ref["shi2001_hocl_hcl"], "het_brono2_h2o_sa": ref["hanson2003_brono2_h2o"],
+                "het_n2o5_h2o_sa": 0.1}
+    gamma = evaluator.surface_gamma(np.array([T]), {k: np.array([v]) for k, v in pp.items()})[0]
+    col = {mech.reaction_ids[i]: j for j, i in enumerate(evaluator.surface_index)}
+    for rid, g in expected.items():
+        assert gamma[col[rid]] == pytest.approx(float(g), rel=0.01, abs=0), rid
+
+
+# ---------------------------------------------------------------- simulated loss rates
+@pytest.fixture(scope="module")
+def activated_noon():
+    """Two sunlit days of activated vortex air (polar-spring values from 10 September)."""
+    return boxchem.run("polar-spring", **{"run.start": "2026-09-10T00:00:00Z", "run.duration": "2 d",
+                                          "run.output_interval": "30 min"})
+
+
+def _noon_index(ds):
+    sza = ds["solar_zenith_angle"].values
+    day2 = np.arange(sza.size) >= sza.size // 2
+    return int(np.argmin(np.where(day2, sza, np.inf)))
+
+
+def test_dimer_cycle_rate_is_rate_limited_by_clo_clo_m(activated_noon, mech):
+    # ClO-dimer cycle at noon: photochemical steady state of Cl2O2 makes its Ox loss rate equal
+    # to 2 k[ClO]^2 (k: effective second-order ClO + ClO + M at the box's [M]) minus the small
+    # thermal decomposition (Molina and Molina 1987; common practice).  k from JPL 19-5 (see
+    # test_clo_clo_m_against_jpl, recalled); within 10 %.
+    ds = activated_noon
+    i = _noon_index(ds)
+    T, M = float(ds["temperature"][i]), float(ds["air_number_density"][i])
+    clo = float(ds["number_density"].sel(species="ClO")[i])
+    k_jpl = _jpl_falloff(T, M, 1.9e-32, 3.6, 3.7e-12, 1.6)
+    simulated = float(ds["cycle_rate"].sel(cycle="clo_dimer")[i])
+    assert simulated == pytest.approx(2 * k_jpl * clo ** 2, rel=0.10, abs=0)
+
+
+def test_clo_bro_cycle_rate(activated_noon):
+    # ClO + BrO cycle: Ox loss 2 (k_b + k_c)[ClO][BrO] with the JPL 19-5 channel rates (recalled,
+    # see test_clo_bro_against_jpl); the OClO channel is a null cycle in sunlight (common practice)
+    ds = activated_noon
+    i = _noon_index(ds)
+    T = float(ds["temperature"][i])
+    clo = float(ds["number_density"].sel(species="ClO")[i])
+    bro = float(ds["number_density"].sel(species="BrO")[i])
+    k = 2.3e-12 * math.exp(260 / T) + 4.1e-13 * math.exp(290 / T)
+    assert float(ds["cycle_rate"].sel(cycle="clo_bro")[i]) == pytest.approx(2 * k * clo * bro, rel=0.25, abs=0)
+
+
+def test_noon_dimer_to_clo_ratio_follows_j(activated_noon, mech):
+    # steady state [Cl2O2] = k[ClO]^2 / J at noon (common practice): with k from JPL 19-5 and J
+    # from the spectral integral of test_j_cl2o2_equals_its_spectral_integral (model flux).
+    # A factor 2 in J(Cl2O2) halves [Cl2O2]/[ClO]^2.
+    ds = activated_noon
+    i = _noon_index(ds)
+    T, M = float(ds["temperature"][i]), float(ds["air_number_density"][i])
+    clo = float(ds["number_density"].sel(species="ClO")[i])
+    dimer = float(ds["number_density"].sel(species="Cl2O2")[i])
+    j_run = float(ds["rate_coefficient"].sel(reaction="j_cl2o2")[i])
+    k_jpl = _jpl_falloff(T, M, 1.9e-32, 3.6, 3.7e-12, 1.6)
+    from boxchem.photolysis.actinic import flux_grid
+    from boxchem.photolysis.crosssections import cross_section_data
+    from boxchem.photolysis.spectrum import model_wavelength_edges
+    edges = model_wavelength_edges()
+    edges = edges[(edges >= 200.0) & (edges <= 450.0)]
+    sza = float(ds["solar_zenith_angle"][i])
+    flux = np.asarray(flux_grid(np.array([sza]), float(ds["altitude"]), np.array([float(ds["ozone_column"][i])]),
+                                albedo=0.8, wavelength_edges_nm=edges, temperature_K=T)).reshape(-1)
+    sigma = cross_section_data("Cl2O2").bin_average(edges, T)
+    j_ref = float(np.sum(sigma * float(mech.reactions[mech.reaction_ids.index("j_cl2o2")].parameters["qy"])
+                         * flux[: sigma.size] * np.diff(edges)))
+    assert j_run == pytest.approx(j_ref, rel=0.25, abs=0)
+    assert dimer == pytest.approx(k_jpl * clo ** 2 / j_ref, rel=0.25, abs=0)
+
+
+# ---------------------------------------------------------------- issue 11 review items (item 5)
+@pytest.mark.parametrize("T", [195.0, 220.0, 298.0])
+def test_h_o2_m_against_jpl(evaluator, mech, T):
+    # JPL 19-5 Table 2: H + O2 + M -> HO2, k0 = 4.4e-32 (n = 1.3), kinf = 7.5e-11 (m = -0.2),
+    # f298 = 1.15 (recalled from memory; issue 11 measured the old line 1.5x above it at 195 K)
+    M = air_number_density(5000.0, T)
+    ref = _jpl_falloff(T, M, 4.4e-32, 1.3, 7.5e-11, -0.2)
+    assert _k(evaluator, mech, "h_o2_m", T) / ref == pytest.approx(1.0, rel=0.15, abs=0)
+
+
+def test_cl2o2_quantum_yield(mech):
+    # Cl2O2 + hv -> Cl + ClOO: quantum yield about 0.9 above 300 nm (JPL 19-5 Table 4 note,
+    # recalled from memory), not 1
+    assert float(mech.reaction("j_cl2o2").parameters["qy"]) == pytest.approx(0.9, rel=1e-9, abs=0)
+
+
+def test_falloff_form_is_referenced_to_300_k(evaluator, mech):
+    # JPL 19-5 gives k0 and kinf at 300 K (section 2): at 300 K the model must equal the JPL form
+    # with the table's values to 0.5 % (a 298 K reference would be 2.4 % off for n = 3.6)
+    r = mech.reaction("clo_clo_m")
+    assert r.parameters["Tref"] == 300.0
+    for M in (1e16, 1e18):
+        k = float(evaluator.thermal(300.0, M)[mech.reaction_ids.index("clo_clo_m")])
+        assert k == pytest.approx(_jpl_falloff(300.0, M, 1.9e-32, 3.6, 3.7e-12, 1.6), rel=5e-3, abs=0)
