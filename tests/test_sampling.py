@@ -60,11 +60,10 @@ def test_shipped_mechanism_uncertainties_and_defaults():
     mech = load_mechanism("stratosphere")
     table = uncertainty_table(mech, 298.0)
     kinds = dict(zip(table.ids, table.kind))
-    # every non-surface line carries f298 except j_cl2o2 (its line is being revised elsewhere)
-    assert [r for r in table.defaulted if kinds[r] != "surface"] == ["j_cl2o2"]
-    assert all(kinds[r] == "surface" for r in table.defaulted if r != "j_cl2o2")
-    surface = [i for i, k in enumerate(table.kind) if k == "surface"]
-    assert np.all(table.factor[surface] == DEFAULT_F298["surface"])
+    # every shipped line carries its own f298 (surface and uptake lines included): none defaulted
+    assert list(table.defaulted) == []
+    assert {kinds[r.id] for r in mech.reactions if r.law in ("surface", "uptake")} == {"surface"}
+    assert table.factor[list(table.ids).index("j_cl2o2")] == pytest.approx(1.3)
     assert table.factor[list(table.ids).index("clo_clo_m")] == pytest.approx(1.15)
     assert np.all(table.factor >= 1.0)
 

@@ -65,7 +65,8 @@ def parameter_kind(reaction) -> str:
     """'photolysis', 'surface' or 'thermal' for a mechanism reaction."""
     if reaction.law == "photolysis":
         return "photolysis"
-    if reaction.law == "surface":
+    from ..mechanism.model import SURFACE_LAWS
+    if reaction.law in SURFACE_LAWS:
         return "surface"
     return "thermal"
 
