@@ -310,7 +310,6 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         "scenario_source": scenario.source,
         "scenario": scenario.text,
         "scenario_overrides": json.dumps({k: str(v) for k, v in scenario.overrides.items()}),
-        "input_sources": _input_files_attribute(scenario, mechanism),
         "start_time": str(np.datetime_as_string(scenario.start, unit="s")) + "Z",
         "solver_rtol": scenario.rtol,
         "solver_atol": scenario.atol,
@@ -337,11 +336,6 @@ def _conservation_guard(ds: xr.Dataset, setup: "RunSetup") -> None:
     """Element totals and fixed mixing ratios at the end of the run -> ds.attrs (docs/guards.md)."""
     from .diagnostics.conservation import guard_run
     guard_run(ds, setup.mechanism, setup.scenario)
-
-
-def _input_files_attribute(scenario: Scenario, mechanism) -> str:
-    from .io.inputfiles import input_files_attribute
-    return input_files_attribute(scenario, mechanism)
 
 
 # ---------------------------------------------------------------------------

@@ -45,8 +45,8 @@ def test_python_override_of_the_mechanism_runs_that_mechanism(faster_chain):
     # A(6 h)/A0 = exp(-k 21600 s) with the overriding k = 2e-4 s-1 (closed form)
     assert _a_ratio(ds) == pytest.approx(math.exp(-2e-4 * 21600), rel=1e-5)
     assert ds.attrs["mechanism_source"] == str(faster_chain)
-    record = json.loads(ds.attrs["input_sources"])
-    assert record["[run].mechanism"]["path"] == str(faster_chain.resolve())
+    assert ds.attrs["mechanism_sha256"] == boxchem.load_mechanism(faster_chain).text_sha256
+    assert "k=2e-4" in ds.attrs["mechanism_text"]
     assert json.loads(ds.attrs["scenario_overrides"])["run.mechanism"] == str(faster_chain)
 
 
@@ -88,13 +88,14 @@ def test_trajectory_override_reaches_the_environment(tmp_path):
     ds_cold, ds_warm = boxchem.run(base), boxchem.run(warm)
     np.testing.assert_allclose(ds_cold.temperature.values, 190.0)
     np.testing.assert_allclose(ds_warm.temperature.values, 230.0)
-    record = json.loads(ds_warm.attrs["input_sources"])
+    record = {e["key"]: e for e in json.loads(ds_warm.attrs["input_files"])}
     assert record["[environment].trajectory"]["path"] == str((tmp_path / "warm.csv").resolve())
+    assert record["[environment].trajectory"]["text"].startswith("time,temperature_K")
 
 
 def test_cross_section_override_reaches_photolysis_and_provenance(tmp_path):
     from boxchem.runner import prepare
-    from boxchem.io.inputfiles import input_file_record
+    from boxchem.io.provenance import input_files
     lab = tmp_path / "lab_copy.csv"
     shutil.copy(EXAMPLE / "Cl2O2_lab.csv", lab)
     base = load_scenario(EXAMPLE / "base.toml").with_overrides(duration="1 h")
@@ -107,7 +108,7 @@ def test_cross_section_override_reaches_photolysis_and_provenance(tmp_path):
     j_base = prepare(base).photolysis(sza, 220.0, 195.0)[:, col]
     # the lab file differs from the shipped one (its README: a constant factor; common practice)
     assert np.all(np.abs(j_over / j_base - 1.0) > 1e-3)
-    record = input_file_record(over, mech)
+    record = {e["key"]: e for e in input_files(mech, over)}
     assert record["[photolysis].cross_sections.j_cl2o2"]["path"] == str(lab.resolve())
     assert len(record["[photolysis].cross_sections.j_cl2o2"]["sha256"]) == 64
 

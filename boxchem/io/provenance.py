@@ -16,8 +16,9 @@ A run's Dataset gets (docs/provenance.md):
   came from, and what a partial user spectrum did;
 * ``scenario_data`` (JSON): the scenario table that ran (its files merged,
   overrides applied, file paths made absolute); ``command_line``;
-  ``input_files`` (JSON): the user data files read, with their sha256 and
-  (up to ``MAX_STORED_FILE_BYTES``) their text.
+  ``input_files`` (JSON): the user data files read, as resolved for this run
+  after every override, each with the scenario key or mechanism line it came
+  from, its sha256 and (up to ``MAX_STORED_FILE_BYTES``) its text.
 
 :func:`mechanism_files` and :func:`scenario_data` read them back
 (``boxchem rerun`` uses them).
@@ -30,7 +31,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
-__all__ = ["MECHANISM_FILE_MARKER", "provenance_attrs", "reaction_coordinates", "mechanism_files",
+__all__ = ["MECHANISM_FILE_MARKER", "provenance_attrs", "input_files", "reaction_coordinates", "mechanism_files",
            "scenario_data", "command_line"]
 
 MECHANISM_FILE_MARKER = "#>>> boxchem mechanism file "
@@ -74,27 +75,47 @@ def _scenario_table(scenario) -> dict:
 def _sha256(path: Path) -> str:
     import hashlib
     try:
-        return hashlib.sha256(path.read_bytes()).hexdigest()
+        digest = hashlib.sha256()
+        with open(path, "rb") as fh:
+            for block in iter(lambda: fh.read(1 << 20), b""):
+                digest.update(block)
+        return digest.hexdigest()
     except OSError:
         return ""
 
 
-def input_files(mechanism, scenario) -> list[dict]:
-    """User data files the run read (data=/qy= paths, scenario files), with their sha256."""
+def _data_file_keys(mechanism, scenario) -> dict[str, str]:
+    """Path -> where the run took it from, for every user data file it read.
+
+    Keys name the place as a user would look for it: ``[environment].trajectory``,
+    ``[photolysis].cross_sections.ID`` (after every override), or
+    ``reaction ID data=`` / ``qy=`` for files a mechanism line names.
+    """
     from ..photolysis.crosssections import DATA_DIR
-    paths: list[str] = []
+    keys: dict[str, str] = {}
     for r in mechanism.reactions:
         for key in ("data", "qy"):
             value = r.parameters.get(key)
             if isinstance(value, str) and Path(value).is_absolute() and \
                     not value.startswith(str(DATA_DIR)):
-                paths.append(value)
-    paths += [str(p) for p in scenario.photolysis_cross_sections.values()]
+                keys.setdefault(value, f"reaction {r.id} {key}=")
+    for rid, path in sorted(dict(scenario.photolysis_cross_sections or {}).items()):
+        keys.setdefault(str(Path(path).resolve()), f"[photolysis].cross_sections.{rid}")
     if scenario.trajectory is not None:
-        paths.append(str(scenario.trajectory))
+        keys.setdefault(str(Path(scenario.trajectory).resolve()), "[environment].trajectory")
+    return keys
+
+
+def input_files(mechanism, scenario) -> list[dict]:
+    """The user data files the run read, as resolved for this run (after every override).
+
+    One entry per file: ``key`` (:func:`_data_file_keys`), ``path``, ``sha256``
+    of its bytes and, up to MAX_STORED_FILE_BYTES, its ``text`` (``boxchem rerun``
+    runs the stored copies).  The mechanism's own files are in ``mechanism_text``.
+    """
     out = []
-    for p in dict.fromkeys(paths):
-        entry = {"path": p, "sha256": _sha256(Path(p))}
+    for p, key in _data_file_keys(mechanism, scenario).items():
+        entry = {"key": key, "path": p, "sha256": _sha256(Path(p))}
         try:
             if Path(p).stat().st_size <= MAX_STORED_FILE_BYTES:
                 entry["text"] = Path(p).read_text(encoding="utf-8")
