@@ -278,6 +278,18 @@ def _sigma_level(unit: str) -> tuple[str, float]:
     return unit[:m.start()].strip(), float(m.group(1))
 
 
+
+def _text_lines(path, text: str | None) -> list[str]:
+    """The lines of ``text``, or of the file at ``path`` (a DataFileError naming it if unreadable)."""
+    if text is None:
+        try:
+            text = Path(path).read_text(encoding="utf-8-sig")
+        except FileNotFoundError:
+            raise DataFileError(f"{path}: no such file") from None
+        except (OSError, UnicodeDecodeError) as exc:
+            raise DataFileError(f"{path}: cannot read the file ({exc})") from None
+    return text.splitlines()
+
 def _first_content_line(lines: list[str]) -> int | None:
     for i, line in enumerate(lines):
         if _strip_comment(line).strip():
@@ -295,14 +307,7 @@ def read_rate_table(path: str | Path, *, text: str | None = None) -> RateTable:
     ``text`` reads that text instead of the file (``path`` names it in errors).
     """
     source = str(path)
-    if text is None:
-        try:
-            text = Path(path).read_text(encoding="utf-8-sig")
-        except FileNotFoundError:
-            raise DataFileError(f"{source}: no such file") from None
-        except (OSError, UnicodeDecodeError) as exc:
-            raise DataFileError(f"{source}: cannot read the file ({exc})") from None
-    lines = text.splitlines()
+    lines = _text_lines(path, text)
     problems = _Problems(source)
     h = _first_content_line(lines)
     common = 0.0
@@ -672,14 +677,7 @@ def read_trace(path: str | Path, *, text: str | None = None) -> Trace:
     :data:`TRACE_KEYS`.
     """
     source = str(path)
-    if text is None:
-        try:
-            text = Path(path).read_text(encoding="utf-8-sig")
-        except FileNotFoundError:
-            raise DataFileError(f"{source}: no such file") from None
-        except (OSError, UnicodeDecodeError) as exc:
-            raise DataFileError(f"{source}: cannot read the file ({exc})") from None
-    lines = text.splitlines()
+    lines = _text_lines(path, text)
     problems = _Problems(source)
     conditions: dict[str, object] = {}
     h = None
