@@ -253,3 +253,27 @@ def test_ensemble_command_prints_what_it_produced(tmp_path, capsys):
     table.write_text("scale.a_to_bb\n1\n")
     assert main(["ensemble", str(CHAIN), "--members", str(table), "-o", str(out)]) == 2
     assert "t.csv:1: column 1 (scale.a_to_bb): no reaction 'a_to_bb'" in capsys.readouterr().err
+
+
+def test_ensemble_and_sweep_commands_take_scenario_overrides(tmp_path, capsys):
+    from boxchem.cli import main
+    table = tmp_path / "t.csv"
+    table.write_text("scale.a_to_b\n1\n2\n")
+    out = tmp_path / "e.nc"
+    assert main(["ensemble", str(CHAIN), "--members", str(table), "-o", str(out), "-q",
+                 "--set", 'run.duration="6 h"', "--save", "number_density"]) == 0
+    with xr.open_dataset(out) as ds:
+        t = seconds(ds)
+        assert t[-1] == 6 * 3600.0                 # the override reached every member
+        a = ds.number_density.sel(species="A").values
+    # member 2 doubles k1: A(t) = A0 exp(-2 k1 t) (Bateman 1910, closed form)
+    np.testing.assert_allclose(a[1, -1], A0 * np.exp(-2 * K1 * t[-1]), rtol=1e-5)
+    sweep_out = tmp_path / "s.nc"
+    assert main(["sweep", str(CHAIN), "--vary", "scale.a_to_b=0.5,2", "-o", str(sweep_out), "-q",
+                 "--set", 'run.duration="4 h"']) == 0
+    with xr.open_dataset(sweep_out) as ds:
+        assert seconds(ds)[-1] == 4 * 3600.0
+    capsys.readouterr()
+    assert main(["ensemble", str(CHAIN), "--members", str(table), "-o", str(out), "-q",
+                 "--set", 'run.durat="6 h"']) == 2
+    assert "--set run.durat=" in capsys.readouterr().err

@@ -57,7 +57,17 @@ def add_engine_options(p, *, default_output: str) -> None:
                    help="members integrated together (default 32)")
     p.add_argument("--member-time-limit", type=float, default=None, metavar="SECONDS",
                    help="wall-clock limit per member; a member over it is stopped and recorded failed")
+    p.add_argument("--set", metavar="SECTION.KEY=VALUE", action="append", default=[],
+                   dest="overrides",
+                   help='override a scenario value for every member, e.g. run.duration="10 d" '
+                        '(repeatable; a member-table column of the same key wins)')
     p.add_argument("-q", "--quiet", action="store_true", help="no progress and no summary")
+
+
+def scenario_of(args):
+    """The command's scenario with its --set overrides applied (input errors: exit status 2)."""
+    from .sensitivity import load_with_overrides
+    return load_with_overrides(args.scenario, args.overrides)
 
 
 def run(args) -> int:
@@ -82,7 +92,7 @@ def run_engine(args, table, out) -> int:
     previous = signal.signal(signal.SIGTERM, terminate)
     t0 = time.perf_counter()
     try:
-        ds = ensemble(args.scenario, table, output=out, save=args.save, workers=args.workers,
+        ds = ensemble(scenario_of(args), table, output=out, save=args.save, workers=args.workers,
                       scheduler=args.scheduler, batch_size=args.batch_size, resume=args.resume,
                       progress=not args.quiet, member_time_limit_s=args.member_time_limit)
     except EnsembleInterrupted as exc:

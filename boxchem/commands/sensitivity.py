@@ -44,13 +44,16 @@ def engine_options(args) -> dict:
 
 
 def load_with_overrides(name: str, overrides: list[str]):
-    from ..scenario import load_scenario
+    """The scenario with its ``--set`` values; file paths typed there are read from the
+    working folder (as ``boxchem run`` does) and errors name the option."""
+    from ..scenario import load_scenario, paths_from_working_folder
     from .run import _toml_value, parse_assignments
     settings = parse_assignments(overrides, "--set")
     scenario = load_scenario(name)
     if settings:
+        values = paths_from_working_folder({k: _toml_value(v) for k, v in settings.items()})
         scenario = scenario.with_overrides(origins={k: f"--set {k}={v}" for k, v in settings.items()},
-                                           **{k: _toml_value(v) for k, v in settings.items()})
+                                           **values)
     return scenario
 
 

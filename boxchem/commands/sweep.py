@@ -40,15 +40,15 @@ def run(args) -> int:
     from pathlib import Path
 
     from ..analysis.sweep import parse_vary, sweep_table
-    from .ensemble import run_engine
+    from .ensemble import run_engine, scenario_of
     vary = parse_vary(args.vary)
-    check_vary(args.scenario, vary)
+    check_vary(scenario_of(args), vary)
     table = sweep_table(vary)
     out = Path(args.output) if args.output else Path(f"{Path(str(args.scenario)).stem}-sweep.nc")
     return run_engine(args, table, out)
 
 
-def check_vary(scenario: str, vary) -> None:
+def check_vary(scenario, vary) -> None:
     """Refuse unknown keys, reaction ids, species and invalid values before any member runs (exit 2).
 
     A typo in a key (``location.latitud``, ``scale.clo_clo_mm``,
@@ -63,7 +63,7 @@ def check_vary(scenario: str, vary) -> None:
 
     from ..analysis.sweep import TEMPERATURE_OFFSET_KEY, vary_label
     from ..errors import BoxchemError
-    from ..scenario import SCENARIO_KEYS, load_scenario
+    from ..scenario import SCENARIO_KEYS
 
     valid = [f"{sec}.{k}" for sec, ks in SCENARIO_KEYS.items() for k in ks] + [TEMPERATURE_OFFSET_KEY]
     base = None
@@ -76,7 +76,7 @@ def check_vary(scenario: str, vary) -> None:
                 raise BoxchemError(f"--vary: unknown key {key!r}{hint}; valid: {', '.join(valid)}, "
                                    f"scale.<reaction id>, initial.<species>")
             continue
-        base = base or load_scenario(scenario)
+        base = base or _loaded(scenario)
         # neutral values: only the reaction id or species name is checked here
         origins = {key: vary_label(key)}
         if section == "scale":
@@ -86,11 +86,16 @@ def check_vary(scenario: str, vary) -> None:
     check_vary_values(scenario, vary)
 
 
-def check_vary_values(scenario: str, vary) -> None:
+def _loaded(scenario):
+    """A Scenario as given, or loaded from a shipped name or path."""
+    from ..scenario import Scenario, load_scenario
+    return scenario if isinstance(scenario, Scenario) else load_scenario(scenario)
+
+
+def check_vary_values(scenario, vary) -> None:
     """Apply every --vary value alone to the scenario (validation only, no run); errors name it."""
     from ..analysis.sweep import vary_label
-    from ..scenario import load_scenario
-    base = load_scenario(scenario)
+    base = _loaded(scenario)
     for key, values in vary.items():
         section, name = key.split(".", 1)
         for value in values:
