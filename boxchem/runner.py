@@ -499,7 +499,7 @@ def integrate(setup: RunSetup, *, progress=None, surface_feedback: str = "member
     from .solver.compiled import jit_available
     from .solver.timeloop import integrate_box
     if compiled is False or not jit_available():
-        surface_feedback = "rebuild"     # the reference loop observes the state itself
+        surface_feedback = "member"      # the reference loop observes the state itself
     return integrate_box(setup.kinetics, setup.coefficients, setup.y0, setup.output_times_s,
                          breakpoints_s=setup.breakpoints_s, progress=progress,
                          on_accept=state_observer(setup, surface_feedback),

@@ -611,6 +611,15 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
         compiled = jit_available() and hasattr(coefficients, "interval_table")
     if not compiled:
         from .reference import integrate_box_reference
+        if getattr(coefficients, "state_dependent", False):
+            # the reference loop's state-dependent surfaces follow the state it observes
+            # (after every accepted step), as the compiled loop's follow each member's state
+            observe, user = coefficients.observe_state, on_accept
+
+            def on_accept(t_s, y_state):
+                observe(t_s, y_state)
+                if user is not None:
+                    user(t_s, y_state)
         return integrate_box_reference(kinetics, coefficients, y, output_times_s,
                                        breakpoints_s=breakpoints_s, rtol=rtol, atol=atol,
                                        first_step=first_step, max_step=max_step, progress=progress,
