@@ -92,6 +92,7 @@ class StateSurfaces:
         self.species = tuple(sorted(species))
         variable = {n: i for i, n in enumerate(kinetics.variable_species)}
         self._index = np.array([variable.get(n, -1) for n in self.species], dtype=np.intp)
+        self._all_variable = bool(np.all(self._index >= 0))
         self._fixed = np.array([float(fixed_mole_fractions.get(n, 0.0)) for n in self.species])
         self._reference = np.maximum(self._fixed, REFERENCE_FLOOR)
 
@@ -111,6 +112,8 @@ class StateSurfaces:
         ``y[..., 0]``) [cm-3]; fixed species from their fixed mole fractions."""
         y = np.asarray(y, dtype=float)
         air = np.asarray(air, dtype=float)[..., None]
+        if self._all_variable:
+            return y[..., self._index] / air
         idx = np.where(self._index >= 0, self._index, 0)
         return np.where(self._index >= 0, y[..., idx] / air, self._fixed)
 
@@ -257,48 +260,59 @@ class MemberOffsets:
         self.T, self.p = np.asarray(T, dtype=float), np.asarray(p, dtype=float)
         self.psc, self.sulfate, self.ice = (np.asarray(v, dtype=float) for v in (psc, sulfate, ice))
         ncol = len(surfaces)
-        self._ratio_cols = np.ones(ncol, dtype=bool)
         self.log_ref = np.log(surfaces.reference_gamma(self.T, self.p)) if surfaces._needs_gamma_state \
             else None
         self.tolerances = tolerances
         ns = len(surfaces.species)
+        # only the gammas' inputs count (HNO3 enters the NAT area, evaluated every window)
         self._tol = np.array([RATIO_REFRESH_TOLERANCE_CLONO2 if n == "ClONO2" else RATIO_REFRESH_TOLERANCE
-                              for n in surfaces.species])
-        self._last_T = np.full(n_members, np.nan)
-        self._last_p = np.full(n_members, np.nan)
-        self._last_x = np.full((n_members, ns), np.nan)
+                              if n in ("H2O", "HCl") else np.inf for n in surfaces.species])
+        # "never evaluated" records: every member is stale at its first window
+        self._last = {"ratio": (np.full(n_members, -np.inf), np.full(n_members, -np.inf),
+                                np.full((n_members, ns), -1.0))}
         self._log_ratio = np.zeros((n_members, ncol))
         self.ratio_evaluations = 0
+        self.area_evaluations = 0
+
+    def _stale(self, what, rows, x, T, p, tol, tol_T):
+        """Mask of the members ``rows`` whose own T, p or x moved beyond the tolerances since
+        their last evaluation of ``what`` (all of them without tolerances)."""
+        if not self.tolerances:
+            return np.ones(rows.size, dtype=bool)
+        last_T, last_p, last_x = self._last[what]
+        lx = last_x[rows]
+        stale = (np.abs(x - lx) > tol * np.maximum(lx, RATIO_REFRESH_FLOOR)).any(axis=1)
+        stale |= np.abs(T - last_T[rows]) > tol_T
+        stale |= np.abs(p - last_p[rows]) > RATIO_REFRESH_TOLERANCE * p
+        return stale
+
+    def _record(self, what, todo, x, T, p):
+        last_T, last_p, last_x = self._last[what]
+        last_T[todo], last_p[todo], last_x[todo] = T, p, x
 
     def offsets(self, window: int, rows, x) -> np.ndarray:
         s = self.s
         rows = np.asarray(rows, dtype=np.intp)
         x = np.asarray(x, dtype=float)
-        T, p = self.T[window], self.p[window]
+        T, p = float(self.T[window]), float(self.p[window])
         if self.log_ref is not None and rows.size:
-            if self.tolerances:
-                last = self._last_x[rows]
-                moved = np.any(np.abs(x - last) > self._tol * np.maximum(np.abs(last), RATIO_REFRESH_FLOOR),
-                               axis=1)
-                stale = (~(np.abs(T - self._last_T[rows]) <= RATIO_REFRESH_TEMPERATURE_K)
-                         | ~(np.abs(p - self._last_p[rows]) <= RATIO_REFRESH_TOLERANCE * np.abs(p))
-                         | moved)
-                todo = rows[stale]
-                xt = x[stale]
-            else:
-                todo, xt = rows, x
-            if todo.size:
+            stale = self._stale("ratio", rows, x, T, p, self._tol, RATIO_REFRESH_TEMPERATURE_K)
+            if stale.any():
+                todo, xt = rows[stale], x[stale]
                 gamma = s._gamma(np.full(todo.size, T), np.full(todo.size, p), xt)
                 with np.errstate(divide="ignore"):
                     self._log_ratio[todo] = np.log(gamma) - self.log_ref[window]
-                self._last_T[todo], self._last_p[todo], self._last_x[todo] = T, p, xt
+                self._record("ratio", todo, xt, T, p)
                 self.ratio_evaluations += 1
+        # areas every window: NAT / ice areas depend steeply on T and on HNO3 near saturation
+        # (the excess over the equilibrium pressure; a tolerance gate on them was measured to
+        # move O3 by 1e-3 over the season), and they are cheap next to the gammas
         n = rows.size
         area = s._areas(np.full(n, T), np.full(n, p), x, self.psc[window], self.sulfate[window],
                         self.ice[window])
+        self.area_evaluations += 1
         with np.errstate(divide="ignore"):
-            out = np.log(area) + self._log_ratio[rows]
-        return np.where(area > 0.0, out, -np.inf)
+            return np.log(area) + self._log_ratio[rows]       # area >= 0: ln 0 = -inf, k = 0
 
 
 class MemberSurfaceK:

@@ -482,12 +482,15 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     start = 0                    # index in landing of the current window's start
     table_window = -1
     lm_window, fm_window = lm, fm
+    stops = np.searchsorted(landing, segment_edges[1:]).tolist()       # landing[stop] == wb
+    tables = (np.searchsorted(window_edges, segment_edges[:-1], side="right") - 1).tolist()
+    report_outputs = exact_per_output or progress is not None
     for window in range(segment_edges.size - 1):
         wa, wb = float(segment_edges[window]), float(segment_edges[window + 1])
-        stop = int(np.searchsorted(landing, wb))       # landing[stop] == wb
+        stop = stops[window]
         if wa in break_set:
             restart[:] = 1       # first step after a jump of J: as at the start
-        w = int(np.searchsorted(window_edges, wa, side="right")) - 1
+        w = tables[window]
         if w != table_window:
             ta, tb = float(window_edges[w]), float(window_edges[w + 1])
             table = coefficients.interval_table(ta, tb, side(ta, False), side(tb, True), **table_options)
@@ -503,7 +506,8 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                 lm_window[:, columns] += offsets.offsets(window, run, x)
             else:
                 lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
-            fm_window = np.exp(lm_window)
+            fm_window = fm.copy()
+            fm_window[:, columns] = np.exp(lm_window[:, columns])
         cm.advance_batch(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
                          outputs_reached, y, h, restart, status, h_max, table.t_a, table.t_b, table.poly,
                          table.log_col, table.sza_poly, table.sgrid, table.lnj, table.phot_cols,
@@ -516,7 +520,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
             y[newly_failed] = np.nan
         if on_accept is not None and status[0] == 0:
             on_accept(wb, y[0])      # before the output k and the next window's table
-        for q in out_index[start:stop]:
+        for q in (out_index[start:stop] if report_outputs else ()):
             if q < 0:
                 continue
             if exact_per_output:
