@@ -316,6 +316,8 @@ def _stack(parts):
                  "failure_species", "outputs_reached", "steps", "rejected_steps", "rhs_evaluations",
                  "jacobian_evaluations", "lu_decompositions", "lu_fallbacks"):
         setattr(joined, name, np.concatenate([np.asarray(getattr(p, name)) for p in parts]))
+    # each member's own exact k (its J follows its own ozone column)
+    joined.k = np.stack([np.asarray(p.k if np.ndim(p.k) == 2 else p.k[0]) for p in parts])
     return joined
 
 

@@ -209,7 +209,9 @@ class BatchResult:
     def members_k(self, rows=slice(None)) -> np.ndarray:
         """``member_k`` of several members at once, (members, n_out, n_reactions)."""
         lm = self.log_multiplier[rows]
-        k = self.k[None, :, :] * np.exp(lm)[:, None, :]
+        # k is shared (n_out, n_reactions), or per member (members, ...) when stacked from
+        # single runs with state-dependent J (analysis/batches.py)
+        k = (self.k[None, :, :] if self.k.ndim == 2 else self.k[rows]) * np.exp(lm)[:, None, :]
         if self.surface_k is not None:
             cols = self.surface_k.columns
             with np.errstate(invalid="ignore", over="ignore"):   # NaN states after a failure
