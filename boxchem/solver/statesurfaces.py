@@ -43,6 +43,11 @@ __all__ = ["StateSurfaces", "REFERENCE_FLOOR", "GAMMA_FLOOR"]
 REFERENCE_FLOOR = 1e-12
 #: floor of the reference gamma [1] (same reason; the member's own gamma is not floored)
 GAMMA_FLOOR = 1e-30
+#: reference composition [mol mol-1] until ``set_reference`` gives the group's own (runner.prepare
+#: does): typical lower-stratospheric magnitudes (our choice, not data).  The reference only
+#: carries the T dependence of the table columns; the closer it is to the members', the weaker
+#: the T dependence of each member's ratio to it (held over a window / a refresh tolerance)
+DEFAULT_REFERENCE = {"H2O": 5e-6, "HCl": 1e-9, "ClONO2": 5e-10, "HNO3": 5e-9}
 
 
 class StateSurfaces:
@@ -94,7 +99,8 @@ class StateSurfaces:
         self._index = np.array([variable.get(n, -1) for n in self.species], dtype=np.intp)
         self._all_variable = bool(np.all(self._index >= 0))
         self._fixed = np.array([float(fixed_mole_fractions.get(n, 0.0)) for n in self.species])
-        self._reference = np.maximum(self._fixed, REFERENCE_FLOOR)
+        self._reference = np.array([max(float(fixed_mole_fractions.get(n, DEFAULT_REFERENCE.get(n, 0.0))),
+                                        REFERENCE_FLOOR) for n in self.species])
 
     def __len__(self) -> int:
         return int(self.columns.size)
@@ -234,7 +240,7 @@ class StateSurfaces:
 #: a member's gamma ratio gamma(x_m) / gamma(x_ref) is re-evaluated when T at the window
 #: mid-point moved by more than this [K] since its last evaluation (the ratio's own T
 #: dependence is weak: T acts through the reference column of the table, exactly) ...
-RATIO_REFRESH_TEMPERATURE_K = 0.25
+RATIO_REFRESH_TEMPERATURE_K = 0.1
 #: ... or a mole fraction (or p) by more than this fraction (as the per-window rebuild did:
 #: coefficients.SURFACE_REFRESH_TOLERANCE) ...
 RATIO_REFRESH_TOLERANCE = 0.01
