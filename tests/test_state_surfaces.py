@@ -128,6 +128,8 @@ def test_tolerance_gating_is_close_to_exact_offsets(short):
 def test_bad_surface_feedback_is_rejected(short):
     with pytest.raises(ValueError, match="surface_feedback: expected 'member', 'member_exact' or 'rebuild'"):
         _batch(short, short.y0[None, :], None, surface_feedback="exactly")
+    with pytest.raises(ValueError, match="give on_accept=coefficients.observe_state"):
+        _batch(short, short.y0[None, :], None, surface_feedback="rebuild")
 
 
 def test_the_ensemble_command_batches_state_dependent_members(tmp_path, monkeypatch, capsys):

@@ -424,6 +424,10 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         raise ValueError(f"surface_feedback: expected 'member', 'member_exact' or 'rebuild', got "
                          f"{surface_feedback!r}")
     surfaces = getattr(coefficients, "state_surfaces", None) if surface_feedback != "rebuild" else None
+    if surface_feedback == "rebuild" and getattr(coefficients, "state_dependent", False) and on_accept is None:
+        # without an observer the tables would use no composition at all: never silently wrong
+        raise ValueError("surface_feedback='rebuild': the state-dependent surfaces need the state; "
+                         "give on_accept=coefficients.observe_state (a batch of one), or use 'member'")
     if not hasattr(coefficients, "interval_table"):
         raise ValueError("coefficients: integrate_batch needs interval_table (a RateCoefficientModel); "
                          "plain callables run on the numpy reference loop (integrate_box)")
