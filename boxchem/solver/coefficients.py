@@ -514,7 +514,7 @@ class RateCoefficientModel:
 
     def _reference_surface_k(self, T, psc, sulfate, ice, pressure) -> np.ndarray:
         """Surface k (n, n_reactions) with the state-dependent columns at the reference
-        composition per unit area (``state_surfaces.reference_k``); the other columns exact."""
+        composition per unit area (``state_surfaces.table_surface_k``); the other columns exact."""
         return self.state_surfaces.table_surface_k(T, pressure, psc, sulfate, ice)
 
     def at_times(self, times_s, state_reference: bool = False):

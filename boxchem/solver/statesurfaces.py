@@ -36,7 +36,7 @@ import numpy as np
 
 from ..environment.psc import STATE_RULES
 
-__all__ = ["StateSurfaces", "REFERENCE_FLOOR", "GAMMA_FLOOR"]
+__all__ = ["StateSurfaces", "MemberOffsets", "MemberSurfaceK", "REFERENCE_FLOOR", "GAMMA_FLOOR", "DEFAULT_REFERENCE"]
 
 #: floor [mol mol-1] of the reference mole fractions (a species absent at the start
 #: still gives a positive reference gamma, so the table column stays logarithmic)
@@ -150,16 +150,6 @@ class StateSurfaces:
         p = np.asarray(p, dtype=float)
         return {s: self._reference[j] * p for j, s in enumerate(self.species)}
 
-    def reference_k(self, T, p) -> np.ndarray:
-        """k per unit area [s-1 per cm2 cm-3] at the reference composition, (n, n_columns), at
-        T [K] and p [Pa] (n,): the shared table's values in the state-dependent columns."""
-        from ..mechanism.ratelaws import surface_uptake
-        T = np.asarray(T, dtype=float)
-        p = np.broadcast_to(np.asarray(p, dtype=float), T.shape)
-        gamma = np.maximum(self._gamma(T, p, np.broadcast_to(self._reference, T.shape
-                                                             + self._reference.shape)), GAMMA_FLOOR)
-        return surface_uptake(T[..., None], gamma, self._mass, 1.0)
-
     def table_surface_k(self, T, p, psc, sulfate, ice) -> np.ndarray:
         """Surface k (n, n_reactions) [s-1] of the shared table: the state-dependent columns
         per unit area at the reference composition (floored gamma), the others exact
@@ -192,22 +182,6 @@ class StateSurfaces:
         """The per-member offsets of one integration whose feedback windows have their
         mid-points at T [K], p [Pa] and environment areas psc, sulfate, ice (n_windows,)."""
         return MemberOffsets(self, n_members, T, p, psc, sulfate, ice, tolerances)
-
-    def log_offsets(self, T, p, x, psc, sulfate, ice) -> np.ndarray:
-        """ln(k_member / k_ref) (..., n_columns) at T [K], p [Pa] (scalars: the window's
-        mid-point) for members with mole fractions x (..., n_species); -inf where the
-        member's k is 0 (no area, or gamma 0).  Non-finite x gives 0 (a failed member)."""
-        x = np.asarray(x, dtype=float)
-        ok = np.all(np.isfinite(x), axis=-1)
-        x = np.where(ok[..., None], x, self._reference)
-        T_b = np.broadcast_to(np.asarray(T, dtype=float), x.shape[:-1])
-        p_b = np.broadcast_to(np.asarray(p, dtype=float), x.shape[:-1])
-        gamma = self._gamma(T_b, p_b, x)
-        ref = np.maximum(self._gamma(T_b, p_b, np.broadcast_to(self._reference, x.shape)), GAMMA_FLOOR)
-        area = self._areas(T_b, p_b, x, psc, sulfate, ice)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            out = np.where((area > 0.0) & (gamma > 0.0), np.log(gamma / ref * area), -np.inf)
-        return np.where(ok[..., None], out, 0.0)
 
     def surface_k(self, T, p, x, psc, sulfate, ice) -> np.ndarray:
         """Exact surface k (..., n_columns) [s-1] of the state-dependent columns: gamma v S / 4
