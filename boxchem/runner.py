@@ -390,6 +390,8 @@ def prepare(scenario: Scenario) -> RunSetup:
                                         fixed_mole_fractions=fixed_fractions, kinetics=kinetics)
     air0 = float(environment.at(0.0).air_density)
     y0 = initial_state(kinetics.variable_species, scenario.initial, air0)
+    # state-dependent surface columns of the shared tables at the group's start composition
+    coefficients.set_surface_reference(y0)
     times = scenario.output_times_s()
     breaks = np.asarray(environment.horizon_crossings(times[0], times[-1]), dtype=float)
     return RunSetup(scenario, mechanism, environment, kinetics, photolysis, coefficients, y0,
@@ -421,6 +423,11 @@ def _dataset_from_result(setup: RunSetup, result, *, status: str, message: str) 
     number_density = species_number_density(setup, y, fixed)
     rates = kinetics.rates(y, k, fixed) if times.size else np.zeros((0, len(mechanism.reactions)))
     state = setup.environment.at(times)
+    if getattr(result, "surface_areas", None) is not None and times.size:
+        # NAT / ice areas from this box's own composition at the output times
+        import dataclasses
+        psc, ice = (np.asarray(a, dtype=float)[:times.size] for a in result.surface_areas)
+        state = dataclasses.replace(state, psc_area=psc, ice_area=ice)
     if hasattr(setup.photolysis, "observe") and times.size:
         # [photolysis].ozone_column_follows_box: write the column J used (without its
         # one-step lag), from the box's O3 at the output times
@@ -451,14 +458,18 @@ def solver_options(scenario: Scenario) -> dict[str, Any]:
             "method": getattr(rosenbrock, scenario.solver_method.upper())}
 
 
-def state_observer(setup: RunSetup):
+def state_observer(setup: RunSetup, surface_feedback: str = "member"):
     """The time loop's ``on_accept``: what must see the box's state as it runs, or None.
 
-    The ozone column following the box (``photolysis.observe``) and state-dependent
-    surfaces (``coefficients.observe_state``, docs/heterogeneous.md).
+    The ozone column following the box (``photolysis.observe``; one member at a time)
+    and, with ``surface_feedback="rebuild"`` (the earlier per-window table rebuild, also
+    what the numpy reference loop needs), state-dependent surfaces
+    (``coefficients.observe_state``, docs/heterogeneous.md).  With "member" (default) the
+    batch time loop gives each member its own surface k itself (solver/statesurfaces.py).
     """
     observers = [getattr(setup.photolysis, "observe", None)]
-    if getattr(setup.coefficients, "state_dependent", False):
+    if getattr(setup.coefficients, "state_dependent", False) and (
+            surface_feedback == "rebuild" or getattr(setup.coefficients, "state_surfaces", None) is None):
         observers.append(setup.coefficients.observe_state)
     observers = [f for f in observers if f is not None]
     if len(observers) <= 1:
@@ -470,16 +481,23 @@ def state_observer(setup: RunSetup):
     return observe
 
 
-def integrate(setup: RunSetup, *, progress=None):
+def integrate(setup: RunSetup, *, progress=None, surface_feedback: str = "member",
+              compiled: bool | None = None):
     """Integrate one box of a prepared setup -> :class:`~boxchem.solver.timeloop.TimeLoopResult`.
 
+    ``surface_feedback``: "member" (default) or "rebuild" (the earlier per-window table
+    rebuild; see ``integrate_batch``); ``compiled``: False for the numpy reference loop.
     Raises :class:`~boxchem.errors.IntegrationError` (time in s since the start,
     ``partial_result`` a TimeLoopResult) when the integrator fails.
     """
+    from .solver.compiled import jit_available
     from .solver.timeloop import integrate_box
+    if compiled is False or not jit_available():
+        surface_feedback = "member"      # the reference loop observes the state itself
     return integrate_box(setup.kinetics, setup.coefficients, setup.y0, setup.output_times_s,
                          breakpoints_s=setup.breakpoints_s, progress=progress,
-                         on_accept=state_observer(setup),
+                         on_accept=state_observer(setup, surface_feedback),
+                         surface_feedback=surface_feedback, compiled=compiled,
                          **solver_options(setup.scenario))
 
 

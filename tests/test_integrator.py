@@ -483,12 +483,23 @@ def test_compiled_and_numpy_paths_agree_on_a_polar_day():
     assert np.max(np.abs(fast.y - slow.y) / scale) < 2e-3
     i = kin.variable_species.index("O3")
     assert np.max(np.abs(fast.y[:, i] / slow.y[:, i] - 1)) < 1e-4
-    # output k: exact in both, except the sulfate gammas that read the box's own (lagged) HCl,
-    # ClONO2 and H2O (issue 11): those agree as closely as the two solutions do
+    # output k: exact in both, except the sulfate gammas that read the box's own HCl, ClONO2
+    # and H2O (issue 11): the compiled loop's from its state at the output time, the numpy
+    # loop's from the composition it last recorded, which may differ from its state by the
+    # record tolerance (coefficients.SURFACE_REFRESH_TOLERANCE, 1 %; ClONO2 20 %, entering
+    # through F_HCl; measured up to 1.5 % in k).  So: the compiled k against the exact k of
+    # the numpy solution's own states, which agree as closely as the two solutions do
     state = [i for i, r in enumerate(mech.reactions) if r.parameters.get("gamma_from")]
     other = np.setdiff1d(np.arange(kin.n_reactions), state)
     np.testing.assert_allclose(fast.k[:, other], slow.k[:, other], rtol=1e-12)
-    np.testing.assert_allclose(fast.k[:, state], slow.k[:, state], rtol=2e-3)
+    at = env.at(t)
+    p = np.asarray(at.pressure, dtype=float)
+    air = np.asarray(at.air_density, dtype=float)
+    pp = {s: slow.y[:, kin.variable_species.index(s)] / air * p for s in ("H2O", "HCl", "ClONO2")}
+    exact = coef.evaluator.surface(at.temperature, at.psc_area, at.sulfate_area, at.ice_area,
+                                   partial_pressures=pp) * coef.multiplier
+    np.testing.assert_allclose(fast.k[:, state], exact[:, state], rtol=2e-3)
+    np.testing.assert_allclose(fast.k[:, state], slow.k[:, state], rtol=3e-2)
     # comparable work: the compiled loop does the same steps, not fewer checks
     assert 0.7 < fast.steps / slow.steps < 1.4
 

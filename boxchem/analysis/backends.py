@@ -148,6 +148,7 @@ class LocalWorkers:
         idle: list[_Worker] = list(self._fresh)
         self._fresh = []
         busy: dict[int, _Worker] = {}
+        lost_on_submit = 0
         try:
             while True:
                 while len(queue) < self.n:     # pull lazily: tasks may be added while running
@@ -157,7 +158,17 @@ class LocalWorkers:
                         break
                 while queue and (idle or len(self.workers) < self.n):
                     worker = idle.pop() if idle else self._spawn(env)
-                    worker.submit(queue.popleft())
+                    try:
+                        worker.submit(queue[0])
+                    except OSError:
+                        # the worker died while idle (e.g. killed): replace it, keep the task
+                        self._discard(worker)
+                        lost_on_submit += 1
+                        if lost_on_submit > 2 * self.n:     # workers that cannot even start
+                            raise
+                        continue
+                    lost_on_submit = 0
+                    queue.popleft()
                     busy[worker.recv_conn.fileno()] = worker
                 if not busy:
                     if not queue:

@@ -197,8 +197,9 @@ def _initial_states(task: BatchTask, group: _Group) -> np.ndarray:
     return y0
 
 
-def _outputs(group: _Group, y: np.ndarray, k: np.ndarray, save) -> dict[str, np.ndarray]:
-    """The saved variables of a batch: y (n, time, n_variable), k (n, time, n_reactions)."""
+def _outputs(group: _Group, y: np.ndarray, k: np.ndarray, save, areas=None) -> dict[str, np.ndarray]:
+    """The saved variables of a batch: y (n, time, n_variable), k (n, time, n_reactions);
+    ``areas`` (psc, ice) (n, time) from each member's composition, or None."""
     from ..runner import derived_outputs, species_number_density
     setup = group.setup
     fixed = group.fixed_out
@@ -223,6 +224,8 @@ def _outputs(group: _Group, y: np.ndarray, k: np.ndarray, save) -> dict[str, np.
             out[name] = rates
         elif name in derived:
             out[name] = derived[name]
+        elif areas is not None and name in ("psc_surface_area", "ice_surface_area"):
+            out[name] = areas[0] if name == "psc_surface_area" else areas[1]
         else:
             series = np.asarray(getattr(group.state, TIME_SERIES[name]), dtype=float)
             out[name] = np.broadcast_to(series, (n,) + series.shape)
@@ -272,10 +275,12 @@ def run_batch(task: BatchTask) -> BatchOutput:
     # each member's k at the output times: the shared exact k times its factors (only when saved
     # or needed for rates: (members, times, reactions) is the largest array of a batch)
     needs_k = {"rate_coefficient", "reaction_rate", "cycle_rate"} & set(task.save)
-    k = (result.k[None, :, :] * np.exp(log_multiplier)[:, None, :] if needs_k
-         else np.zeros((n, 0, 0)))
     with np.errstate(invalid="ignore", over="ignore"):   # failed members are NaN after failing
-        arrays = _outputs(group, np.asarray(result.y, dtype=float), k, task.save)
+        # state-dependent surface columns from each member's own composition (member_k)
+        k = result.members_k() if needs_k else np.zeros((n, 0, 0))
+        areas = (result.surface_k.areas(np.asarray(result.y, dtype=float))
+                 if getattr(result, "surface_k", None) is not None else None)
+        arrays = _outputs(group, np.asarray(result.y, dtype=float), k, task.save, areas)
     return BatchOutput(task.batch_id, task.rows, arrays, status,
                        ["" if s == 1 else str(m) for s, m in zip(status, result.message)],
                        np.asarray(result.failure_time_s, dtype=float),
@@ -290,8 +295,10 @@ def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progre
     from ..runner import state_observer
     observe = state_observer(setup)
     if observe is not None and y0.shape[0] > 1:
-        # state-dependent J or surfaces (the coefficients follow this member's own state):
-        # one member at a time
+        # the ozone column following the box (photolysis.observe): J follows this member's
+        # own O3 through the shared J table, so one member at a time.  State-dependent
+        # surfaces batch: each member's own surface k rides on the shared tables as ln
+        # offsets (solver/statesurfaces.py), with no observer.
         parts = [_integrate(group, y0[i:i + 1], log_multiplier[i:i + 1], progress)
                  for i in range(y0.shape[0])]
         return _stack(parts)
@@ -309,6 +316,8 @@ def _stack(parts):
                  "failure_species", "outputs_reached", "steps", "rejected_steps", "rhs_evaluations",
                  "jacobian_evaluations", "lu_decompositions", "lu_fallbacks"):
         setattr(joined, name, np.concatenate([np.asarray(getattr(p, name)) for p in parts]))
+    # each member's own exact k (its J follows its own ozone column)
+    joined.k = np.stack([np.asarray(p.k if np.ndim(p.k) == 2 else p.k[0]) for p in parts])
     return joined
 
 

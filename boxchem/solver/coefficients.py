@@ -231,6 +231,24 @@ class RateCoefficientModel:
                                             else SURFACE_REFRESH_TOLERANCE for n in watched])
         self._watched_fixed = np.array([self._fixed_per_air[fixed_names.index(n)] if n in fixed_names
                                         else 0.0 for n in watched])
+        #: per-member state-dependent surfaces for the batch time loop (solver/statesurfaces.py):
+        #: the tables then hold those columns at a reference composition (``state_reference``)
+        self.state_surfaces = None
+        if watched:
+            from .statesurfaces import StateSurfaces
+            fixed_x = dict(zip(fixed_names, self._fixed_per_air))
+            surfaces = StateSurfaces(evaluator, environment, self.kinetics, fixed_x)
+            self.state_surfaces = surfaces if len(surfaces) else None
+
+    def set_surface_reference(self, y0) -> None:
+        """Reference composition of the state-dependent surface columns of the tables: the
+        mole fractions of number densities ``y0`` [cm-3] (variable species) at the start.
+        Member independent when ``y0`` is the group's (``runner.prepare``)."""
+        if self.state_surfaces is None:
+            return
+        air = float(self.environment.at(0.0).air_density)
+        x = self.state_surfaces.mole_fractions(np.asarray(y0, dtype=float), air)
+        self.state_surfaces.set_reference(dict(zip(self.state_surfaces.species, x)))
 
     def _node(self, i: int, j: int) -> np.ndarray:
         log_k = self._nodes.get((i, j))
@@ -369,7 +387,7 @@ class RateCoefficientModel:
         return sza < np.broadcast_to(np.asarray(state.horizon_zenith_angle, dtype=float), times.shape)
 
     def interval_table(self, t_a: float, t_b: float, tau_a: float | None = None,
-                       tau_b: float | None = None) -> IntervalTable:
+                       tau_b: float | None = None, state_reference: bool = False) -> IntervalTable:
         """k(t) and fixed(t) on [t_a, t_b] [s] as an :class:`IntervalTable` for the compiled loop.
 
         ``tau_a``, ``tau_b``: where to evaluate the interval's ends (one-sided
@@ -387,6 +405,10 @@ class RateCoefficientModel:
         interval's mid-point, and ln J is taken linearly in SZA.  Measured
         error against ``self(t)`` (benchmarks/bench_polar_run.py reports it):
         see DEVELOPERS.md, "Solver".
+
+        ``state_reference``: the state-dependent surface columns (``state_surfaces``) hold
+        k per unit area at the reference composition, whatever was observed (the batch
+        time loop adds each member's own ln offset; solver/statesurfaces.py).
         """
         tau_a = float(t_a if tau_a is None else tau_a)
         tau_b = float(t_b if tau_b is None else tau_b)
@@ -400,7 +422,10 @@ class RateCoefficientModel:
                                state.sulfate_area, state.ice_area], axis=-1).astype(float)
         T, air, psc, sulfate, ice = conditions.T
         # the composition is constant over a table: it starts at the last observation
-        surface = self._surface_k_many(T, psc, sulfate, ice, state.pressure, np.full(n, tau_a))
+        if state_reference and self.state_surfaces is not None:
+            surface = self._reference_surface_k(T, psc, sulfate, ice, state.pressure)
+        else:
+            surface = self._surface_k_many(T, psc, sulfate, ice, state.pressure, np.full(n, tau_a))
         values[:, :nr] = (self._thermal_k_many(T, air) + surface) * self.multiplier
         values[:, nr:] = air[:, None] * self._fixed_per_air
         positive = np.all(values > 0.0, axis=0)
@@ -487,11 +512,18 @@ class RateCoefficientModel:
                                            + np.asarray(sulfate)[:, None] * per_sulfate
                                            + np.asarray(ice)[:, None] * per_ice)
 
-    def at_times(self, times_s):
+    def _reference_surface_k(self, T, psc, sulfate, ice, pressure) -> np.ndarray:
+        """Surface k (n, n_reactions) with the state-dependent columns at the reference
+        composition per unit area (``state_surfaces.table_surface_k``); the other columns exact."""
+        return self.state_surfaces.table_surface_k(T, pressure, psc, sulfate, ice)
+
+    def at_times(self, times_s, state_reference: bool = False):
         """(k (n, n_reactions), fixed (n, n_fixed)) at many times [s]: ``self(t)`` for each, vectorised.
 
         Used by the time loop for the exact k at its output times.  Equal to the
-        per-time call to rounding (the same formulas in array form).
+        per-time call to rounding (the same formulas in array form).  ``state_reference``
+        as in :meth:`interval_table` (the time loop then sets each member's own
+        state-dependent columns, ``BatchResult.member_k``).
         """
         times = np.asarray(times_s, dtype=float).ravel()
         nr = len(self.multiplier)
@@ -502,8 +534,13 @@ class RateCoefficientModel:
         def col(v):
             return np.broadcast_to(np.asarray(v, dtype=float), times.shape).astype(float)
         T, air = col(state.temperature), col(state.air_density)
-        k = self._thermal_k_many(T, air) + self._surface_k_many(
-            T, col(state.psc_area), col(state.sulfate_area), col(state.ice_area), col(state.pressure), times)
+        if state_reference and self.state_surfaces is not None:
+            surface = self._reference_surface_k(T, col(state.psc_area), col(state.sulfate_area),
+                                                col(state.ice_area), col(state.pressure))
+        else:
+            surface = self._surface_k_many(T, col(state.psc_area), col(state.sulfate_area),
+                                           col(state.ice_area), col(state.pressure), times)
+        k = self._thermal_k_many(T, air) + surface
         if self.photolysis_rates is not None:
             sza = col(state.solar_zenith_angle)
             lit = sza < col(state.horizon_zenith_angle)

@@ -135,6 +135,9 @@ class TimeLoopResult:
     coefficient_evaluations: int = 0
     wall_time_s: float = 0.0
     settings: dict = field(default_factory=dict)
+    #: (psc, ice) areas [cm2 cm-3] at the output times from this box's own composition where
+    #: the environment has composition rules (state-dependent surfaces), else None
+    surface_areas: tuple | None = None
 
     @property
     def success(self) -> bool:
@@ -184,6 +187,9 @@ class BatchResult:
     coefficient_evaluations: int = 0
     wall_time_s: float = 0.0
     settings: dict = field(default_factory=dict)
+    #: the members' own state-dependent surface k at the output times, computed on demand
+    #: from ``y`` (a :class:`~boxchem.solver.statesurfaces.MemberSurfaceK`), or None
+    surface_k: object = None
 
     @property
     def n_members(self) -> int:
@@ -194,8 +200,23 @@ class BatchResult:
         return self.status == 0
 
     def member_k(self, i: int) -> np.ndarray:
-        """Rate coefficients of member ``i`` at the output times (n_out, n_reactions)."""
-        return self.k * np.exp(self.log_multiplier[i])
+        """Rate coefficients of member ``i`` at the output times (n_out, n_reactions).
+
+        The shared k times the member's factors; state-dependent surface columns from the
+        member's own composition at each output time (``surface_k``)."""
+        return self.members_k(slice(i, i + 1))[0]
+
+    def members_k(self, rows=slice(None)) -> np.ndarray:
+        """``member_k`` of several members at once, (members, n_out, n_reactions)."""
+        lm = self.log_multiplier[rows]
+        # k is shared (n_out, n_reactions), or per member (members, ...) when stacked from
+        # single runs with state-dependent J (analysis/batches.py)
+        k = (self.k[None, :, :] if self.k.ndim == 2 else self.k[rows]) * np.exp(lm)[:, None, :]
+        if self.surface_k is not None:
+            cols = self.surface_k.columns
+            with np.errstate(invalid="ignore", over="ignore"):   # NaN states after a failure
+                k[:, :, cols] = self.surface_k(self.y[rows]) * np.exp(lm[:, cols])[:, None, :]
+        return k
 
     def member(self, i: int) -> TimeLoopResult:
         """Member ``i`` as a single-run :class:`TimeLoopResult` (cut at its last output if it failed)."""
@@ -208,6 +229,8 @@ class BatchResult:
                              int(self.lu_decompositions[i]), int(self.coefficient_evaluations),
                              float(self.wall_time_s), dict(self.settings))
         res.settings["lu_fallbacks"] = int(self.lu_fallbacks[i])
+        if self.surface_k is not None:
+            res.surface_areas = self.surface_k.areas(self.y[i, :n])
         return res
 
 
@@ -305,6 +328,19 @@ def _window_edges(coefficients, out, breaks, feedback: bool) -> np.ndarray:
     return window_edges
 
 
+def _feedback_edges(window_edges, out) -> np.ndarray:
+    """Edges of the feedback windows of per-member state-dependent surfaces: every table
+    window edge and output time, with splits so none is longer than FEEDBACK_INTERVAL_S."""
+    edges = np.union1d(window_edges, out)
+    pieces = [edges[:1]]
+    for a, b in zip(edges[:-1], edges[1:]):
+        n_split = max(1, int(math.ceil((b - a) / FEEDBACK_INTERVAL_S)))
+        pieces.append(a + (b - a) * np.arange(1, n_split + 1) / n_split)
+    feedback = np.concatenate(pieces)
+    feedback[-1] = edges[-1]
+    return feedback
+
+
 def _failure_message(status: int, time_s: float, step_s: float, species) -> str:
     what = "non-finite values" if status == 2 else "error test failed"
     where = f"; worst species {species}" if species else ""
@@ -317,7 +353,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                     first_step: float | None = None, max_step: float = np.inf,
                     method: RosenbrockMethod = RODAS3, progress=None,
                     breakpoint_width_s: float = BREAKPOINT_WIDTH_S, on_accept=None,
-                    lu: str = "sparse") -> BatchResult:
+                    lu: str = "sparse", surface_feedback: str = "member") -> BatchResult:
     """Integrate a batch of members through shared output times with one compiled loop.
 
     Members share the kinetics, the k(t) tables of ``coefficients`` (a
@@ -347,6 +383,18 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     lu : "sparse" (default): the fixed-pattern sparse LU (``sparselu``) with the dense
         pivoting LU where a pivot is too small; "dense": the dense pivoting LU at every
         step (the earlier kernel; for benchmarks)
+    surface_feedback : how state-dependent surfaces (``coefficients.state_surfaces``) follow
+        the members' composition.  "member" (default): tables on the normal schedule with
+        those columns at a reference composition, and every running member's own ln k
+        offsets on them at the start of each feedback window (at most FEEDBACK_INTERVAL_S,
+        ending on every output time), evaluated at the window's mid-point for all members
+        at once (solver/statesurfaces.py); output k from each member's own state
+        (``BatchResult.member_k``).  A member's gamma ratio to the reference is
+        re-evaluated only when its own T, p or composition moved beyond the tolerances of
+        ``statesurfaces.MemberOffsets``; "member_exact" re-evaluates it every window (for
+        tests and benchmarks).  "rebuild": the earlier treatment for a batch of one -
+        the caller's ``on_accept`` records the state (``observe_state``) and a table is
+        rebuilt per feedback window (slow; kept as the reference for tests and benchmarks).
 
     Returns
     -------
@@ -372,13 +420,23 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                          f"{n_members} members")
     if lu not in ("sparse", "dense"):
         raise ValueError(f"lu: expected 'sparse' or 'dense', got {lu!r}")
+    if surface_feedback not in ("member", "member_exact", "rebuild"):
+        raise ValueError(f"surface_feedback: expected 'member', 'member_exact' or 'rebuild', got "
+                         f"{surface_feedback!r}")
+    surfaces = getattr(coefficients, "state_surfaces", None) if surface_feedback != "rebuild" else None
+    if surface_feedback == "rebuild" and getattr(coefficients, "state_dependent", False) and on_accept is None:
+        # without an observer the tables would use no composition at all: never silently wrong
+        raise ValueError("surface_feedback='rebuild': the state-dependent surfaces need the state; "
+                         "give on_accept=coefficients.observe_state (a batch of one), or use 'member'")
     if not hasattr(coefficients, "interval_table"):
         raise ValueError("coefficients: integrate_batch needs interval_table (a RateCoefficientModel); "
                          "plain callables run on the numpy reference loop (integrate_box)")
 
     t0, t_end = float(out[0]), float(out[-1])
     window_edges = _window_edges(coefficients, out, breaks, on_accept is not None)
-    landing = np.union1d(out, window_edges)
+    # the compiled calls: one per table window, or per feedback window with state surfaces
+    segment_edges = window_edges if surfaces is None else _feedback_edges(window_edges, out)
+    landing = np.union1d(out, segment_edges)
     air_rate = air_dilution_rates(kinetics, coefficients, landing)
     break_set = set(breaks.tolist())
     n_out = out.size
@@ -392,6 +450,16 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     coefficient_evaluations = 1
     # state-dependent k must be evaluated right after the state is observed
     exact_per_output = on_accept is not None or not hasattr(coefficients, "at_times")
+    table_options = {}
+    if surfaces is not None:
+        table_options = {"state_reference": True}
+        columns = surfaces.columns
+        mids = 0.5 * (segment_edges[:-1] + segment_edges[1:])
+        mid_state = coefficients.environment.at(mids)       # every window's mid-point at once
+        offsets = surfaces.tracker(n_members, mid_state.temperature, mid_state.pressure,
+                                   mid_state.psc_area, mid_state.sulfate_area, mid_state.ice_area,
+                                   tolerances=surface_feedback == "member")
+        start_air = np.asarray(coefficients.air_density(segment_edges[:-1]), dtype=float)
     ys[:, 0] = y
     outputs_reached = np.ones(n_members, dtype=np.int64)
     output_position = {float(v): q for q, v in enumerate(out)}
@@ -418,18 +486,38 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         return tt
 
     start = 0                    # index in landing of the current window's start
-    for window in range(window_edges.size - 1):
-        wa, wb = float(window_edges[window]), float(window_edges[window + 1])
-        stop = int(np.searchsorted(landing, wb))       # landing[stop] == wb
+    table_window = -1
+    lm_window, fm_window = lm, fm
+    stops = np.searchsorted(landing, segment_edges[1:]).tolist()       # landing[stop] == wb
+    tables = (np.searchsorted(window_edges, segment_edges[:-1], side="right") - 1).tolist()
+    report_outputs = exact_per_output or progress is not None
+    for window in range(segment_edges.size - 1):
+        wa, wb = float(segment_edges[window]), float(segment_edges[window + 1])
+        stop = stops[window]
         if wa in break_set:
             restart[:] = 1       # first step after a jump of J: as at the start
-        table = coefficients.interval_table(wa, wb, side(wa, False), side(wb, True))
-        coefficient_evaluations += 1
+        w = tables[window]
+        if w != table_window:
+            ta, tb = float(window_edges[w]), float(window_edges[w + 1])
+            table = coefficients.interval_table(ta, tb, side(ta, False), side(tb, True), **table_options)
+            coefficient_evaluations += 1
+            table_window = w
         running_before = status == 0
+        if surfaces is not None:
+            # each running member's own surface k: ln offsets on the reference columns
+            lm_window = lm.copy()
+            run = np.nonzero(running_before)[0]
+            x = surfaces.mole_fractions(y[run], start_air[window])
+            if run.size == n_members:
+                lm_window[:, columns] += offsets.offsets(window, run, x)
+            else:
+                lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
+            fm_window = fm.copy()
+            fm_window[:, columns] = np.exp(lm_window[:, columns])
         cm.advance_batch(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
                          outputs_reached, y, h, restart, status, h_max, table.t_a, table.t_b, table.poly,
                          table.log_col, table.sza_poly, table.sgrid, table.lnj, table.phot_cols,
-                         table.horizon, lm, fm, rtol, atol, *m_arrays, *kin_arrays[:8],
+                         table.horizon, lm_window, fm_window, rtol, atol, *m_arrays, *kin_arrays[:8],
                          lu_arrays[0], *lu_arrays[1:], kinetics.n_fixed, counters, info,
                          params)
         newly_failed = running_before & (status != 0)
@@ -438,7 +526,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
             y[newly_failed] = np.nan
         if on_accept is not None and status[0] == 0:
             on_accept(wb, y[0])      # before the output k and the next window's table
-        for q in out_index[start:stop]:
+        for q in (out_index[start:stop] if report_outputs else ()):
             if q < 0:
                 continue
             if exact_per_output:
@@ -453,8 +541,13 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     if not exact_per_output and next_out > 1:
         # exact k at the output times reached, in one vectorised evaluation
         sides = np.array([side(float(tt), False) for tt in out[1:next_out]])
-        ks[1:next_out], fxs[1:next_out] = coefficients.at_times(sides)
+        ks[1:next_out], fxs[1:next_out] = coefficients.at_times(sides, **table_options)
         coefficient_evaluations += 1
+    surface_k = None
+    if surfaces is not None:
+        from .statesurfaces import MemberSurfaceK
+        out_state = coefficients.environment.at(np.array([side(float(tt), False) for tt in out]))
+        surface_k = MemberSurfaceK(surfaces, out_state, coefficients.multiplier)
 
     message = np.empty(n_members, dtype=object)
     species = np.empty(n_members, dtype=object)
@@ -471,9 +564,11 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                        failure[:, 0].copy(), failure[:, 1].copy(), species, outputs_reached,
                        *(counters[:, q].copy() for q in range(len(COUNTERS))),
                        coefficient_evaluations=coefficient_evaluations,
-                       wall_time_s=_time.perf_counter() - wall0,
+                       wall_time_s=_time.perf_counter() - wall0, surface_k=surface_k,
                        settings={"method": method.name, "rtol": rtol, "atol": atol_setting,
                                  "compiled": True, "step_control": "per member",
+                                 "state_surfaces": ("none" if getattr(coefficients, "state_surfaces", None)
+                                                    is None else surface_feedback),
                                  "lu": (f"sparse, fixed pattern ({structure.order_name} order, "
                                         f"{structure.nnz} non-zeros, {structure.operations} "
                                         f"multiply-adds), dense pivoting fallback")
@@ -485,7 +580,7 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
                   max_step: float = np.inf, progress=None, raise_on_failure: bool = True,
                   breakpoint_width_s: float = BREAKPOINT_WIDTH_S,
                   method: RosenbrockMethod = RODAS3, on_accept=None,
-                  compiled: bool | None = None) -> TimeLoopResult:
+                  compiled: bool | None = None, surface_feedback: str = "member") -> TimeLoopResult:
     """Integrate one box through ``output_times_s``: a batch of one (:func:`integrate_batch`).
 
     Parameters
@@ -510,6 +605,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
     compiled : None (default): the compiled loop when numba is available, ``BOXCHEM_JIT``
         is not 0 and ``coefficients`` has ``interval_table``; False: the numpy
         reference loop (slow; for tests and benchmarks).
+    surface_feedback : as :func:`integrate_batch` (the reference loop always observes
+        the state through ``on_accept``: give it ``observe_state`` there).
 
     Returns
     -------
@@ -524,6 +621,15 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
         compiled = jit_available() and hasattr(coefficients, "interval_table")
     if not compiled:
         from .reference import integrate_box_reference
+        if getattr(coefficients, "state_dependent", False):
+            # the reference loop's state-dependent surfaces follow the state it observes
+            # (after every accepted step), as the compiled loop's follow each member's state
+            observe, user = coefficients.observe_state, on_accept
+
+            def on_accept(t_s, y_state):
+                observe(t_s, y_state)
+                if user is not None:
+                    user(t_s, y_state)
         return integrate_box_reference(kinetics, coefficients, y, output_times_s,
                                        breakpoints_s=breakpoints_s, rtol=rtol, atol=atol,
                                        first_step=first_step, max_step=max_step, progress=progress,
@@ -533,7 +639,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
     batch = integrate_batch(kinetics, coefficients, y[None, :], output_times_s,
                             breakpoints_s=breakpoints_s, rtol=rtol, atol=atol, first_step=first_step,
                             max_step=max_step, method=method, progress=progress,
-                            breakpoint_width_s=breakpoint_width_s, on_accept=on_accept)
+                            breakpoint_width_s=breakpoint_width_s, on_accept=on_accept,
+                            surface_feedback=surface_feedback)
     res = batch.member(0)
     if res.status != 0 and raise_on_failure:
         species = str(batch.failure_species[0]) or None
