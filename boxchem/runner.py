@@ -26,7 +26,7 @@ from .diagnostics.cycles import cycle_description
 from .diagnostics import (cycle_coefficient_matrix, cycle_rate, family_number_density,
                           family_weight_matrix, net_stoichiometry_matrix)
 from .errors import IntegrationError, ScenarioError
-from .scenario import EquilibriumRuleSpec, Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
+from .scenario import EquilibriumRuleSpec, Scenario, StsRuleSpec, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
 
 __all__ = ["run", "prepare", "integrate", "RunSetup", "initial_state", "build_environment",
            "assemble_dataset", "derived_outputs", "species_number_density", "solver_options", "reaction_definition",
@@ -125,11 +125,18 @@ def build_environment(scenario: Scenario):
             return rule(number_density_cm3=value.number_density, geometric_std=value.geometric_std)
         return _series(value, name=name)
 
+    def sulfate(value):
+        if isinstance(value, StsRuleSpec):     # liquid STS droplets (environment/sts.py)
+            from .environment.sts import StsEquilibriumRule
+            return StsEquilibriumRule(value.h2so4, number_density_cm3=value.number_density,
+                                      geometric_std=value.geometric_std)
+        return _series(value, name="[environment].sulfate_surface_area")
+
     return Environment(
         scenario.start,
         ozone_column=_series(scenario.ozone_column_du, name="[environment].ozone_column"),
         psc_area=area(scenario.psc_surface_area, "[environment].psc_surface_area"),
-        sulfate_area=_series(scenario.sulfate_surface_area, name="[environment].sulfate_surface_area"),
+        sulfate_area=sulfate(scenario.sulfate_surface_area),
         ice_area=area(scenario.ice_surface_area, "[environment].ice_surface_area"),
         **kwargs)
 
@@ -460,10 +467,14 @@ def solver_options(scenario: Scenario) -> dict[str, Any]:
 def state_observer(setup: RunSetup):
     """The time loop's ``on_accept``: what must see the box's state as it runs, or None.
 
-    The ozone column following the box (``photolysis.observe``) and state-dependent
-    surfaces (``coefficients.observe_state``, docs/heterogeneous.md).
+    The gas/condensed partition of HNO3 and H2O (``environment/condensation.py``;
+    changes y in place), the ozone column following the box (``photolysis.observe``)
+    and state-dependent surfaces (``coefficients.observe_state``, docs/heterogeneous.md).
     """
-    observers = [getattr(setup.photolysis, "observe", None)]
+    from .environment.condensation import phase_equilibrium_for
+    # the phase equilibrium first: it changes the state the others observe
+    observers = [phase_equilibrium_for(setup.environment, setup.kinetics.variable_species),
+                 getattr(setup.photolysis, "observe", None)]
     if getattr(setup.coefficients, "state_dependent", False):
         observers.append(setup.coefficients.observe_state)
     observers = [f for f in observers if f is not None]

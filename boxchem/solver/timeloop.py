@@ -340,7 +340,8 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     progress : callable(t_s) called after each output time
     on_accept : callable(t_s, y), single-member batches only: called with the start
         state and at every landing time (before the k(t) table of the next window and
-        the output k); windows then end on every output time and last at most
+        the output k); it may change y in place (the output at that time then holds
+        the changed state); windows then end on every output time and last at most
         FEEDBACK_INTERVAL_S, so state-dependent k (``photolysis.ozonefollow``) sees
         the state lagged by at most one window (instead of one step in the numpy
         reference loop)
@@ -438,6 +439,10 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
             y[newly_failed] = np.nan
         if on_accept is not None and status[0] == 0:
             on_accept(wb, y[0])      # before the output k and the next window's table
+            if out_index[stop - 1] >= 0:
+                # on_accept may change the state in place (the phase equilibrium of
+                # environment/condensation.py): the output holds the state it left
+                ys[0, out_index[stop - 1]] = y[0]
         for q in out_index[start:stop]:
             if q < 0:
                 continue
