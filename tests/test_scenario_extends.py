@@ -278,11 +278,7 @@ VARIANTS = {
                                                       "HBr", "BrO", "Br2")},
     "polar-spring-cold": {"[environment].temperature_offset", "[environment].ice_surface_area"},
     "polar-spring-warm": {"[environment].temperature_offset"},
-    "polar-spring-sts": {"[environment].psc_surface_area", "[environment].sulfate_surface_area.rule",
-                         "[environment].sulfate_surface_area.h2so4",
-                         "[environment].sulfate_surface_area.particle_number_density",
-                         "[environment].sulfate_surface_area.geometric_std",
-                         "[environment].sulfate_surface_area"},
+    "polar-spring-sts": {"[environment].psc_surface_area", "[environment].sulfate_surface_area"},
 }
 
 
