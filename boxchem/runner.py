@@ -565,4 +565,8 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
         f"[photolysis].cross_sections.{rid}: {note}"
         for rid, note in getattr(setup.photolysis, "notices", ()))
     ds.attrs["solver_breakpoints"] = int(setup.breakpoints_s.size)
+    from .environment.condensation import phase_equilibrium_for
+    phases = phase_equilibrium_for(setup.environment, setup.kinetics.variable_species)
+    ds.attrs["phase_equilibrium"] = (phases.describe() if phases is not None else
+                                     "none: gas-phase HNO3 and H2O are not taken up into particles")
     return ds
