@@ -857,6 +857,12 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
         sulfate = _series_or_value(sulfate_raw, "surface_area",
                                    "[environment].sulfate_surface_area", err, start=start,
                                    check=_non_negative("surface area", "cm2 cm-3"))
+    if isinstance(sulfate, StsRuleSpec) and isinstance(psc, EquilibriumRuleSpec) and psc.kind == "nat":
+        err.add("[environment].sulfate_surface_area",
+                "rule \"sts\" together with psc_surface_area rule \"nat\": both would hold the condensed "
+                "HNO3; choose one (valid: NAT with liquid binary sulfate, e.g. sulfate_surface_area = "
+                "\"0.5 um2 cm-3\", or STS without NAT: psc_surface_area = \"0 um2 cm-3\")")
+        sulfate = None
     albedo = env.get("albedo", DEFAULT_ALBEDO)
     if isinstance(albedo, bool) or not isinstance(albedo, (int, float)) or not 0.0 <= albedo <= 1.0:
         err.add("[environment].albedo", f"expected a number in [0, 1], got {albedo!r}")

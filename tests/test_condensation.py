@@ -165,8 +165,17 @@ def test_bad_sts_rule_keys_say_file_key_value_and_what_is_valid(sulfate, words):
 
 
 def test_nat_and_sts_together_are_refused_with_a_clear_error():
-    s = _scenario(sulfate='{ rule = "sts", h2so4 = "0.5 ppbv" }')
     with pytest.raises(BoxchemError) as exc:
-        boxchem.run(s)
+        _scenario(sulfate='{ rule = "sts", h2so4 = "0.5 ppbv" }')
     msg = str(exc.value)
-    assert "psc_surface_area" in msg and "sulfate_surface_area" in msg and "choose one" in msg
+    assert "cond.toml" in msg and "psc_surface_area" in msg and "sulfate_surface_area" in msg
+    assert "choose one" in msg
+    # the same for an Environment built by hand (no file): the partition refuses it
+    from boxchem.environment.condensation import phase_equilibrium_for
+    from boxchem.environment.history import Environment
+    from boxchem.environment.psc import NatEquilibriumRule
+    env = Environment("2026-08-01T00:00:00Z", temperature=190.0, pressure=5000.0,
+                      latitude=-80.0, longitude=0.0, ozone_column=250.0, psc_area=NatEquilibriumRule(),
+                      sulfate_area=StsEquilibriumRule(5e-10))
+    with pytest.raises(BoxchemError, match="choose one"):
+        phase_equilibrium_for(env, ("HNO3", "HNO3_PSC", "H2O"))
