@@ -21,6 +21,7 @@ import numpy as np
 from ..errors import DataFileError, ScenarioError
 from . import solar
 from .psc import STATE_RULES, CompositionHistory
+from .sts import StsEquilibriumRule
 from .atmosphere import (BOLTZMANN_J_PER_K, air_number_density, altitude_from_pressure,
                          standard_atmosphere)
 
@@ -302,8 +303,10 @@ class Environment:
                                      valid="an ozone column >= 0 DU")
         self.psc_area = prepared("psc_area", psc_area, low=0.0, allow_rule=True,
                                  valid="a surface area density >= 0 cm2 cm-3")
-        self.sulfate_area = prepared("sulfate_area", sulfate_area, low=0.0, allow_rule=True,
-                                     valid="a surface area density >= 0 cm2 cm-3")
+        # a liquid STS rule (sts.py) or a plain area; the threshold rule is for PSCs only
+        self.sulfate_area = (sulfate_area if isinstance(sulfate_area, StsEquilibriumRule) else
+                             prepared("sulfate_area", sulfate_area, low=0.0,
+                                      valid="a surface area density >= 0 cm2 cm-3"))
         self.ice_area = prepared("ice_area", ice_area, low=0.0, allow_rule=True,
                                  valid="a surface area density >= 0 cm2 cm-3")
         # mole fractions the time loop records for composition-dependent area rules (psc.py)
