@@ -1,7 +1,8 @@
 """Which science tests catch a factor-2 error?  (issue 11, item 6)
 
 For each key quantity (tests/perturb_plugin.py ROWS: ClO + ClO + M, J(Cl2O2),
-ClO + BrO, Cl + O3, the sulfate and NAT gammas, the O3 cross section) and each
+ClO + BrO, Cl + O3, the sulfate and NAT gammas, the O3 cross section, the
+HNO3 pressure over NAT and the HNO3 solubility in STS) and each
 factor (2 and 0.5), run the science tests with the model's quantity multiplied
 by the factor and print which tests fail.  Every row must fail at least one
 test; the script exits with status 1 if one does not.
@@ -22,7 +23,7 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "tests"))
-from perturb_plugin import ROWS  # noqa: E402
+from perturb_plugin import ROW_TESTS, ROWS  # noqa: E402
 
 DEFAULT_TESTS = ["tests/test_science_factor2.py"]
 
@@ -39,14 +40,17 @@ def failing_tests(row: str, factor: float, tests: list[str]) -> tuple[list[str],
 
 def main(argv=None) -> int:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    p.add_argument("--tests", nargs="+", default=DEFAULT_TESTS, help="test files to run per row")
+    p.add_argument("--tests", nargs="+", default=None,
+                   help="test files to run per row (default: tests/test_science_factor2.py and the "
+                        "row's own files, perturb_plugin.ROW_TESTS)")
     p.add_argument("--rows", nargs="+", default=list(ROWS), choices=list(ROWS))
     args = p.parse_args(argv)
     missed = []
     print(f"{'quantity':<18} {'factor':>6}  {'failed':>6} {'passed':>6}  failing tests")
     for row in args.rows:
         for factor in (2.0, 0.5):
-            failed, n_passed = failing_tests(row, factor, args.tests)
+            tests = args.tests if args.tests else DEFAULT_TESTS + list(ROW_TESTS.get(row, ()))
+            failed, n_passed = failing_tests(row, factor, tests)
             if not failed:
                 missed.append((row, factor))
             names = ", ".join(f.split("[")[0] + ("[" + f.split("[")[1] if "[" in f else "") for f in failed)

@@ -26,7 +26,7 @@ from .diagnostics.cycles import cycle_description
 from .diagnostics import (cycle_coefficient_matrix, cycle_rate, family_number_density,
                           family_weight_matrix, net_stoichiometry_matrix)
 from .errors import IntegrationError, ScenarioError
-from .scenario import EquilibriumRuleSpec, Scenario, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
+from .scenario import EquilibriumRuleSpec, Scenario, StsRuleSpec, ThresholdRuleSpec, TimeSeriesSpec, load_scenario
 
 __all__ = ["run", "prepare", "integrate", "RunSetup", "initial_state", "build_environment",
            "assemble_dataset", "derived_outputs", "species_number_density", "solver_options", "reaction_definition",
@@ -125,11 +125,18 @@ def build_environment(scenario: Scenario):
             return rule(number_density_cm3=value.number_density, geometric_std=value.geometric_std)
         return _series(value, name=name)
 
+    def sulfate(value):
+        if isinstance(value, StsRuleSpec):     # liquid STS droplets (environment/sts.py)
+            from .environment.sts import StsEquilibriumRule
+            return StsEquilibriumRule(value.h2so4, number_density_cm3=value.number_density,
+                                      geometric_std=value.geometric_std)
+        return _series(value, name="[environment].sulfate_surface_area")
+
     return Environment(
         scenario.start,
         ozone_column=_series(scenario.ozone_column_du, name="[environment].ozone_column"),
         psc_area=area(scenario.psc_surface_area, "[environment].psc_surface_area"),
-        sulfate_area=_series(scenario.sulfate_surface_area, name="[environment].sulfate_surface_area"),
+        sulfate_area=sulfate(scenario.sulfate_surface_area),
         ice_area=area(scenario.ice_surface_area, "[environment].ice_surface_area"),
         **kwargs)
 
@@ -424,10 +431,10 @@ def _dataset_from_result(setup: RunSetup, result, *, status: str, message: str) 
     rates = kinetics.rates(y, k, fixed) if times.size else np.zeros((0, len(mechanism.reactions)))
     state = setup.environment.at(times)
     if getattr(result, "surface_areas", None) is not None and times.size:
-        # NAT / ice areas from this box's own composition at the output times
+        # NAT / STS / ice areas from this box's own composition at the output times
         import dataclasses
-        psc, ice = (np.asarray(a, dtype=float)[:times.size] for a in result.surface_areas)
-        state = dataclasses.replace(state, psc_area=psc, ice_area=ice)
+        psc, sulfate, ice = (np.asarray(a, dtype=float)[:times.size] for a in result.surface_areas)
+        state = dataclasses.replace(state, psc_area=psc, sulfate_area=sulfate, ice_area=ice)
     if hasattr(setup.photolysis, "observe") and times.size:
         # [photolysis].ozone_column_follows_box: write the column J used (without its
         # one-step lag), from the box's O3 at the output times
@@ -466,6 +473,8 @@ def state_observer(setup: RunSetup, surface_feedback: str = "member"):
     what the numpy reference loop needs), state-dependent surfaces
     (``coefficients.observe_state``, docs/heterogeneous.md).  With "member" (default) the
     batch time loop gives each member its own surface k itself (solver/statesurfaces.py).
+    The gas/condensed phase equilibrium is not an observer: it changes the state, and
+    goes to the time loop as ``state_map`` (:func:`phase_state_map`).
     """
     observers = [getattr(setup.photolysis, "observe", None)]
     if getattr(setup.coefficients, "state_dependent", False) and (
@@ -479,6 +488,14 @@ def state_observer(setup: RunSetup, surface_feedback: str = "member"):
         for f in observers:
             f(t_s, y)
     return observe
+
+
+def phase_state_map(setup: RunSetup):
+    """The time loop's ``state_map``: the gas/condensed partition of HNO3 and H2O over NAT,
+    STS and ice (``environment/condensation.py``), or None when the run has none."""
+    from .environment.condensation import phase_equilibrium_for
+    phase = phase_equilibrium_for(setup.environment, setup.kinetics.variable_species)
+    return None if phase is None else phase.map_state
 
 
 def integrate(setup: RunSetup, *, progress=None, surface_feedback: str = "member",
@@ -498,6 +515,7 @@ def integrate(setup: RunSetup, *, progress=None, surface_feedback: str = "member
                          breakpoints_s=setup.breakpoints_s, progress=progress,
                          on_accept=state_observer(setup, surface_feedback),
                          surface_feedback=surface_feedback, compiled=compiled,
+                         state_map=phase_state_map(setup),
                          **solver_options(setup.scenario))
 
 
@@ -566,4 +584,8 @@ def run(scenario_or_path: Scenario | str | Path, *, scale: Mapping[str, float] |
         f"[photolysis].cross_sections.{rid}: {note}"
         for rid, note in getattr(setup.photolysis, "notices", ()))
     ds.attrs["solver_breakpoints"] = int(setup.breakpoints_s.size)
+    from .environment.condensation import phase_equilibrium_for
+    phases = phase_equilibrium_for(setup.environment, setup.kinetics.variable_species)
+    ds.attrs["phase_equilibrium"] = (phases.describe() if phases is not None else
+                                     "none: gas-phase HNO3 and H2O are not taken up into particles")
     return ds

@@ -62,6 +62,8 @@ _SERIES_KEYS = ("times", "values", "time_unit", "unit")
 _RULE_KEYS = ("rule", "area", "below", "width")
 #: keys of the thermodynamic area rules (rule = "nat" / "ice"; boxchem/environment/psc.py)
 _EQUILIBRIUM_RULE_KEYS = ("rule", "particle_number_density", "geometric_std")
+#: keys of the liquid STS rule (sulfate_surface_area = { rule = "sts", ... }; environment/sts.py)
+_STS_RULE_KEYS = ("rule", "h2so4", "particle_number_density", "geometric_std")
 
 #: top-level keys (not sections) of a file that builds on another scenario
 EXTENDS_KEY = "extends"
@@ -126,7 +128,18 @@ class EquilibriumRuleSpec:
     geometric_std: float = 1.8
 
 
-Value = float | TimeSeriesSpec | ThresholdRuleSpec | EquilibriumRuleSpec | None
+@dataclass(frozen=True)
+class StsRuleSpec:
+    """Liquid sulfate / STS area from thermodynamics (Carslaw et al. 1995): ``h2so4``
+    [mol mol-1] of H2SO4 in droplets of ``number_density`` [cm-3] and ``geometric_std`` [1]
+    that take up HNO3 and H2O (:mod:`boxchem.environment.sts`)."""
+
+    h2so4: float
+    number_density: float = 10.0
+    geometric_std: float = 1.8
+
+
+Value = float | TimeSeriesSpec | ThresholdRuleSpec | EquilibriumRuleSpec | StsRuleSpec | None
 
 
 @dataclass(frozen=True)
@@ -155,7 +168,7 @@ class Scenario:
     trajectory: Path | None
     ozone_column_du: float | TimeSeriesSpec
     psc_surface_area: float | TimeSeriesSpec | ThresholdRuleSpec
-    sulfate_surface_area: float | TimeSeriesSpec
+    sulfate_surface_area: float | TimeSeriesSpec | StsRuleSpec
     albedo: float
     initial: Mapping[str, tuple[float, str]]     # species -> (value, "mole_fraction"|"number_density")
     rtol: float
@@ -837,9 +850,19 @@ def _build(data: Mapping[str, Any], *, text: str, base_dir: Path, source: str,
                         err, start)
     ice = _area_or_rule(env.get("ice_surface_area", "0 um2 cm-3"), "[environment].ice_surface_area",
                         err, start, default_below=ICE_FROST_POINT_K)
-    sulfate = _series_or_value(env.get("sulfate_surface_area", "0 um2 cm-3"), "surface_area",
-                               "[environment].sulfate_surface_area", err, start=start,
-                               check=_non_negative("surface area", "cm2 cm-3"))
+    sulfate_raw = env.get("sulfate_surface_area", "0 um2 cm-3")
+    if isinstance(sulfate_raw, Mapping) and "rule" in sulfate_raw:
+        sulfate = _sts_rule(sulfate_raw, "[environment].sulfate_surface_area", err)
+    else:
+        sulfate = _series_or_value(sulfate_raw, "surface_area",
+                                   "[environment].sulfate_surface_area", err, start=start,
+                                   check=_non_negative("surface area", "cm2 cm-3"))
+    if isinstance(sulfate, StsRuleSpec) and isinstance(psc, EquilibriumRuleSpec) and psc.kind == "nat":
+        err.add("[environment].sulfate_surface_area",
+                "rule \"sts\" together with psc_surface_area rule \"nat\": both would hold the condensed "
+                "HNO3; choose one (valid: NAT with liquid binary sulfate, e.g. sulfate_surface_area = "
+                "\"0.5 um2 cm-3\", or STS without NAT: psc_surface_area = \"0 um2 cm-3\")")
+        sulfate = None
     albedo = env.get("albedo", DEFAULT_ALBEDO)
     if isinstance(albedo, bool) or not isinstance(albedo, (int, float)) or not 0.0 <= albedo <= 1.0:
         err.add("[environment].albedo", f"expected a number in [0, 1], got {albedo!r}")
@@ -1111,6 +1134,66 @@ def _equilibrium_rule(value: Mapping, where: str, err: _Errors):
         err.add(f"{where}.geometric_std", f"got {sigma!r}; valid: a number >= 1, e.g. 1.8")
         ok = False
     return EquilibriumRuleSpec(kind, number, float(sigma)) if ok else None
+
+
+def _number_density(raw: Any, default: float, where: str, err: _Errors) -> float | None:
+    """"10 cm-3" or a bare number [cm-3] > 0."""
+    number = None
+    if raw is None:
+        return default
+    if isinstance(raw, (int, float)) and not isinstance(raw, bool):
+        number = float(raw)
+    elif isinstance(raw, str) and raw.replace(" ", "").endswith("cm-3"):
+        try:
+            number = float(raw.replace(" ", "")[:-4])
+        except ValueError:
+            number = None
+    if number is None or not (number > 0 and math.isfinite(number)):
+        err.add(where, f"got {raw!r}; valid: a number density > 0, e.g. \"10 cm-3\"")
+        return None
+    return number
+
+
+def _sts_rule(value: Mapping, where: str, err: _Errors):
+    """``{ rule = "sts", h2so4 = "0.5 ppbv", particle_number_density = "10 cm-3", geometric_std = 1.8 }``."""
+    if value.get("rule") != "sts":
+        err.add(f"{where}.rule", f"unknown rule {value.get('rule')!r}; valid for sulfate_surface_area: "
+                                 f"\"sts\" (liquid droplets that take up HNO3 and H2O, Carslaw et al. 1995), "
+                                 f"or a surface area such as \"0.5 um2 cm-3\"")
+        return None
+    ok = True
+    for k in value:
+        if k not in _STS_RULE_KEYS:
+            err.add(f"{where}.{k}", f"unknown key in rule \"sts\"; valid: {', '.join(_STS_RULE_KEYS)}")
+            ok = False
+    h2so4 = None
+    if "h2so4" not in value:
+        err.add(f"{where}.h2so4", "rule \"sts\" needs the droplets' H2SO4 as a mole fraction, "
+                                  "e.g. h2so4 = \"0.5 ppbv\"")
+        ok = False
+    else:
+        try:
+            amount, kind = parse_amount(value["h2so4"], where=err.at(f"{where}.h2so4"))
+        except UnitError as exc:
+            err.add_unit_error(exc)
+            amount, kind = None, None
+        if kind != "mole_fraction" or amount is None or not amount > 0:
+            if kind is not None:
+                err.add(f"{where}.h2so4", f"got {value['h2so4']!r}; valid: a mole fraction > 0 "
+                                          f"such as \"0.5 ppbv\"")
+            ok = False
+        else:
+            h2so4 = amount
+    number = _number_density(value.get("particle_number_density"), 10.0,
+                             f"{where}.particle_number_density", err)
+    sigma = value.get("geometric_std", 1.8)
+    if not (isinstance(sigma, (int, float)) and not isinstance(sigma, bool) and math.isfinite(sigma)
+            and sigma >= 1.0):
+        err.add(f"{where}.geometric_std", f"got {sigma!r}; valid: a number >= 1, e.g. 1.8")
+        ok = False
+    if not ok or number is None:
+        return None
+    return StsRuleSpec(h2so4, number, float(sigma))
 
 
 def _initial(table: Mapping[str, Any], mechanism: Any, err: _Errors) -> dict[str, tuple[float, str]]:

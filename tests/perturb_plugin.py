@@ -31,7 +31,15 @@ ROWS = {
                                "het_n2o5_h2o_psc", "het_n2o5_hcl_psc", "het_brono2_h2o_psc",
                                "het_brono2_hcl_psc", "het_hobr_hcl")),
     "o3_cross_section": ("cross_section", ("O3",)),
+    # thermodynamics of the particles (issue 11): p_eq(HNO3) over NAT, HNO3 solubility in STS
+    "nat_saturation": ("function", ("boxchem.environment.psc:nat_hno3_equilibrium_pressure",
+                                    "boxchem.environment.condensation:nat_hno3_equilibrium_pressure")),
+    "sts_solubility": ("function", ("boxchem.environment.sts:_henry",)),
 }
+
+
+#: test files a row needs beyond benchmarks/factor2_check.py's default
+ROW_TESTS = {"nat_saturation": ("tests/test_condensation.py",), "sts_solubility": ("tests/test_sts.py",)}
 
 
 def _factor_columns(ids_all, wanted, factor):
@@ -91,6 +99,17 @@ def pytest_configure(config):
             ids_all = [r.id for r in self.mechanism.reactions]
             return np.asarray(original(self, *a, **k)) * _factor_columns(ids_all, ids, factor)
         rates.PhotolysisRates.__call__ = call
+    elif kind == "function":
+        import importlib
+
+        for target in ids:
+            module_name, attr = target.split(":")
+            module = importlib.import_module(module_name)
+            original_f = getattr(module, attr)
+
+            def scaled(*a, _f=original_f, **k):
+                return np.asarray(_f(*a, **k)) * factor
+            setattr(module, attr, scaled)
     elif kind == "cross_section":
         from boxchem.photolysis import crosssections
 
@@ -100,3 +119,4 @@ def pytest_configure(config):
             data = original(name_or_path)
             return _ScaledSpectralData(data, factor) if str(name_or_path) in ids else data
         crosssections.cross_section_data = cross_section_data
+

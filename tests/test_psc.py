@@ -134,8 +134,10 @@ def test_run_with_nat_rule_reports_the_area_it_used():
     # the area at each output time is the rule at the box's own HNO3 and H2O (recorded at output
     # times when they moved by more than 1 %; docs/heterogeneous.md): within 2 % here, where the
     # HNO3 excess over NAT equilibrium is large
+    # (the rule reads the total HNO3: the gas phase plus the condensed HNO3_PSC, since the gas
+    # phase is held at the NAT equilibrium pressure - environment/condensation.py)
     rule = NatEquilibriumRule()
-    x = {s: ds["mole_fraction"].sel(species=s).values for s in ("HNO3", "H2O")}
+    x = {s: ds["mole_fraction"].sel(species=s).values for s in ("HNO3", "H2O", "HNO3_PSC")}
     np.testing.assert_allclose(area, rule(ds["temperature"].values, ds["pressure"].values, x), rtol=2e-2)
     warm = boxchem.run(_scenario(T="200 K"))
     assert np.all(warm["psc_surface_area"].values == 0.0)

@@ -278,6 +278,7 @@ VARIANTS = {
                                                       "HBr", "BrO", "Br2")},
     "polar-spring-cold": {"[environment].temperature_offset", "[environment].ice_surface_area"},
     "polar-spring-warm": {"[environment].temperature_offset"},
+    "polar-spring-sts": {"[environment].psc_surface_area", "[environment].sulfate_surface_area"},
 }
 
 

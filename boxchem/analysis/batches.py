@@ -197,9 +197,13 @@ def _initial_states(task: BatchTask, group: _Group) -> np.ndarray:
     return y0
 
 
+#: position of each surface-area output in ``MemberSurfaceK.areas``
+_AREA_POSITION = {"psc_surface_area": 0, "sulfate_surface_area": 1, "ice_surface_area": 2}
+
+
 def _outputs(group: _Group, y: np.ndarray, k: np.ndarray, save, areas=None) -> dict[str, np.ndarray]:
     """The saved variables of a batch: y (n, time, n_variable), k (n, time, n_reactions);
-    ``areas`` (psc, ice) (n, time) from each member's composition, or None."""
+    ``areas`` (psc, sulfate, ice) (n, time) from each member's composition, or None."""
     from ..runner import derived_outputs, species_number_density
     setup = group.setup
     fixed = group.fixed_out
@@ -224,8 +228,8 @@ def _outputs(group: _Group, y: np.ndarray, k: np.ndarray, save, areas=None) -> d
             out[name] = rates
         elif name in derived:
             out[name] = derived[name]
-        elif areas is not None and name in ("psc_surface_area", "ice_surface_area"):
-            out[name] = areas[0] if name == "psc_surface_area" else areas[1]
+        elif areas is not None and name in _AREA_POSITION:
+            out[name] = areas[_AREA_POSITION[name]]
         else:
             series = np.asarray(getattr(group.state, TIME_SERIES[name]), dtype=float)
             out[name] = np.broadcast_to(series, (n,) + series.shape)
@@ -292,7 +296,7 @@ def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progre
     """The solver's batch call on the group's shared setup."""
     from ..solver.timeloop import integrate_batch
     setup = group.setup
-    from ..runner import state_observer
+    from ..runner import phase_state_map, state_observer
     observe = state_observer(setup)
     if observe is not None and y0.shape[0] > 1:
         # the ozone column following the box (photolysis.observe): J follows this member's
@@ -304,7 +308,8 @@ def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progre
         return _stack(parts)
     result = integrate_batch(setup.kinetics, setup.coefficients, y0, setup.output_times_s,
                              log_multiplier=log_multiplier, breakpoints_s=setup.breakpoints_s,
-                             progress=progress, on_accept=observe, **group.options)
+                             progress=progress, on_accept=observe, state_map=phase_state_map(setup),
+                             **group.options)
     group.fixed_out = np.asarray(result.fixed, dtype=float)
     return result
 

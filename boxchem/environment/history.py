@@ -21,6 +21,7 @@ import numpy as np
 from ..errors import DataFileError, ScenarioError
 from . import solar
 from .psc import STATE_RULES, CompositionHistory
+from .sts import StsEquilibriumRule
 from .atmosphere import (BOLTZMANN_J_PER_K, air_number_density, altitude_from_pressure,
                          standard_atmosphere)
 
@@ -302,12 +303,14 @@ class Environment:
                                      valid="an ozone column >= 0 DU")
         self.psc_area = prepared("psc_area", psc_area, low=0.0, allow_rule=True,
                                  valid="a surface area density >= 0 cm2 cm-3")
-        self.sulfate_area = prepared("sulfate_area", sulfate_area, low=0.0,
-                                     valid="a surface area density >= 0 cm2 cm-3")
+        # a liquid STS rule (sts.py) or a plain area; the threshold rule is for PSCs only
+        self.sulfate_area = (sulfate_area if isinstance(sulfate_area, StsEquilibriumRule) else
+                             prepared("sulfate_area", sulfate_area, low=0.0,
+                                      valid="a surface area density >= 0 cm2 cm-3"))
         self.ice_area = prepared("ice_area", ice_area, low=0.0, allow_rule=True,
                                  valid="a surface area density >= 0 cm2 cm-3")
         # mole fractions the time loop records for composition-dependent area rules (psc.py)
-        needs = sorted({s for a in (self.psc_area, self.ice_area) if isinstance(a, STATE_RULES)
+        needs = sorted({s for a in (self.psc_area, self.ice_area, self.sulfate_area) if isinstance(a, STATE_RULES)
                         for s in a.needs})
         self.composition = CompositionHistory(needs) if needs else None
         if pressure is None and altitude is None:
@@ -374,7 +377,7 @@ class Environment:
             latitude=lat, longitude=_wrap_longitude(lon), altitude=z,
             solar_zenith_angle=sza, horizon_zenith_angle=hz,
             ozone_column=value(self.ozone_column), psc_area=psc,
-            sulfate_area=value(self.sulfate_area), ice_area=ice, distance_factor=dist)
+            sulfate_area=self._area(self.sulfate_area, t, T, p, value), ice_area=ice, distance_factor=dist)
 
     def _area(self, rule, t, T, p, value):
         """A surface area [cm2 cm-3]: a threshold rule of T, a composition rule of
@@ -413,7 +416,8 @@ class Environment:
         return EnvironmentState(
             f64(t), f64(T), f64(p), f64(p / (T * _BOLTZMANN_CM3)), f64(lat),
             f64((lon + 180.0) % 360.0 - 180.0), f64(z), f64(sza), f64(hz),
-            f64(value(self.ozone_column)), f64(psc), f64(value(self.sulfate_area)), f64(ice), f64(dist))
+            f64(value(self.ozone_column)), f64(psc), f64(self._area(self.sulfate_area, t, T, p, value)),
+            f64(ice), f64(dist))
 
     def solar_zenith_angle(self, t):
         """Solar zenith angle [deg] at ``t`` [s since start] along the box's path."""

@@ -22,11 +22,13 @@ two area rules a scenario can choose instead of the temperature threshold
   (moments of the lognormal distribution, e.g. Seinfeld and Pandis 2016,
   section 8.1).  N and sigma are the user's choice (defaults below).
 
-Limitation (documented in docs/heterogeneous.md): the condensed HNO3 and
-H2O are NOT removed from the gas phase of the box (no condensed-phase
-species, no sedimentation); the area is computed from the box's gas-phase
-mole fractions taken as totals.  The densities are recalled from memory
-(NAT: Taesler et al. 1975; ice: common value).
+The rules read the box's totals: gas-phase ``HNO3`` plus the condensed
+``HNO3_PSC`` (and ``H2O`` plus ``H2O_ICE``) when the mechanism declares
+these condensed-phase species; ``environment/condensation.py`` then keeps
+the gas phase at the equilibrium pressure (the condensed excess is taken out
+of the gas; docs/heterogeneous.md).  Without them the gas-phase mole
+fractions are taken as totals.  No sedimentation.  The densities are
+recalled from memory (NAT: Taesler et al. 1975; ice: common value).
 """
 from __future__ import annotations
 
@@ -127,7 +129,7 @@ class NatEquilibriumRule:
 
     number_density_cm3: float = 1.0
     geometric_std: float = 1.8
-    needs = ("HNO3", "H2O")
+    needs = ("HNO3", "H2O", "HNO3_PSC")
 
     def __post_init__(self):
         _check("rule nat: particle_number_density", self.number_density_cm3, lambda v: v > 0,
@@ -137,7 +139,9 @@ class NatEquilibriumRule:
     def __call__(self, temperature, pressure_Pa, mole_fractions):
         T = np.asarray(temperature, dtype=float)
         p = np.asarray(pressure_Pa, dtype=float)
-        p_hno3 = np.asarray(mole_fractions.get("HNO3", 0.0), dtype=float) * p
+        # total HNO3 (gas + condensed); the gas-phase H2O (the ice holds the rest)
+        p_hno3 = (np.asarray(mole_fractions.get("HNO3", 0.0), dtype=float)
+                  + np.asarray(mole_fractions.get("HNO3_PSC", 0.0), dtype=float)) * p
         p_h2o = np.asarray(mole_fractions.get("H2O", 0.0), dtype=float) * p
         excess_Pa = np.maximum(p_hno3 - nat_hno3_equilibrium_pressure(T, p_h2o), 0.0)
         molecules = excess_Pa / (_BOLTZMANN * T) * 1e-6                     # cm-3
@@ -155,7 +159,7 @@ class IceEquilibriumRule:
 
     number_density_cm3: float = 0.01
     geometric_std: float = 1.8
-    needs = ("H2O",)
+    needs = ("H2O", "H2O_ICE")
 
     def __post_init__(self):
         _check("rule ice: particle_number_density", self.number_density_cm3, lambda v: v > 0,
@@ -164,15 +168,19 @@ class IceEquilibriumRule:
 
     def __call__(self, temperature, pressure_Pa, mole_fractions):
         T = np.asarray(temperature, dtype=float)
-        p_h2o = np.asarray(mole_fractions.get("H2O", 0.0), dtype=float) * np.asarray(pressure_Pa, dtype=float)
+        p_h2o = ((np.asarray(mole_fractions.get("H2O", 0.0), dtype=float)
+                  + np.asarray(mole_fractions.get("H2O_ICE", 0.0), dtype=float))
+                 * np.asarray(pressure_Pa, dtype=float))          # total water (gas + ice)
         excess_Pa = np.maximum(p_h2o - ice_vapour_pressure(T), 0.0)
         molecules = excess_Pa / (_BOLTZMANN * T) * 1e-6
         volume = molecules * ICE_MOLAR_MASS / _AVOGADRO / ICE_DENSITY
         return lognormal_surface_area(volume, self.number_density_cm3, self.geometric_std)
 
 
+from .sts import StsEquilibriumRule  # noqa: E402  (the liquid rule; sts.py imports nothing from here)
+
 #: rule classes whose area depends on the box's composition
-STATE_RULES = (NatEquilibriumRule, IceEquilibriumRule)
+STATE_RULES = (NatEquilibriumRule, IceEquilibriumRule, StsEquilibriumRule)
 
 
 class CompositionHistory:

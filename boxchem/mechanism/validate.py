@@ -304,9 +304,12 @@ def _check_production_and_loss(mechanism: Mechanism, err) -> None:
                 produced[name] += 1
             elif c < 0:
                 lost[name] += 1
+    from .condensed import CONDENSED_PHASE_SPECIES
     for s in mechanism.species:
         if s.fixed:
             continue
+        if s.name in CONDENSED_PHASE_SPECIES and not produced[s.name] and not lost[s.name]:
+            continue   # moved by the phase equilibrium, not by reactions (mechanism/condensed.py)
         if not produced[s.name] and not lost[s.name]:
             err(f"species {s.name!r} takes part in no reaction", s.location, "warning")
         elif not produced[s.name]:

@@ -73,13 +73,16 @@ class StateSurfaces:
             uptake_state[start + j] = model is not None
         self.psc_rule = environment.psc_area if isinstance(environment.psc_area, STATE_RULES) else None
         self.ice_rule = environment.ice_area if isinstance(environment.ice_area, STATE_RULES) else None
-        on_psc = ev._surf_psc > 0
-        on_ice = ev._surf_ice > 0
+        # liquid STS droplets (environment/sts.py) grow with the box's HNO3 and H2O
+        sulfate = getattr(environment, "sulfate_area", None)
+        self.sulfate_rule = sulfate if isinstance(sulfate, STATE_RULES) else None
         state = uptake_state.copy()
         if self.psc_rule is not None:
-            state |= on_psc
+            state |= ev._surf_psc > 0
         if self.ice_rule is not None:
-            state |= on_ice
+            state |= ev._surf_ice > 0
+        if self.sulfate_rule is not None:
+            state |= ev._surf_sulfate > 0
         #: positions in the evaluator's surface columns, and the reaction columns
         self._surface_pos = np.nonzero(state)[0]
         self.columns = ev.surface_index[self._surface_pos].astype(np.int64)
@@ -91,7 +94,7 @@ class StateSurfaces:
         species = set()
         if self._needs_gamma_state:
             species |= set(SURFACE_STATE_SPECIES)
-        for rule in (self.psc_rule, self.ice_rule):
+        for rule in (self.psc_rule, self.ice_rule, self.sulfate_rule):
             if rule is not None:
                 species |= set(rule.needs)
         self.species = tuple(sorted(species))
@@ -141,8 +144,9 @@ class StateSurfaces:
                 return np.asarray(env_area, dtype=float)
             return rule(T, p, {s: x[..., j] for j, s in enumerate(self.species) if s in rule.needs})
         a_psc = rule_area(self.psc_rule, psc)
+        a_sulfate = rule_area(self.sulfate_rule, sulfate)
         a_ice = rule_area(self.ice_rule, ice)
-        return (np.asarray(a_psc)[..., None] * self._psc + np.asarray(sulfate, dtype=float)[..., None]
+        return (np.asarray(a_psc)[..., None] * self._psc + np.asarray(a_sulfate, dtype=float)[..., None]
                 * self._sulfate + np.asarray(a_ice)[..., None] * self._ice)
 
     def reference_partial_pressures(self, p) -> dict:
@@ -197,12 +201,12 @@ class StateSurfaces:
                            np.broadcast_to(ice, shape))
         return np.where(area == 0.0, 0.0, surface_uptake(T_b[..., None], gamma, self._mass, area))
 
-    def rule_areas(self, T, p, x, psc, ice):
-        """(psc area, ice area) [cm2 cm-3] from the composition x (..., n_species) where the
-        environment has a composition rule, else its own values (broadcast)."""
+    def rule_areas(self, T, p, x, psc, sulfate, ice):
+        """(psc, sulfate, ice areas) [cm2 cm-3] from the composition x (..., n_species) where
+        the environment has a composition rule, else its own values (broadcast)."""
         shape = np.asarray(x).shape[:-1]
         out = []
-        for rule, env_area in ((self.psc_rule, psc), (self.ice_rule, ice)):
+        for rule, env_area in ((self.psc_rule, psc), (self.sulfate_rule, sulfate), (self.ice_rule, ice)):
             if rule is None:
                 out.append(np.broadcast_to(np.asarray(env_area, dtype=float), shape))
             else:
@@ -320,8 +324,8 @@ class MemberSurfaceK:
         return k * self._multiplier
 
     def areas(self, y):
-        """(psc, ice) areas (..., n_out) [cm2 cm-3] the members' states give."""
+        """(psc, sulfate, ice) areas (..., n_out) [cm2 cm-3] the members' states give."""
         s = self.surfaces
         n = np.asarray(y).shape[-2]
         x = s.mole_fractions(y, self._air[:n])
-        return s.rule_areas(self._T[:n], self._p[:n], x, self._psc[:n], self._ice[:n])
+        return s.rule_areas(self._T[:n], self._p[:n], x, self._psc[:n], self._sulfate[:n], self._ice[:n])

@@ -348,12 +348,25 @@ def _failure_message(status: int, time_s: float, step_s: float, species) -> str:
             f"(step {step_s:.3g} s){where}")
 
 
+def _apply_state_map(state_map, t_s: float, y: np.ndarray, status: np.ndarray, ys: np.ndarray,
+                     out_q: int) -> None:
+    """Apply ``state_map`` at ``t_s`` to the running members of ``y`` (in place); the output
+    row ``out_q`` (when >= 0, the time ``t_s``) gets the changed state."""
+    run = np.nonzero(status == 0)[0]
+    if run.size == 0:
+        return
+    y[run] = state_map(t_s, y[run])
+    if out_q >= 0:
+        ys[run, out_q] = y[run]
+
+
 def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplier=None,
                     breakpoints_s=(), rtol: float = DEFAULT_RTOL, atol=DEFAULT_ATOL,
                     first_step: float | None = None, max_step: float = np.inf,
                     method: RosenbrockMethod = RODAS3, progress=None,
                     breakpoint_width_s: float = BREAKPOINT_WIDTH_S, on_accept=None,
-                    lu: str = "sparse", surface_feedback: str = "member") -> BatchResult:
+                    lu: str = "sparse", surface_feedback: str = "member",
+                    state_map=None) -> BatchResult:
     """Integrate a batch of members through shared output times with one compiled loop.
 
     Members share the kinetics, the k(t) tables of ``coefficients`` (a
@@ -376,13 +389,20 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     progress : callable(t_s) called after each output time
     on_accept : callable(t_s, y), single-member batches only: called with the start
         state and at every landing time (before the k(t) table of the next window and
-        the output k); windows then end on every output time and last at most
+        the output k); it may change y in place (the output at that time then holds
+        the changed state); windows then end on every output time and last at most
         FEEDBACK_INTERVAL_S, so state-dependent k (``photolysis.ozonefollow``) sees
         the state lagged by at most one window (instead of one step in the numpy
         reference loop)
     lu : "sparse" (default): the fixed-pattern sparse LU (``sparselu``) with the dense
         pivoting LU where a pivot is too small; "dense": the dense pivoting LU at every
         step (the earlier kernel; for benchmarks)
+    state_map : callable(t_s, y (n, n_variable)) -> new y [cm-3], optional: a change of
+        state applied to the running members at the start and at the end of every
+        feedback window (before the next window's surface offsets; the output at that
+        time holds the changed state) - the gas/condensed phase equilibrium of
+        ``environment/condensation.py`` (elementwise over members, so grouping does not
+        matter)
     surface_feedback : how state-dependent surfaces (``coefficients.state_surfaces``) follow
         the members' composition.  "member" (default): tables on the normal schedule with
         those columns at a reference composition, and every running member's own ln k
@@ -435,7 +455,8 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     t0, t_end = float(out[0]), float(out[-1])
     window_edges = _window_edges(coefficients, out, breaks, on_accept is not None)
     # the compiled calls: one per table window, or per feedback window with state surfaces
-    segment_edges = window_edges if surfaces is None else _feedback_edges(window_edges, out)
+    segment_edges = window_edges if surfaces is None and state_map is None else \
+        _feedback_edges(window_edges, out)
     landing = np.union1d(out, segment_edges)
     air_rate = air_dilution_rates(kinetics, coefficients, landing)
     break_set = set(breaks.tolist())
@@ -444,6 +465,8 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     ys = np.full((n_members, n_out, nv), np.nan)   # filled by the compiled loop
     ks = np.full((n_out, kinetics.n_reactions), np.nan)
     fxs = np.full((n_out, kinetics.n_fixed), np.nan)
+    if state_map is not None:
+        y[:] = state_map(t0, y)
     if on_accept is not None:
         on_accept(t0, y[0])
     ks[0], fxs[0] = coefficients(t0)
@@ -524,8 +547,13 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         if newly_failed.any():
             failure[newly_failed] = info[newly_failed]
             y[newly_failed] = np.nan
+        if state_map is not None:     # first: what the observers and the next window see
+            _apply_state_map(state_map, wb, y, status, ys, int(out_index[stop - 1]))
         if on_accept is not None and status[0] == 0:
             on_accept(wb, y[0])      # before the output k and the next window's table
+            if out_index[stop - 1] >= 0:
+                # on_accept may change the state in place: the output holds the state it left
+                ys[0, out_index[stop - 1]] = y[0]
         for q in (out_index[start:stop] if report_outputs else ()):
             if q < 0:
                 continue
@@ -580,7 +608,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
                   max_step: float = np.inf, progress=None, raise_on_failure: bool = True,
                   breakpoint_width_s: float = BREAKPOINT_WIDTH_S,
                   method: RosenbrockMethod = RODAS3, on_accept=None,
-                  compiled: bool | None = None, surface_feedback: str = "member") -> TimeLoopResult:
+                  compiled: bool | None = None, surface_feedback: str = "member",
+                  state_map=None) -> TimeLoopResult:
     """Integrate one box through ``output_times_s``: a batch of one (:func:`integrate_batch`).
 
     Parameters
@@ -607,6 +636,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
         reference loop (slow; for tests and benchmarks).
     surface_feedback : as :func:`integrate_batch` (the reference loop always observes
         the state through ``on_accept``: give it ``observe_state`` there).
+    state_map : as :func:`integrate_batch` (the reference loop applies it after every
+        accepted step, before ``on_accept``).
 
     Returns
     -------
@@ -621,6 +652,13 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
         compiled = jit_available() and hasattr(coefficients, "interval_table")
     if not compiled:
         from .reference import integrate_box_reference
+        if state_map is not None:
+            mapped, after = state_map, on_accept
+
+            def on_accept(t_s, y_state):
+                y_state[...] = mapped(t_s, y_state[None, :])[0]
+                if after is not None:
+                    after(t_s, y_state)
         if getattr(coefficients, "state_dependent", False):
             # the reference loop's state-dependent surfaces follow the state it observes
             # (after every accepted step), as the compiled loop's follow each member's state
@@ -640,7 +678,7 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
                             breakpoints_s=breakpoints_s, rtol=rtol, atol=atol, first_step=first_step,
                             max_step=max_step, method=method, progress=progress,
                             breakpoint_width_s=breakpoint_width_s, on_accept=on_accept,
-                            surface_feedback=surface_feedback)
+                            surface_feedback=surface_feedback, state_map=state_map)
     res = batch.member(0)
     if res.status != 0 and raise_on_failure:
         species = str(batch.failure_species[0]) or None
