@@ -23,6 +23,8 @@ numba the same function runs as plain Python (slow, same numbers).
 """
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 try:  # numba is a core dependency; the plain-Python path keeps the numbers without it
@@ -47,24 +49,6 @@ def _layer_integral(near, far, decay, delta, trans, mu):
 
 
 @_njit
-def _layer_source(near, far, delta, w, trans, mu, p2_mu, p2_sun, b_near, b_far, s_near, s_far,
-                  m_near, m_far, lm_near, lm_far, r_near, r_far):
-    """Source contribution of one layer of one column to the radiance leaving it at its ``near`` side."""
-    if w <= 0.0:
-        return 0.0
-    safe = delta if delta > 0.0 else 1.0
-    diffuse = _layer_integral(m_near, m_far, (lm_near - lm_far) / safe, delta, trans, mu)
-    shape = 1.0 + 0.25 * p2_mu * (r_near + r_far)
-    if (b_near > 0.0) != (b_far > 0.0):    # ray blocked by the Earth at one end only (twilight)
-        direct = 0.5 * (b_near + b_far) * (1.0 - trans)
-    elif b_near > 0.0:
-        direct = _layer_integral(b_near, b_far, (s_far - s_near) / safe, delta, trans, mu)
-    else:
-        direct = 0.0
-    return 0.5 * w * (shape * diffuse + (1.0 + 0.5 * p2_mu * p2_sun) * direct)
-
-
-@_njit
 def radiance_sweep(dtau, w0, trans_mu, beam, slant, m0, ratio2, p2_sun, mu0_pos, d_ground, albedo, mu, weight,
                    box, out_m0, out_r2, out_dground):
     """Sweep every column along every direction.
@@ -74,18 +58,35 @@ def radiance_sweep(dtau, w0, trans_mu, beam, slant, m0, ratio2, p2_sun, mu0_pos,
     ``d_ground`` (n_col,); ``mu``, ``weight`` Gauss directions and weights on
     (0, 1]; ``trans_mu`` (n_mu, n_layers, n_inner) = exp(-dtau / mu) of the
     columns' innermost n_inner (ozone x wavelength) part, which does not
-    depend on the solar zenith angle.  With ``box >= 0`` writes the diffuse actinic flux at that level
-    to ``out_m0[0]``; with ``box < 0`` writes m0, r2 of the integrated
-    radiances at every level to ``out_m0``, ``out_r2`` and the diffuse
-    downward irradiance at the ground to ``out_dground``.  Columns are the
-    innermost loop so that every layer reads contiguous memory.
+    depend on the solar zenith angle (n_col = n_sza x n_inner).  With
+    ``box >= 0`` writes the diffuse actinic flux at that level to
+    ``out_m0[0]``; with ``box < 0`` writes m0, r2 of the integrated radiances
+    at every level to ``out_m0``, ``out_r2`` and the diffuse downward
+    irradiance at the ground to ``out_dground``.  Columns are the innermost
+    loop so that every layer reads contiguous memory; the per-layer decay
+    rates of the sources (independent of direction) are computed once.
     """
     n_lay, n_col = dtau.shape
     n_inner = trans_mu.shape[2]
+    n_sza = n_col // n_inner
     m0_pos = np.maximum(m0, 1e-300)
-    log_m0 = np.log(m0_pos)
+    # decay rates [per unit optical depth] of the diffuse and beam sources from the top of
+    # each layer down (towards the bottom they change sign), and the twilight edge flag
+    decay_diffuse = np.zeros((n_lay, n_col))
+    decay_beam = np.zeros((n_lay, n_col))
+    edge = np.zeros((n_lay, n_col), dtype=np.bool_)
+    shape2 = np.zeros((n_lay, n_col))
+    for j in range(n_lay):
+        for c in range(n_col):
+            delta = dtau[j, c]
+            safe = delta if delta > 0.0 else 1.0
+            decay_diffuse[j, c] = (math.log(m0_pos[j, c]) - math.log(m0_pos[j + 1, c])) / safe
+            decay_beam[j, c] = (slant[j + 1, c] - slant[j, c]) / safe
+            edge[j, c] = (beam[j, c] > 0.0) != (beam[j + 1, c] > 0.0)
+            shape2[j, c] = 0.25 * (ratio2[j, c] + ratio2[j + 1, c])
     every = box < 0
     top_stop = 0 if every else box
+    down_stop = n_lay if every else box
     sum0 = np.zeros((n_lay + 1, n_col))
     sum2 = np.zeros((n_lay + 1, n_col))
     u = np.empty(n_col)
@@ -97,28 +98,39 @@ def radiance_sweep(dtau, w0, trans_mu, beam, slant, m0, ratio2, p2_sun, mu0_pos,
             u[c] = 2.0 * albedo * (mu0_pos[c] * beam[n_lay, c] + d_ground[c])
             sum0[n_lay, c] += wk * u[c]
             sum2[n_lay, c] += wk * p2 * u[c]
-        for j in range(n_lay - 1, top_stop - 1, -1):              # ground up: near side = top (j)
-            for c in range(n_col):
-                delta = dtau[j, c]
-                trans = trans_mu[k, j, c % n_inner]
-                u[c] = u[c] * trans + _layer_source(j, j + 1, delta, w0[j, c], trans, m, p2, p2_sun[c],
-                                                    beam[j, c], beam[j + 1, c], slant[j, c], slant[j + 1, c],
-                                                    m0_pos[j, c], m0_pos[j + 1, c], log_m0[j, c],
-                                                    log_m0[j + 1, c], ratio2[j, c], ratio2[j + 1, c])
-                sum0[j, c] += wk * u[c]
-                sum2[j, c] += wk * p2 * u[c]
-        u[:] = 0.0
-        stop = n_lay if every else box
-        for j in range(0, stop):                                  # top down: near side = bottom (j + 1)
-            for c in range(n_col):
-                delta = dtau[j, c]
-                trans = trans_mu[k, j, c % n_inner]
-                u[c] = u[c] * trans + _layer_source(j + 1, j, delta, w0[j, c], trans, m, p2, p2_sun[c],
-                                                    beam[j + 1, c], beam[j, c], slant[j + 1, c], slant[j, c],
-                                                    m0_pos[j + 1, c], m0_pos[j, c], log_m0[j + 1, c],
-                                                    log_m0[j, c], ratio2[j + 1, c], ratio2[j, c])
-                sum0[j + 1, c] += wk * u[c]
-                sum2[j + 1, c] += wk * p2 * u[c]
+        for direction in range(2):                              # 0: ground up, 1: top down
+            if direction == 1:
+                u[:] = 0.0
+            n_steps = (n_lay - top_stop) if direction == 0 else down_stop
+            for step in range(n_steps):
+                j = n_lay - 1 - step if direction == 0 else step
+                sign = 1.0 if direction == 0 else -1.0
+                near = j if direction == 0 else j + 1
+                far = j + 1 if direction == 0 else j
+                level = j if direction == 0 else j + 1
+                for isza in range(n_sza):
+                    phase = 1.0 + 0.5 * p2 * p2_sun[isza * n_inner]
+                    for inner in range(n_inner):
+                        c = isza * n_inner + inner
+                        trans = trans_mu[k, j, inner]
+                        w = w0[j, c]
+                        source = 0.0
+                        if w > 0.0:
+                            delta = dtau[j, c]
+                            diffuse = _layer_integral(m0_pos[near, c], m0_pos[far, c], sign * decay_diffuse[j, c],
+                                                      delta, trans, m)
+                            b_near = beam[near, c]
+                            if edge[j, c]:                     # ray blocked by the Earth at one end only
+                                direct = 0.5 * (b_near + beam[far, c]) * (1.0 - trans)
+                            elif b_near > 0.0:
+                                direct = _layer_integral(b_near, beam[far, c], sign * decay_beam[j, c], delta,
+                                                         trans, m)
+                            else:
+                                direct = 0.0
+                            source = 0.5 * w * ((1.0 + p2 * shape2[j, c]) * diffuse + phase * direct)
+                        u[c] = u[c] * trans + source
+                        sum0[level, c] += wk * u[c]
+                        sum2[level, c] += wk * p2 * u[c]
         if every:
             for c in range(n_col):
                 out_dground[c] += wk * m * u[c]
