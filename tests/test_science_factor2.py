@@ -57,16 +57,33 @@ def _jpl_falloff(T, M, k0_300, n, kinf_300, m):
 @pytest.mark.parametrize("T", [200.0, 230.0, 298.0])
 def test_cl_o3_against_jpl(evaluator, mech, T):
     # JPL 19-5 Table 1A: Cl + O3, A = 2.3e-11, E/R = 200 K, f298 = 1.15, g = 100
-    # (recalled from memory; the IUPAC expression differs by < 15 % here)
+    # (recalled from memory: searches for the JPL 19-5 / IUPAC table rows returned only the
+    # documents' title pages; the IUPAC expression differs by < 15 % here, recalled)
     ref = 2.3e-11 * math.exp(-200.0 / T)
     ratio = _k(evaluator, mech, "cl_o3", T) / ref
     assert 1 / _uncertainty(1.15, 100, T) < ratio < _uncertainty(1.15, 100, T)
 
 
+@pytest.mark.parametrize("T", [184.0, 200.0, 250.0, 298.0])
+def test_cl_o3_against_beach_2002_measurement(evaluator, mech, T):
+    # Found by search: Beach, Smith and Tuckett (2002), "Rate constants for the reaction of Cl atoms
+    # with O3 at temperatures from 298 to 184 K", Int. J. Chem. Kinet. 34, 104-109,
+    # doi:10.1002/kin.10033 (abstract, eprints.bham.ac.uk/752): k = (3.6 +- 0.7)e-11
+    # exp(-(310 +- 50)/T) cm3 s-1 over 184-298 K, "approximately 15 % lower than ... currently
+    # recommended rate expressions at the lowest temperatures".  The model (the evaluation's
+    # expression) must lie within 25 % of the measurement (the stated A uncertainty, ~20 %, plus
+    # that 15 %); a factor 2 fails.
+    measured = 3.6e-11 * math.exp(-310.0 / T)
+    assert 1 / 1.25 < _k(evaluator, mech, "cl_o3", T) / measured < 1.25
+
+
 @pytest.mark.parametrize("T, p_hPa", [(190.0, 50.0), (200.0, 30.0), (220.0, 100.0)])
 def test_clo_clo_m_against_jpl(evaluator, mech, T, p_hPa):
     # JPL 19-5 Table 2: ClO + ClO + M -> Cl2O2 + M, k0 = 1.9e-32 (n = 3.6), kinf = 3.7e-12
-    # (m = 1.6), f298 = 1.15 (recalled from memory)
+    # (m = 1.6), f298 = 1.15 (recalled from memory).  Searched (2026-12) for the JPL 19-5 / 00-3 /
+    # 97-4 table rows and the IUPAC datasheet: only title pages and primary measurements were
+    # returned (Cox and Hayman 1988, Nature 332, 796: low-pressure k = 6.0e-32 (T/300)^-2.1 at
+    # 268-338 K, a superseded measurement; von Hobe et al. 2007, ACP 7, 3055, abstract without values)
     M = air_number_density(p_hPa * 100.0, T)
     ref = _jpl_falloff(T, M, 1.9e-32, 3.6, 3.7e-12, 1.6)
     ratio = _k(evaluator, mech, "clo_clo_m", T, p_hPa * 100.0) / ref
@@ -75,7 +92,8 @@ def test_clo_clo_m_against_jpl(evaluator, mech, T, p_hPa):
 
 @pytest.mark.parametrize("T", [190.0, 220.0, 298.0])
 def test_clo_bro_against_jpl(evaluator, mech, T):
-    # JPL 19-5 Table 1A, ClO + BrO channels (recalled from memory), f298 = 1.2, g = 100 each:
+    # JPL 19-5 Table 1A, ClO + BrO channels (recalled from memory; searched 2026-12 for the JPL and
+    # IUPAC rows without finding their text), f298 = 1.2, g = 100 each:
     # -> Br + OClO 9.5e-13 exp(550/T); -> Br + ClOO 2.3e-12 exp(260/T); -> BrCl + O2 4.1e-13 exp(290/T)
     refs = {"clo_bro_a": 9.5e-13 * math.exp(550 / T), "clo_bro_b": 2.3e-12 * math.exp(260 / T),
             "clo_bro_c": 4.1e-13 * math.exp(290 / T)}
@@ -86,8 +104,12 @@ def test_clo_bro_against_jpl(evaluator, mech, T):
 
 # ---------------------------------------------------------------- cross sections and J
 def test_o3_cross_section_hg_line():
-    # O3 absorption at the mercury line 253.65 nm: 1.13e-17 cm2 at room temperature
-    # (the reference value of UV ozone photometry, Hearn 1961 / BIPM-ISO 13964; recalled from memory)
+    # O3 absorption at the mercury line 253.65 nm: 1.13e-17 cm2 at room temperature.  Found by
+    # search: Hodges et al. (2019), "Recommendation of a consensus value of the ozone absorption
+    # cross-section at 253.65 nm based on a literature review", Metrologia 56, 034001 (HAL
+    # hal-02126253), and Sofen et al. (2015), ACPD 15, 13627, doi:10.5194/acpd-15-13627-2015, whose
+    # abstract states that the re-evaluated value (Viallon et al. 2015) is 1.8 % below Hearn (1961).
+    # Hearn's 1.147e-17 cm2 and the consensus 1.1329e-17 cm2 themselves are recalled from memory.
     from boxchem.photolysis.crosssections import cross_section_data
     sigma = float(np.asarray(cross_section_data("O3")(np.array([253.65]), 295.0)).ravel()[0])
     assert sigma == pytest.approx(1.13e-17, rel=0.05, abs=0)   # abs=0: approx defaults to abs 1e-12
@@ -99,6 +121,18 @@ def test_o3_cross_section_huggins_band():
     from boxchem.photolysis.crosssections import cross_section_data
     sigma = float(np.asarray(cross_section_data("O3")(np.array([310.0]), 295.0)).ravel()[0])
     assert 1e-19 / 1.3 < sigma < 1e-19 * 1.3
+
+
+def test_cl2o2_cross_section_peak_against_measurements():
+    # Found by search: the Cl2O2 band peaks near 245 nm at (6.5 +0.8/-0.5)e-18 cm2 ("Ultraviolet
+    # absorption cross sections of chlorine oxide (Cl2O2) between 210 and 410 nm", abstract found;
+    # authors and journal recalled: Burkholder, Orlando and Howard 1990, J. Phys. Chem. 94, 687) and at 7.6e-18 cm2 near 244.5 nm with 5-10 % (2 sigma)
+    # uncertainty (Papanastasiou et al. 2009, J. Phys. Chem. A 113, 13711, Sect. 3.3-3.4).  The
+    # shipped table (6.5e-18, recalled) sits on the first and 14 % below the second; it must lie
+    # in the range the two span with their uncertainties.  A factor 2 in sigma fails.
+    from boxchem.photolysis.crosssections import cross_section_data
+    sigma = float(np.asarray(cross_section_data("Cl2O2")(np.array([245.0]), 205.0)).ravel()[0])
+    assert 6.0e-18 <= sigma <= 7.6e-18 * 1.1
 
 
 def _photolysis(mech, albedo=0.3, altitude_m=20000.0):
@@ -128,18 +162,24 @@ def test_j_cl2o2_equals_its_spectral_integral(mech):
 
 
 def test_j_no2_against_balloon_measurement(mech):
-    # J(NO2) = 1.05e-2 s-1 measured at about 24 km with the sun high (Madronich, Hastie, Ridley,
-    # Schiff, J. Atmos. Chem. 3, 233-245, 1985; value as quoted in issue 11).  Stated measurement
-    # uncertainty about 10 % (recalled); the model's albedo-0 value must lie within 25 % of it.
+    # "High Sun values of JNO2 measured were 10.5 +- 0.3 and 10.3 +- 0.3 x 10-3 s-1 at 24 and 32 km"
+    # (Madronich, Hastie, Schiff, Ridley 1985, "Measurement of the photodissociation coefficient of
+    # NO2 in the atmosphere: II, stratospheric measurements", J. Atmos. Chem. 3, 233-245,
+    # doi:10.1007/BF00210498; abstract found by search).  The model (SZA 30 deg, 300 DU, 220 K,
+    # albedo 0: light scattered up by the air below the box only) gives 1.30e-2, 24 % above the
+    # measurement - outside its stated +-0.3e-3, see docs/photolysis.md for what was checked.  The
+    # band (within 30 %) catches a factor-2 error in the NO2 cross section, the solar flux or the
+    # diffuse light; it is not a claim of agreement.
     phot = _photolysis(mech, albedo=0.0, altitude_m=24000.0)
     i = mech.reaction_ids.index("j_no2")
     j = float(np.asarray(phot(np.array([30.0]), 300.0, 220.0, 1.0)).reshape(-1, len(mech.reactions))[0, i])
-    assert 1.05e-2 / 1.25 < j < 1.05e-2 * 1.25
+    assert 1.05e-2 / 1.3 < j < 1.05e-2 * 1.3
 
 
 # ---------------------------------------------------------------- gammas
 def test_nat_gammas_against_jpl(evaluator, mech):
-    # JPL 19-5 Table 5, NAT (recalled from memory): ClONO2 + HCl 0.2, ClONO2 + H2O 0.004,
+    # JPL 19-5 Table 5, NAT (recalled from memory; searched 2026-12 for the Table 5 rows and
+    # found only laboratory abstracts without the recommended values): ClONO2 + HCl 0.2, ClONO2 + H2O 0.004,
     # HOCl + HCl 0.1, N2O5 + H2O 4e-4, N2O5 + HCl 3e-3; BrONO2 on "psc": the ice value 0.3
     ref = {"het_clono2_hcl_psc": 0.2, "het_clono2_h2o_psc": 0.004, "het_hocl_hcl_psc": 0.1,
            "het_n2o5_h2o_psc": 4e-4, "het_n2o5_hcl_psc": 3e-3, "het_brono2_h2o_psc": 0.3,
@@ -154,7 +194,9 @@ def test_nat_gammas_against_jpl(evaluator, mech):
 @pytest.mark.parametrize("T", [192.0, 196.0, 200.0, 210.0])
 def test_sulfate_gammas_are_the_published_parameterizations(evaluator, mech, T):
     # the shipped sulfate lines use Shi et al. (2001) / Hanson (2003) as JPL 19-5 recommends, and
-    # N2O5 + H2O = 0.1 (JPL 19-5 Table 5, recalled): model gamma vs the parameterization itself
+    # N2O5 + H2O = 0.1 (JPL 19-5 Table 5, recalled): model gamma vs the parameterization itself.
+    # Searched 2026-12 for the Shi et al. (2001) text: not found (the related Hanson 1998, J. Phys.
+    # Chem. A 102, 4794 abstract was, without tabulated gammas); the tabulated values stay recalled.
     p = 5000.0
     pp = {"H2O": 5e-6 * p, "HCl": 1.5e-9 * p, "ClONO2": 0.5e-9 * p}
     ref = liquid_gammas(T, pp["H2O"], pp["HCl"], pp["ClONO2"], 1e-5)

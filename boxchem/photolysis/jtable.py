@@ -18,6 +18,7 @@ magnitude; J is exactly zero at and beyond the horizon.
 from __future__ import annotations
 
 import bisect
+import functools
 
 import numpy as np
 
@@ -158,6 +159,20 @@ class JTable:
         return np.where(lit[..., None], j, 0.0)
 
 
+@functools.lru_cache(maxsize=16)
+def _cached_flux_grid(sza, altitude_m, ozone, albedo, edges, ozone_profile):
+    """The actinic flux grid of a J table, computed once per process for the same inputs.
+
+    The flux does not depend on the mechanism, so runs of one place (an
+    ensemble's setup groups, repeated runs, tests) share it; read-only array.
+    """
+    from .actinic import flux_grid
+    flux = flux_grid(np.asarray(sza), altitude_m, np.asarray(ozone), albedo=albedo,
+                     wavelength_edges_nm=None if edges is None else np.asarray(edges), ozone_profile=ozone_profile)
+    flux.setflags(write=False)
+    return flux
+
+
 def build_jtable(reactions, *, altitude_m, albedo, temperature_grid=None, ozone_grid_DU=None,
                  sza_grid_deg=None, wavelength_edges_nm=None, cross_sections=None,
                  quantum_yields=None, ozone_profile="midlatitude"):
@@ -169,7 +184,6 @@ def build_jtable(reactions, *, altitude_m, albedo, temperature_grid=None, ozone_
     run never falls back silently.
     """
     from ..environment.solar import horizon_zenith_angle
-    from .actinic import flux_grid
     from .spectrum import model_wavelength_edges
 
     horizon = float(horizon_zenith_angle(float(altitude_m)))
@@ -191,7 +205,9 @@ def build_jtable(reactions, *, altitude_m, albedo, temperature_grid=None, ozone_
         ids.append(r.id)
         if note:
             notes[r.id] = note
-    flux = flux_grid(sza, altitude_m, ozone, albedo=albedo, wavelength_edges_nm=wavelength_edges_nm,
-                     ozone_profile=ozone_profile)
+    flux = _cached_flux_grid(tuple(sza.tolist()), float(altitude_m), tuple(ozone.tolist()), float(albedo),
+                             None if wavelength_edges_nm is None else tuple(np.asarray(wavelength_edges_nm,
+                                                                                       float).tolist()),
+                             ozone_profile)
     j = integrate_j(flux, spectral_product(data, edges, temps), edges)   # (n_sza, n_oz, n_T, n_r)
     return JTable(sza, ozone, temps, j, horizon, ids), notes
