@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import json
+import os
 import time as _time
 from dataclasses import dataclass
 from pathlib import Path
@@ -323,6 +324,9 @@ def assemble_dataset(*, mechanism, scenario: Scenario, times_s: np.ndarray,
         "wall_time_s": float(wall_time_s),
         "date_created": _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ"),
     }
+    if os.environ.get("BOXCHEM_BENCH_FROZEN_STATE", "") == "1":
+        attrs["benchmark_frozen_state"] = ("BOXCHEM_BENCH_FROZEN_STATE=1: state-dependent surfaces "
+                                           "and J held at the start composition (benchmarks only)")
     for name, value in counters.items():
         attrs[f"solver_{name}"] = int(value)
     attrs["history"] = f"{attrs['date_created']}: created by boxchem {__version__} run"
@@ -463,6 +467,10 @@ def state_observer(setup: RunSetup):
     The ozone column following the box (``photolysis.observe``) and state-dependent
     surfaces (``coefficients.observe_state``, docs/heterogeneous.md).
     """
+    if os.environ.get("BOXCHEM_BENCH_FROZEN_STATE", "") == "1":
+        # benchmarks only (benchmarks/bench_ensemble.py): state-dependent surfaces and J stay
+        # at the start composition, so shipped scenarios batch before batched state feedback lands
+        return None
     observers = [getattr(setup.photolysis, "observe", None)]
     if getattr(setup.coefficients, "state_dependent", False):
         observers.append(setup.coefficients.observe_state)

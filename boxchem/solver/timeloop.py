@@ -446,7 +446,9 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
 
     if policy == "lock-step":
         from .lockstep import advance_lockstep as kernel
-        groups = [(a, min(a + group, n_members)) for a in range(0, n_members, group)]
+        # balanced consecutive groups of at most ``group`` members (40 members: 20 + 20, not 32 + 8)
+        edges = np.linspace(0, n_members, -(-n_members // group) + 1).round().astype(int)
+        groups = list(zip(edges[:-1].tolist(), edges[1:].tolist()))
     else:
         kernel = cm.advance_batch
         groups = [(0, n_members)]
