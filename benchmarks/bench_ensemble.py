@@ -11,6 +11,9 @@ Prints, measured in this run:
   is extrapolated linearly to the ensemble size (each single run is
   independent, so the cost per member is constant); the ratio is the
   engine's throughput per core over the single-run throughput;
+* CPU seconds of the ensemble summed over this process and its workers, and
+  "per CPU s" = the single runs' CPU time (extrapolated) over it: the
+  throughput per core that the machine's load does not change;
 * accuracy: the measured single runs against the same members of the
   ensemble (O3 maximum relative difference; ClO maximum difference over its
   peak) at every output time.
@@ -38,6 +41,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
 import tempfile
 import threading
 import time
@@ -101,6 +105,12 @@ class PeakMemory:
         self.peak_mb = max(self.peak_mb, process_tree_rss_mb(os.getpid()))
 
 
+def cpu_seconds() -> float:
+    """CPU time [s] of this process and of its finished (waited-for) worker processes."""
+    own, children = resource.getrusage(resource.RUSAGE_SELF), resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime + children.ru_utime + children.ru_stime
+
+
 def member_table(scenario, n: int) -> dict[str, np.ndarray]:
     rng = np.random.default_rng(SEED)
     ids = scenario.mechanism.reaction_ids
@@ -111,11 +121,11 @@ def member_table(scenario, n: int) -> dict[str, np.ndarray]:
 def run_ensemble(scenario, members, workers: int, batch_size: int, folder: Path, policy: str):
     out = folder / f"bench-{len(next(iter(members.values())))}-{workers}-{policy}.nc"
     with PeakMemory() as mem:
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), cpu_seconds()
         ds = boxchem.ensemble(scenario, members, output=out, workers=workers, batch_size=batch_size,
                               save=["mole_fraction"], step_policy=policy)
-        wall = time.perf_counter() - t0
-    return ds, wall, mem.peak_mb, out
+        wall, cpu = time.perf_counter() - t0, cpu_seconds() - c0
+    return ds, wall, cpu, mem.peak_mb, out
 
 
 def main() -> None:
@@ -157,23 +167,25 @@ def main() -> None:
 
     # baseline: single runs one after another in this process
     single_ds = []
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), cpu_seconds()
     for i in range(args.singles):
         scale = {k.split(".", 1)[1]: float(v[i]) for k, v in largest.items()}
         single_ds.append(boxchem.run(scenario, scale=scale))
     t_single = (time.perf_counter() - t0) / args.singles
-    print(f"single runs: {args.singles} measured, {t_single:.2f} s each (setup included), "
-          f"extrapolated to N members as N x {t_single:.2f} s")
+    c_single = (cpu_seconds() - c0) / args.singles
+    print(f"single runs: {args.singles} measured, {t_single:.2f} s each (setup included; CPU "
+          f"{c_single:.2f} s), extrapolated to N members as N x {t_single:.2f} s")
 
     print(f"\n{'policy':>10} {'members':>8} {'workers':>7} {'wall s':>8} {'members/s':>10} "
-          f"{'peak RSS MB':>12} {'singles s (extrap.)':>20} {'speed-up':>9} {'per core':>9} {'load':>5}")
+          f"{'peak RSS MB':>12} {'singles s (extrap.)':>20} {'speed-up':>9} {'per core':>9} {'load':>5} "
+          f"{'CPU s':>7} {'per CPU s':>9}")
     walls = {}
     with tempfile.TemporaryDirectory(prefix="bench-ensemble-") as tmp:
         for policy in policies:
             for n in sizes:
                 members = {k: v[:n] for k, v in largest.items()}
                 for w in worker_counts:
-                    ds, wall, peak, out = run_ensemble(scenario, members, w, args.batch_size, Path(tmp),
+                    ds, wall, cpu, peak, out = run_ensemble(scenario, members, w, args.batch_size, Path(tmp),
                                                        policy)
                     walls[policy, n, w] = wall
                     ok = int((ds["member_status"] == 1).sum())
@@ -181,7 +193,8 @@ def main() -> None:
                     speedup = n * t_single / wall
                     print(f"{policy:>10} {n:>8} {w:>7} {wall:>8.1f} {rate:>10.2f} {peak:>12.0f} "
                           f"{n * t_single:>20.1f} {speedup:>8.1f}x {speedup / w:>8.1f}x "
-                          f"{os.getloadavg()[0]:>5.1f}" + ("" if ok == n else f"  ({n - ok} failed)"),
+                          f"{os.getloadavg()[0]:>5.1f} {cpu:>7.1f} {n * c_single / cpu:>8.1f}x"
+                          + ("" if ok == n else f"  ({n - ok} failed)"),
                           flush=True)
                     if n == max(sizes) and w == max(worker_counts):
                         size_mb = out.stat().st_size / 2**20
