@@ -156,7 +156,7 @@ def test_engine_runs_lockstep_batches_the_same_on_every_back_end(monkeypatch, tm
     rng = np.random.default_rng(7)
     from boxchem.scenario import load_scenario
     scn = load_scenario("polar-spring").with_overrides(
-        **{"run.duration": "2 d", "run.start": "2026-09-10T00:00:00Z"})
+        **{"run.duration": "1 d", "run.start": "2026-09-10T00:00:00Z"})
     ids = scn.mechanism.reaction_ids
     factors = rng.lognormal(0.0, 0.3, size=(8, len(ids)))
     members = {f"scale.{rid}": factors[:, j] for j, rid in enumerate(ids)}
