@@ -157,7 +157,16 @@ class LocalWorkers:
                         break
                 while queue and (idle or len(self.workers) < self.n):
                     worker = idle.pop() if idle else self._spawn(env)
-                    worker.submit(queue.popleft())
+                    task = queue.popleft()
+                    try:
+                        worker.submit(task)
+                    except OSError:
+                        # it died before it read the batch (broken pipe): the same fault as
+                        # dying while running it
+                        note = worker.death_note()
+                        self._discard(worker)
+                        yield task, BatchFault(f"{note} before it received this member's batch")
+                        continue
                     busy[worker.recv_conn.fileno()] = worker
                 if not busy:
                     if not queue:
