@@ -486,8 +486,9 @@ def _policy_note(step_policy: str, batch_size: int) -> str:
             f"{LOCKSTEP_GROUP} share one step size")
     return {"per-member": "per-member: each member its own step size",
             "lock-step": lock,
-            "auto": f"auto: {lock} (batches of at least {LOCKSTEP_MIN_MEMBERS} members without "
-                    f"state feedback), else per-member"}[step_policy]
+            "auto": f"auto: {lock} (batches of at least {LOCKSTEP_MIN_MEMBERS} members), else "
+                    f"per-member"}[step_policy] + (
+        "; members whose surfaces or J follow their own state run one at a time (per-member)")
 
 
 def _progress(progress, total: int, done: int):

@@ -397,6 +397,8 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     group = LOCKSTEP_GROUP if lockstep_group is None else int(lockstep_group)
     if group < 1:
         raise ValueError(f"lockstep_group: expected at least 1 member, got {lockstep_group!r}")
+    if n_members == 1 or group == 1:
+        policy = "per-member"    # a group of one steps on its own error norm: the per-member kernel
     if lu not in ("sparse", "dense"):
         raise ValueError(f"lu: expected 'sparse' or 'dense', got {lu!r}")
     if not hasattr(coefficients, "interval_table"):
