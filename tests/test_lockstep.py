@@ -176,3 +176,25 @@ def test_engine_runs_lockstep_batches_the_same_on_every_back_end(monkeypatch, tm
     workers.close()
     with pytest.raises(boxchem.BoxchemError, match="step_policy: expected one of"):
         boxchem.ensemble(scn, members, step_policy="together")
+
+
+def test_ensemble_command_takes_the_step_policy(tmp_path, capsys):
+    # the runner_chain test scenario (no state feedback): 8 members batch in lock step with
+    # --step-policy lock-step, and the file says so; a wrong value is refused by name
+    from pathlib import Path
+
+    from boxchem.cli import main
+    from boxchem.io import memberfile as mf
+    chain = Path(__file__).parent / "data" / "runner_chain.toml"
+    table = tmp_path / "m.csv"
+    table.write_text("scale.a_to_b\n" + "\n".join(str(0.5 + 0.25 * i) for i in range(8)) + "\n")
+    out = tmp_path / "m.nc"
+    rc = main(["ensemble", str(chain), "--members", str(table), "-o", str(out), "--step-policy",
+               "lock-step", "-q"])
+    assert rc == 0
+    ds = mf.open_member_file(out, load=True)
+    assert ds.attrs["boxchem_step_policy"].startswith("lock-step")
+    assert ds["member_status"].values.tolist() == [1] * 8
+    with pytest.raises(SystemExit):
+        main(["ensemble", str(chain), "--members", str(table), "--step-policy", "together"])
+    assert "invalid choice: 'together'" in capsys.readouterr().err
