@@ -513,7 +513,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                        settings={"method": method.name, "rtol": rtol, "atol": atol_setting,
                                  "compiled": True,
                                  "step_control": ("per member" if policy == "per-member" else
-                                                  f"lock-step in groups of {group} members"),
+                                                  f"lock-step in groups of at most {group} members"),
                                  "lu": (f"sparse, fixed pattern ({structure.order_name} order, "
                                         f"{structure.nnz} non-zeros, {structure.operations} "
                                         f"multiply-adds), dense pivoting fallback")
