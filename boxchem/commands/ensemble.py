@@ -58,7 +58,7 @@ def add_engine_options(p, *, default_output: str) -> None:
     p.add_argument("--step-policy", choices=("auto", "lock-step", "per-member"), default="auto",
                    help="step-size control of a batch: lock-step groups share one step size "
                         "(faster), per-member gives each member its own (results independent of "
-                        "the batch); auto: lock-step for batches of 8 or more (docs/ensembles.md)")
+                        "the batch); auto (default): lock-step for batches of 8 or more (docs/ensembles.md)")
     p.add_argument("--member-time-limit", type=float, default=None, metavar="SECONDS",
                    help="wall-clock limit per member; a member over it is stopped and recorded failed")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress and no summary")
