@@ -11,21 +11,33 @@ Prints, measured in this run:
   is extrapolated linearly to the ensemble size (each single run is
   independent, so the cost per member is constant); the ratio is the
   engine's throughput per core over the single-run throughput;
+* CPU seconds of the ensemble summed over this process and its workers, and
+  "per CPU s" = the single runs' CPU time (extrapolated) over it: the
+  throughput per core that the machine's load does not change;
 * accuracy: the measured single runs against the same members of the
   ensemble (O3 maximum relative difference; ClO maximum difference over its
   peak) at every output time.
 
 Multipliers: f = exp(N(0, 0.2)) on every reaction, independently per member
 (invented spread, seeded).  Not a test: the machine is shared and timings
-vary with its load.
+vary with its load (the load average is printed with the figures).
+
+Step-size policies (``--policy``, comma list): each is measured in the same run
+(``integrate_batch(step_policy=...)``: "lock-step" groups share one step size,
+"per-member" each member its own; "auto" is the engine's default).
+
+State feedback: the shipped scenarios have state-dependent surfaces and the
+NAT/ice phase equilibrium; members batch with each member's own surface k
+(solver/statesurfaces.py), for the ensemble and the single runs alike.
 
 Usage: python benchmarks/bench_ensemble.py [--quick] [--days 30] [--sizes 64,256,1000]
-       [--workers 1,2] [--singles 8] [--batch-size 32]
+       [--workers 1,2] [--singles 8] [--batch-size 32] [--policy lock-step,per-member]
 """
 from __future__ import annotations
 
 import argparse
 import os
+import resource
 import tempfile
 import threading
 import time
@@ -89,6 +101,12 @@ class PeakMemory:
         self.peak_mb = max(self.peak_mb, process_tree_rss_mb(os.getpid()))
 
 
+def cpu_seconds() -> float:
+    """CPU time [s] of this process and of its finished (waited-for) worker processes."""
+    own, children = resource.getrusage(resource.RUSAGE_SELF), resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime + children.ru_utime + children.ru_stime
+
+
 def member_table(scenario, n: int) -> dict[str, np.ndarray]:
     rng = np.random.default_rng(SEED)
     ids = scenario.mechanism.reaction_ids
@@ -96,14 +114,14 @@ def member_table(scenario, n: int) -> dict[str, np.ndarray]:
     return {f"scale.{rid}": factors[:, j] for j, rid in enumerate(ids)}
 
 
-def run_ensemble(scenario, members, workers: int, batch_size: int, folder: Path):
-    out = folder / f"bench-{len(next(iter(members.values())))}-{workers}.nc"
+def run_ensemble(scenario, members, workers: int, batch_size: int, folder: Path, policy: str):
+    out = folder / f"bench-{len(next(iter(members.values())))}-{workers}-{policy}.nc"
     with PeakMemory() as mem:
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), cpu_seconds()
         ds = boxchem.ensemble(scenario, members, output=out, workers=workers, batch_size=batch_size,
-                              save=["mole_fraction"])
-        wall = time.perf_counter() - t0
-    return ds, wall, mem.peak_mb, out
+                              save=["mole_fraction"], step_policy=policy)
+        wall, cpu = time.perf_counter() - t0, cpu_seconds() - c0
+    return ds, wall, cpu, mem.peak_mb, out
 
 
 def main() -> None:
@@ -114,7 +132,10 @@ def main() -> None:
     parser.add_argument("--workers", default="1,2")
     parser.add_argument("--singles", type=int, default=8)
     parser.add_argument("--batch-size", type=int, default=32)
+    parser.add_argument("--policy", default="lock-step,per-member",
+                        help="step-size policies to measure (comma list of auto, lock-step, per-member)")
     args = parser.parse_args()
+    policies = [p.strip() for p in args.policy.split(",") if p.strip()]
     if args.quick:
         args.days, args.sizes, args.singles = 10.0, "16,64", 3
     sizes = [int(s) for s in args.sizes.split(",")]
@@ -123,57 +144,79 @@ def main() -> None:
     largest = member_table(scenario, max(sizes))
     print(f"polar-spring, {args.days:g} days, {len(scenario.mechanism.reactions)} reactions each with "
           f"f = exp(N(0, {SIGMA_LN_F})) per member; batch size {args.batch_size}; "
-          f"{os.cpu_count()} cores; load average {os.getloadavg()[0]:.1f}")
+          f"{os.cpu_count()} cores; load average {os.getloadavg()[0]:.1f}; state feedback on")
 
     # warm-up: numba compilation (or loading its cache) is a once-per-checkout cost, not the
     # engine's; done in this process and in worker processes (which load the cache it leaves)
     short = scenario.with_overrides(**{"run.duration": "1 d"})
-    boxchem.ensemble(short, {k: v[:2] for k, v in largest.items()}, save=["mole_fraction"])
-    if max(worker_counts) > 1:
+    for policy in policies:
         boxchem.ensemble(short, {k: v[:2] for k, v in largest.items()}, save=["mole_fraction"],
-                         workers=2, batch_size=1)
+                         step_policy=policy)
+        if max(worker_counts) > 1:
+            boxchem.ensemble(short, {k: v[:2] for k, v in largest.items()}, save=["mole_fraction"],
+                             workers=2, batch_size=1, step_policy=policy)
 
     # baseline: single runs one after another in this process
     single_ds = []
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), cpu_seconds()
     for i in range(args.singles):
         scale = {k.split(".", 1)[1]: float(v[i]) for k, v in largest.items()}
-        single_ds.append(boxchem.run(scenario, scale=scale))
+        try:
+            single_ds.append(boxchem.run(scenario, scale=scale))
+        except boxchem.BoxchemError as exc:     # reported; the ensemble records it as well
+            print(f"single run {i} failed: {exc}")
+            single_ds.append(None)
     t_single = (time.perf_counter() - t0) / args.singles
-    print(f"single runs: {args.singles} measured, {t_single:.2f} s each (setup included), "
-          f"extrapolated to N members as N x {t_single:.2f} s")
+    c_single = (cpu_seconds() - c0) / args.singles
+    print(f"single runs: {args.singles} measured, {t_single:.2f} s each (setup included; CPU "
+          f"{c_single:.2f} s), extrapolated to N members as N x {t_single:.2f} s")
 
-    print(f"\n{'members':>8} {'workers':>7} {'wall s':>8} {'members/s':>10} {'peak RSS MB':>12} "
-          f"{'singles s (extrap.)':>20} {'speed-up':>9} {'per core':>9}")
-    results = {}
+    print(f"\n{'policy':>10} {'members':>8} {'workers':>7} {'wall s':>8} {'members/s':>10} "
+          f"{'peak RSS MB':>12} {'singles s (extrap.)':>20} {'speed-up':>9} {'per core':>9} {'load':>5} "
+          f"{'CPU s':>7} {'per CPU s':>9}")
+    walls = {}
     with tempfile.TemporaryDirectory(prefix="bench-ensemble-") as tmp:
-        for n in sizes:
-            members = {k: v[:n] for k, v in largest.items()}
-            for w in worker_counts:
-                ds, wall, peak, out = run_ensemble(scenario, members, w, args.batch_size, Path(tmp))
-                ok = int((ds["member_status"] == 1).sum())
-                rate = n / wall
-                speedup = n * t_single / wall
-                print(f"{n:>8} {w:>7} {wall:>8.1f} {rate:>10.2f} {peak:>12.0f} {n * t_single:>20.1f} "
-                      f"{speedup:>8.1f}x {speedup / w:>8.1f}x" + ("" if ok == n else f"  ({n - ok} failed)"))
-                if n == max(sizes) and w == max(worker_counts):
-                    results["ds"] = ds
-                    results["size_mb"] = out.stat().st_size / 2**20
-                else:
+        for policy in policies:
+            for n in sizes:
+                members = {k: v[:n] for k, v in largest.items()}
+                for w in worker_counts:
+                    ds, wall, cpu, peak, out = run_ensemble(scenario, members, w, args.batch_size, Path(tmp),
+                                                       policy)
+                    walls[policy, n, w] = wall
+                    ok = int((ds["member_status"] == 1).sum())
+                    rate = n / wall
+                    speedup = n * t_single / wall
+                    print(f"{policy:>10} {n:>8} {w:>7} {wall:>8.1f} {rate:>10.2f} {peak:>12.0f} "
+                          f"{n * t_single:>20.1f} {speedup:>8.1f}x {speedup / w:>8.1f}x "
+                          f"{os.getloadavg()[0]:>5.1f} {cpu:>7.1f} {n * c_single / cpu:>8.1f}x"
+                          + ("" if ok == n else f"  ({n - ok} failed)"),
+                          flush=True)
+                    if n == max(sizes) and w == max(worker_counts):
+                        size_mb = out.stat().st_size / 2**20
+                        o3_err, clo_err = [], []
+                        for i, single in enumerate(single_ds):
+                            if single is None:
+                                continue
+                            member = ds["mole_fraction"].isel(member=i)
+                            o3s = single["mole_fraction"].sel(species="O3").values
+                            o3m = member.sel(species="O3").values
+                            clos = single["mole_fraction"].sel(species="ClO").values
+                            clom = member.sel(species="ClO").values
+                            o3_err.append(np.max(np.abs(o3m - o3s) / o3s))
+                            clo_err.append(np.max(np.abs(clom - clos)) / np.max(clos))
+                        accuracy = (f"{len(o3_err)} members vs single runs, every output time: O3 "
+                                    f"max relative difference {max(o3_err):.2e} (bar 1e-3), ClO max "
+                                    f"difference / peak {max(clo_err):.2e} (bar 1e-2)" if o3_err
+                                    else "no single run succeeded: accuracy not measured")
+                        print(f"{'':>10} member file {size_mb:.0f} MB (mole_fraction only); {accuracy}",
+                              flush=True)
                     ds.close()
-        ds = results["ds"]
-        print(f"\nmember file of {max(sizes)} members: {results['size_mb']:.0f} MB (mole_fraction only)")
-        o3_err, clo_err = [], []
-        for i, single in enumerate(single_ds):
-            member = ds["mole_fraction"].isel(member=i)
-            o3s, o3m = single["mole_fraction"].sel(species="O3").values, member.sel(species="O3").values
-            clos, clom = single["mole_fraction"].sel(species="ClO").values, member.sel(species="ClO").values
-            o3_err.append(np.max(np.abs(o3m - o3s) / o3s))
-            clo_err.append(np.max(np.abs(clom - clos)) / np.max(clos))
-        print(f"accuracy, {len(single_ds)} members vs single runs of the same multipliers, every output time:")
-        print(f"  O3 max relative difference   {max(o3_err):.2e}   (bar 1e-3)")
-        print(f"  ClO max difference / peak    {max(clo_err):.2e}   (bar 1e-2)")
-        ds.close()
+        if len(policies) > 1:
+            base = policies[-1]
+            for policy in policies[:-1]:
+                ratios = ", ".join(f"{n} x {w}w: {walls[base, n, w] / walls[policy, n, w]:.2f}x"
+                                   for n in sizes for w in worker_counts)
+                print(f"{policy} against {base} (wall-time ratio): {ratios}")
 
 
 if __name__ == "__main__":

@@ -79,6 +79,7 @@ class BatchTask:
     initial_values: list
     save: tuple[str, ...]
     time_limit_s: float | None = None
+    step_policy: str = "auto"           # integrate_batch's step_policy
     attempt: int = 0
     mechanism_sha256: str = ""
     table_source: str = "<table>"
@@ -268,7 +269,8 @@ def run_batch(task: BatchTask) -> BatchOutput:
     what = f"member {int(task.rows[0])}" if n == 1 else f"batch of {n} members"
     try:
         result = _integrate(group, y0, log_multiplier,
-                            _time_limit_callback(limit, _time.perf_counter(), what))
+                            _time_limit_callback(limit, _time.perf_counter(), what),
+                            task.step_policy)
     except MemberTimeLimit as exc:
         return _all_failed(task, str(exc), wall0, fault="timeout")
     except (BoxchemError, ValueError, FloatingPointError, ZeroDivisionError,
@@ -292,7 +294,8 @@ def run_batch(task: BatchTask) -> BatchOutput:
                        steps=int(np.sum(result.steps)))
 
 
-def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progress):
+def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progress,
+               step_policy: str = "auto"):
     """The solver's batch call on the group's shared setup."""
     from ..solver.timeloop import integrate_batch
     setup = group.setup
@@ -303,12 +306,13 @@ def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progre
         # own O3 through the shared J table, so one member at a time.  State-dependent
         # surfaces batch: each member's own surface k rides on the shared tables as ln
         # offsets (solver/statesurfaces.py), with no observer.
-        parts = [_integrate(group, y0[i:i + 1], log_multiplier[i:i + 1], progress)
+        parts = [_integrate(group, y0[i:i + 1], log_multiplier[i:i + 1], progress, step_policy)
                  for i in range(y0.shape[0])]
         return _stack(parts)
     result = integrate_batch(setup.kinetics, setup.coefficients, y0, setup.output_times_s,
                              log_multiplier=log_multiplier, breakpoints_s=setup.breakpoints_s,
                              progress=progress, on_accept=observe, state_map=phase_state_map(setup),
+                             step_policy=step_policy,
                              **group.options)
     group.fixed_out = np.asarray(result.fixed, dtype=float)
     return result

@@ -321,7 +321,7 @@ def _check_resume(path: Path, table: MemberTable, save, scenario) -> np.ndarray:
 
 def ensemble(scenario, members, *, output=None, save=None, workers=None, scheduler=None, client=None,
              batch_size=None, resume=False, progress=None,
-             member_time_limit_s=None) -> xr.Dataset:
+             member_time_limit_s=None, step_policy="auto") -> xr.Dataset:
     """Run every member of a member table and return the member-file Dataset.
 
     Parameters
@@ -341,6 +341,8 @@ def ensemble(scenario, members, *, output=None, save=None, workers=None, schedul
         ``progress(done, total, failed)``; default none
     member_time_limit_s : wall-clock limit per member [s]; a batch of n members
         gets n times it
+    step_policy : the solver's step-size policy for each batch ("auto", "per-member",
+        "lock-step"; ``integrate_batch``); recorded as the file's ``boxchem_step_policy``
 
     Returns the member file as an xarray Dataset (lazy when ``output`` is given).
     Raises :class:`EnsembleInterrupted` on Ctrl-C (finished members kept).
@@ -355,6 +357,9 @@ def ensemble(scenario, members, *, output=None, save=None, workers=None, schedul
         raise BoxchemError(f"batch_size: expected at least 1, got {batch_size}")
     if member_time_limit_s is not None and not float(member_time_limit_s) > 0:
         raise BoxchemError(f"member_time_limit_s: expected a time > 0 s, got {member_time_limit_s!r}")
+    from ..solver.timeloop import STEP_POLICIES
+    if step_policy not in STEP_POLICIES:
+        raise BoxchemError(f"step_policy: expected one of {', '.join(STEP_POLICIES)}, got {step_policy!r}")
     plan = _plan(scn, table)
     run_backend, backend_name, close_backend = _backend(workers, scheduler, client)
     valid = [(gi, s) for gi, (_, s, _) in enumerate(plan.groups) if s is not None]
@@ -366,7 +371,8 @@ def ensemble(scenario, members, *, output=None, save=None, workers=None, schedul
         path = Path(output)
     try:
         return _run(scn, table, plan, valid, save, path, int(batch_size), resume and output is not None,
-                    run_backend, backend_name, progress, member_time_limit_s, keep=temporary is None)
+                    run_backend, backend_name, progress, member_time_limit_s, keep=temporary is None,
+                    step_policy=step_policy)
     finally:
         if close_backend is not None:
             close_backend()
@@ -375,7 +381,7 @@ def ensemble(scenario, members, *, output=None, save=None, workers=None, schedul
 
 
 def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, backend_name,
-         progress, time_limit, keep):
+         progress, time_limit, keep, step_policy="auto"):
     from .batches import _group
     status = None
     if resume and path.exists():
@@ -394,7 +400,7 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
             rows=rows, scale=table.scale_factors(rows, scn.mechanism.reaction_ids),
             initial_columns=initial_columns,
             initial_values=[[table.value(int(r), c) for r in rows] for c in initial_columns],
-            save=save, time_limit_s=time_limit, attempt=attempt,
+            save=save, time_limit_s=time_limit, attempt=attempt, step_policy=step_policy,
             mechanism_sha256=scn.mechanism.text_sha256, table_source=table.source,
             table_where=[table.where(int(r), initial_columns[0]) if initial_columns else ""
                          for r in rows])
@@ -412,6 +418,7 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
             from .batches import _SETUPS
             _SETUPS.clear()
             del first
+        template.attrs["boxchem_step_policy"] = _policy_note(step_policy, batch_size)
         mf.create_member_file(path, template, variables)
         status = np.zeros(len(table), dtype=int)
         for group, gscn, error in plan.groups:
@@ -471,6 +478,17 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
     if keep:
         return mf.open_member_file(path)
     return mf.open_member_file(path, load=True)
+
+
+def _policy_note(step_policy: str, batch_size: int) -> str:
+    from ..solver.timeloop import LOCKSTEP_GROUP, LOCKSTEP_MIN_MEMBERS
+    lock = (f"lock-step: members of a batch (at most {batch_size}) in groups of at most "
+            f"{LOCKSTEP_GROUP} share one step size")
+    return {"per-member": "per-member: each member its own step size",
+            "lock-step": lock,
+            "auto": f"auto: {lock} (batches of at least {LOCKSTEP_MIN_MEMBERS} members), else "
+                    f"per-member"}[step_policy] + (
+        "; members whose surfaces or J follow their own state run one at a time (per-member)")
 
 
 def _progress(progress, total: int, done: int):

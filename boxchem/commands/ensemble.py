@@ -55,6 +55,10 @@ def add_engine_options(p, *, default_output: str) -> None:
                         "family_number_density, cycle_rate and the T, p, [M], SZA series)")
     p.add_argument("--batch-size", type=int, default=None, metavar="N",
                    help="members integrated together (default 32)")
+    p.add_argument("--step-policy", choices=("auto", "lock-step", "per-member"), default="auto",
+                   help="step-size control of a batch: lock-step groups share one step size "
+                        "(faster), per-member gives each member its own (results independent of "
+                        "the batch); auto (default): lock-step for batches of 8 or more (docs/ensembles.md)")
     p.add_argument("--member-time-limit", type=float, default=None, metavar="SECONDS",
                    help="wall-clock limit per member; a member over it is stopped and recorded failed")
     p.add_argument("--set", metavar="SECTION.KEY=VALUE", action="append", default=[],
@@ -94,7 +98,8 @@ def run_engine(args, table, out) -> int:
     try:
         ds = ensemble(scenario_of(args), table, output=out, save=args.save, workers=args.workers,
                       scheduler=args.scheduler, batch_size=args.batch_size, resume=args.resume,
-                      progress=not args.quiet, member_time_limit_s=args.member_time_limit)
+                      progress=not args.quiet, member_time_limit_s=args.member_time_limit,
+                      step_policy=getattr(args, "step_policy", "auto"))
     except EnsembleInterrupted as exc:
         how = "" if exc.output is None else \
             f"; continue with: boxchem {args.command} ... -o {out} --resume"

@@ -111,6 +111,13 @@ FIRST_STEP_FRACTION = 0.01
 #: long [s] and end on every output time: the state is observed at each window's start
 FEEDBACK_INTERVAL_S = 1800.0
 
+#: step-size policies of ``integrate_batch`` (DEVELOPERS.md, "Solver")
+STEP_POLICIES = ("auto", "per-member", "lock-step")
+#: members per lock-step group, and the smallest batch "auto" runs in lock step (measured:
+#: DEVELOPERS.md, "Solver", lock-step policy)
+LOCKSTEP_GROUP = 32
+LOCKSTEP_MIN_MEMBERS = 8
+
 #: work counters of every member (the compiled loop's ``counters`` columns)
 COUNTERS = ("steps", "rejected_steps", "rhs_evaluations", "jacobian_evaluations", "lu_decompositions",
             "lu_fallbacks")
@@ -360,13 +367,22 @@ def _apply_state_map(state_map, t_s: float, y: np.ndarray, status: np.ndarray, y
         ys[run, out_q] = y[run]
 
 
+def _chosen_policy(step_policy: str, n_members: int) -> str:
+    if step_policy not in STEP_POLICIES:
+        raise ValueError(f"step_policy: expected one of {', '.join(STEP_POLICIES)}, got {step_policy!r}")
+    if step_policy == "auto":
+        return "lock-step" if n_members >= LOCKSTEP_MIN_MEMBERS else "per-member"
+    return step_policy
+
+
 def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplier=None,
                     breakpoints_s=(), rtol: float = DEFAULT_RTOL, atol=DEFAULT_ATOL,
                     first_step: float | None = None, max_step: float = np.inf,
                     method: RosenbrockMethod = RODAS3, progress=None,
                     breakpoint_width_s: float = BREAKPOINT_WIDTH_S, on_accept=None,
                     lu: str = "sparse", surface_feedback: str = "member",
-                    state_map=None) -> BatchResult:
+                    state_map=None, step_policy: str = "auto",
+                    lockstep_group: int | None = None) -> BatchResult:
     """Integrate a batch of members through shared output times with one compiled loop.
 
     Members share the kinetics, the k(t) tables of ``coefficients`` (a
@@ -415,6 +431,13 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         tests and benchmarks).  "rebuild": the earlier treatment for a batch of one -
         the caller's ``on_accept`` records the state (``observe_state``) and a table is
         rebuilt per feedback window (slow; kept as the reference for tests and benchmarks).
+    step_policy : "per-member": each member its own step-size control (its result does
+        not depend on the other members); "lock-step": members in consecutive groups of
+        ``lockstep_group`` share one step size (``lockstep``: the largest of the members'
+        error norms decides; member index innermost, vectorised kernels); "auto"
+        (default): lock-step for batches of at least LOCKSTEP_MIN_MEMBERS members, else
+        per-member (DEVELOPERS.md, "Solver": measured choice and accuracy bound)
+    lockstep_group : members per lock-step group (default LOCKSTEP_GROUP)
 
     Returns
     -------
@@ -438,6 +461,12 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     if on_accept is not None and n_members != 1:
         raise ValueError(f"on_accept: only for a batch of one member (state-dependent k), got "
                          f"{n_members} members")
+    policy = _chosen_policy(step_policy, n_members)
+    group = LOCKSTEP_GROUP if lockstep_group is None else int(lockstep_group)
+    if group < 1:
+        raise ValueError(f"lockstep_group: expected at least 1 member, got {lockstep_group!r}")
+    if n_members == 1 or group == 1:
+        policy = "per-member"    # a group of one steps on its own error norm: the per-member kernel
     if lu not in ("sparse", "dense"):
         raise ValueError(f"lu: expected 'sparse' or 'dense', got {lu!r}")
     if surface_feedback not in ("member", "member_exact", "rebuild"):
@@ -508,6 +537,14 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
             return tt - half if end_of_interval else tt + half
         return tt
 
+    if policy == "lock-step":
+        from .lockstep import advance_lockstep as kernel
+        # balanced consecutive groups of at most ``group`` members (40 members: 20 + 20, not 32 + 8)
+        edges = np.linspace(0, n_members, -(-n_members // group) + 1).round().astype(int)
+        groups = list(zip(edges[:-1].tolist(), edges[1:].tolist()))
+    else:
+        kernel = cm.advance_batch
+        groups = [(0, n_members)]
     start = 0                    # index in landing of the current window's start
     table_window = -1
     lm_window, fm_window = lm, fm
@@ -537,12 +574,13 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                 lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
             fm_window = fm.copy()
             fm_window[:, columns] = np.exp(lm_window[:, columns])
-        cm.advance_batch(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
-                         outputs_reached, y, h, restart, status, h_max, table.t_a, table.t_b, table.poly,
-                         table.log_col, table.sza_poly, table.sgrid, table.lnj, table.phot_cols,
-                         table.horizon, lm_window, fm_window, rtol, atol, *m_arrays, *kin_arrays[:8],
-                         lu_arrays[0], *lu_arrays[1:], kinetics.n_fixed, counters, info,
-                         params)
+        for a, b in groups:     # one call per lock-step group (the whole batch when per member)
+            kernel(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys[a:b],
+                   outputs_reached[a:b], y[a:b], h[a:b], restart[a:b], status[a:b], h_max, table.t_a,
+                   table.t_b, table.poly, table.log_col, table.sza_poly, table.sgrid, table.lnj,
+                   table.phot_cols, table.horizon, lm_window[a:b], fm_window[a:b], rtol, atol,
+                   *m_arrays, *kin_arrays[:8], lu_arrays[0], *lu_arrays[1:], kinetics.n_fixed,
+                   counters[a:b], info[a:b], params)
         newly_failed = running_before & (status != 0)
         if newly_failed.any():
             failure[newly_failed] = info[newly_failed]
@@ -594,7 +632,9 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                        coefficient_evaluations=coefficient_evaluations,
                        wall_time_s=_time.perf_counter() - wall0, surface_k=surface_k,
                        settings={"method": method.name, "rtol": rtol, "atol": atol_setting,
-                                 "compiled": True, "step_control": "per member",
+                                 "compiled": True,
+                                 "step_control": ("per member" if policy == "per-member" else
+                                                  f"lock-step in groups of at most {group} members"),
                                  "state_surfaces": ("none" if getattr(coefficients, "state_surfaces", None)
                                                     is None else surface_feedback),
                                  "lu": (f"sparse, fixed pattern ({structure.order_name} order, "
