@@ -184,6 +184,9 @@ class BatchResult:
     coefficient_evaluations: int = 0
     wall_time_s: float = 0.0
     settings: dict = field(default_factory=dict)
+    #: with ``tangent``: dy/dp at the output times, (n_out, n_params, n_output_species) [cm-3]
+    #: (rows: the TangentParameters' reactions then initial values; columns its output_species)
+    sensitivity: np.ndarray | None = None
 
     @property
     def n_members(self) -> int:
@@ -317,7 +320,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                     first_step: float | None = None, max_step: float = np.inf,
                     method: RosenbrockMethod = RODAS3, progress=None,
                     breakpoint_width_s: float = BREAKPOINT_WIDTH_S, on_accept=None,
-                    lu: str = "sparse") -> BatchResult:
+                    lu: str = "sparse", tangent=None) -> BatchResult:
     """Integrate a batch of members through shared output times with one compiled loop.
 
     Members share the kinetics, the k(t) tables of ``coefficients`` (a
@@ -347,6 +350,10 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     lu : "sparse" (default): the fixed-pattern sparse LU (``sparselu``) with the dense
         pivoting LU where a pivot is too small; "dense": the dense pivoting LU at every
         step (the earlier kernel; for benchmarks)
+    tangent : a :class:`~boxchem.solver.tangent.TangentParameters`, single-member batches
+        only: also integrate the forward sensitivities S = dy/dp (p = ln factor on k, ln y0)
+        on the same steps with the same LU (``solver/tangent.py``); returned as
+        ``BatchResult.sensitivity``
 
     Returns
     -------
@@ -370,6 +377,11 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     if on_accept is not None and n_members != 1:
         raise ValueError(f"on_accept: only for a batch of one member (state-dependent k), got "
                          f"{n_members} members")
+    if tangent is not None:
+        if n_members != 1:
+            raise ValueError(f"tangent: forward sensitivities are for a batch of one member, got "
+                             f"{n_members} members")
+        tangent = tangent.validated(kinetics)
     if lu not in ("sparse", "dense"):
         raise ValueError(f"lu: expected 'sparse' or 'dense', got {lu!r}")
     if not hasattr(coefficients, "interval_table"):
@@ -405,6 +417,16 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                        FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP, FIXED_DIFFERENCE,
                        cm.PIVOT_TOLERANCE if lu == "sparse" else -1.0])
     counters = np.zeros((n_members, len(COUNTERS)), dtype=np.int64)
+    if tangent is not None:
+        from . import tangent as tl
+        tan_arrays = (tangent.param_reaction(),) + tl.tangent_slots(kinetics, kin_arrays)
+        out_rows = np.arange(nv, dtype=np.int64) if tangent.output_species is None else \
+            np.asarray(tangent.output_species, dtype=np.int64)
+        sens = np.zeros((tangent.n_params, nv))
+        for q, j in enumerate(tangent.initial):
+            sens[len(tangent.reactions) + q, j] = y[0, j]     # d y0_j / d ln y0_j
+        sens_out = np.full((n_out, tangent.n_params, out_rows.size), np.nan)
+        sens_out[0] = sens[:, out_rows]
     info = np.zeros((n_members, 3))
     status = np.zeros(n_members, dtype=np.int64)
     failure = np.full((n_members, 3), np.nan)      # time, step, worst species index
@@ -426,12 +448,20 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         table = coefficients.interval_table(wa, wb, side(wa, False), side(wb, True))
         coefficient_evaluations += 1
         running_before = status == 0
-        cm.advance_batch(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
-                         outputs_reached, y, h, restart, status, h_max, table.t_a, table.t_b, table.poly,
-                         table.log_col, table.sza_poly, table.sgrid, table.lnj, table.phot_cols,
-                         table.horizon, lm, fm, rtol, atol, *m_arrays, *kin_arrays[:8],
-                         lu_arrays[0], *lu_arrays[1:], kinetics.n_fixed, counters, info,
-                         params)
+        if tangent is None:
+            cm.advance_batch(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
+                             outputs_reached, y, h, restart, status, h_max, table.t_a, table.t_b,
+                             table.poly, table.log_col, table.sza_poly, table.sgrid, table.lnj,
+                             table.phot_cols, table.horizon, lm, fm, rtol, atol, *m_arrays,
+                             *kin_arrays[:8], lu_arrays[0], *lu_arrays[1:], kinetics.n_fixed, counters,
+                             info, params)
+        else:
+            tl.advance_tangent(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
+                               sens_out, out_rows, outputs_reached, y, sens, *tan_arrays, h, restart,
+                               status, h_max, table.t_a, table.t_b, table.poly, table.log_col,
+                               table.sza_poly, table.sgrid, table.lnj, table.phot_cols, table.horizon,
+                               lm, fm, rtol, atol, *m_arrays, *kin_arrays[:8], lu_arrays[0],
+                               *lu_arrays[1:], kinetics.n_fixed, counters, info, params)
         newly_failed = running_before & (status != 0)
         if newly_failed.any():
             failure[newly_failed] = info[newly_failed]
@@ -477,7 +507,11 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                                  "lu": (f"sparse, fixed pattern ({structure.order_name} order, "
                                         f"{structure.nnz} non-zeros, {structure.operations} "
                                         f"multiply-adds), dense pivoting fallback")
-                                 if lu == "sparse" else "dense, partial pivoting"})
+                                 if lu == "sparse" else "dense, partial pivoting",
+                                 **({"tangent": "forward sensitivities on the same steps (the "
+                                     "augmented Rosenbrock system, S not in the error norm)"}
+                                    if tangent is not None else {})},
+                       sensitivity=None if tangent is None else sens_out)
 
 
 def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(),
