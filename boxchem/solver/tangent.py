@@ -160,48 +160,102 @@ def _slot_derivatives(y, k, fixed, mass, sat, sat_half, st_ptr, st_idx, st_val, 
 
 @_njit
 def _rate_tangent_add(coef, s, prate, param_reaction, tan_ptr, tan_species, tan_dpos, g):
-    """g[q, r] += sum_e coef[dpos_e] s[q, species_e] (+ prate[r] where parameter q is reaction r)."""
-    n_p = g.shape[0]
-    nr = g.shape[1]
+    """g[r, q] += sum_e coef[dpos_e] s[species_e, q] (+ prate[r] where parameter q is reaction r).
+
+    Layout (species or reactions, parameters): the inner loops run over the parameters,
+    contiguous, so they vectorise.
+    """
+    n_p = g.shape[1]
+    nr = g.shape[0]
+    for r in range(nr):
+        for e in range(tan_ptr[r], tan_ptr[r + 1]):
+            v = coef[tan_dpos[e]]
+            if v != 0.0:
+                src = s[tan_species[e]]
+                dst = g[r]
+                for q in range(n_p):
+                    dst[q] += v * src[q]
     for q in range(n_p):
-        for r in range(nr):
-            v = 0.0
-            for e in range(tan_ptr[r], tan_ptr[r + 1]):
-                v += coef[tan_dpos[e]] * s[q, tan_species[e]]
-            g[q, r] += v
         rq = param_reaction[q]
         if rq >= 0:
-            g[q, rq] += prate[rq]
+            g[rq, q] += prate[rq]
 
 
 @_njit
 def _scatter(g, st_ptr, st_idx, st_val, out):
-    """out[q, i] = sum_r nu_ir g[q, r] (stoichiometry of each rate tangent)."""
-    n_p = g.shape[0]
-    nr = g.shape[1]
-    nv = out.shape[1]
-    for q in range(n_p):
-        for i in range(nv):
-            out[q, i] = 0.0
-        for r in range(nr):
-            v = g[q, r]
-            if v != 0.0:
-                for p in range(st_ptr[r], st_ptr[r + 1]):
-                    out[q, st_idx[p]] += st_val[p] * v
+    """out[i, q] = sum_r nu_ir g[r, q] (stoichiometry of each rate tangent)."""
+    n_p = g.shape[1]
+    nr = g.shape[0]
+    nv = out.shape[0]
+    for i in range(nv):
+        for q in range(n_p):
+            out[i, q] = 0.0
+    for r in range(nr):
+        src = g[r]
+        for p in range(st_ptr[r], st_ptr[r + 1]):
+            v = st_val[p]
+            dst = out[st_idx[p]]
+            for q in range(n_p):
+                dst[q] += v * src[q]
+
+
+@_njit
+def _solve_many(mode, a, ptr, col, diag, perm, w, piv, b, x, xw, tmp):
+    """Solve W Z = B in place for every column of ``b`` (nv, n_p) with the step's factors:
+    the sparse triangular solves of ``compiled._sparse_solve`` on all columns at once."""
+    n = diag.shape[0]
+    n_p = b.shape[1]
+    if mode == 1:
+        for i in range(n):
+            src = b[perm[i]]
+            dst = x[i]
+            for q in range(n_p):
+                dst[q] = src[q]
+        for i in range(n):
+            dst = x[i]
+            for p in range(ptr[i], diag[i]):
+                v = a[p]
+                src = x[col[p]]
+                for q in range(n_p):
+                    dst[q] -= v * src[q]
+        one = np.uint64(1)
+        for i in range(n - 1, -1, -1):
+            dst = x[i]
+            for p in range(diag[i] + one, ptr[i + 1]):
+                v = a[p]
+                src = x[col[p]]
+                for q in range(n_p):
+                    dst[q] -= v * src[q]
+            inv = 1.0 / a[diag[i]]
+            for q in range(n_p):
+                dst[q] *= inv
+        for i in range(n):
+            src = x[i]
+            dst = b[perm[i]]
+            for q in range(n_p):
+                dst[q] = src[q]
+    else:
+        for q in range(n_p):
+            for i in range(n):
+                tmp[i] = b[i, q]
+            _solve_w(mode, a, ptr, col, diag, perm, w, piv, tmp, xw)
+            for i in range(n):
+                b[i, q] = tmp[i]
 
 
 @_njit
 def _tangent_step(y, sens, ystage, kstage, fxstage, stages, k0, fx0, dk0, dfx0, h, r_air, ma, mc, mm,
                   mgsum, mreuse, mode, a, ptr, col, diag, perm, w, piv, param_reaction, tan_ptr,
                   tan_species, tan_dpos, mass, sat, sat_half, st_ptr, st_idx, st_val, no_pos, jac_cols,
-                  jac_vals, c, ks_s, sens_stage, g, rhs, xw, snew):
+                  jac_vals, c, ks_s, sens_stage, g, rhs, xs, xw, snew):
     """S at the end of an accepted step into ``snew`` (module docstring: the S part of the stages).
 
-    ``ystage``/``kstage``/``fxstage`` the state's stage points and their k, fixed;
-    ``stages`` the state's stages K^y; ``sens_stage`` (ns, n_p, nv) work.
+    ``sens`` (nv, n_p); ``ystage``/``kstage``/``fxstage`` the state's stage points and
+    their k, fixed; ``stages`` the state's stages K^y; ``sens_stage`` (ns, nv, n_p),
+    ``ks_s``, ``rhs``, ``xs`` (nv, n_p) and ``g`` (nr, n_p) work.
     """
     ns = ma.shape[0]
-    n_p = sens.shape[0]
+    n_p = sens.shape[1]
     nv = y.shape[0]
     nr = k0.shape[0]
     nslot_total = mass.shape[0] * (mass.shape[1] + sat.shape[1])
@@ -220,11 +274,13 @@ def _tangent_step(y, sens, ystage, kstage, fxstage, stages, k0, fx0, dk0, dfx0, 
     ypv = np.empty(nv)
     kpv = np.empty(nr)
     fpv = np.empty(fx0.shape[0])
+    tmp = np.empty(nv)
     dummy = np.empty(1)
     # rates and slot derivatives at the step's start
     _slot_derivatives(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, no_pos, jac_cols,
                       jac_vals, c, rate0, d0, dummy)
-    # d/dt of the slot derivatives and rates at fixed y (central difference along the slopes)
+    # d/dt of the slot derivatives and rates at fixed y (central difference along the slopes;
+    # exact: linear in k, at most quadratic in the fixed densities)
     delta = h
     for r in range(nr):
         kpv[r] = k0[r] + delta * dk0[r]
@@ -244,16 +300,20 @@ def _tangent_step(y, sens, ystage, kstage, fxstage, stages, k0, fx0, dk0, dfx0, 
         dtr[r] = (rp[r] - rm[r]) / (2.0 * delta)
     for st in range(ns):
         # the stage's point S_i = S0 + sum_j a_ij K^S_j
-        for q in range(n_p):
-            for i in range(nv):
-                v = sens[q, i]
-                for j in range(st):
-                    if ma[st, j] != 0.0:
-                        v += ma[st, j] * sens_stage[j, q, i]
-                ks_s[q, i] = v
-        for q in range(n_p):
-            for r in range(nr):
-                g[q, r] = 0.0
+        for i in range(nv):
+            dsti = ks_s[i]
+            srci = sens[i]
+            for q in range(n_p):
+                dsti[q] = srci[q]
+            for j in range(st):
+                aj = ma[st, j]
+                if aj != 0.0:
+                    kj = sens_stage[j, i]
+                    for q in range(n_p):
+                        dsti[q] += aj * kj[q]
+        for r in range(nr):
+            for q in range(n_p):
+                g[r, q] = 0.0
         # J(y_i) S_i + F(y_i): rate tangents at the stage point
         if st == 0:
             for e in range(nslot_total):
@@ -287,23 +347,35 @@ def _tangent_step(y, sens, ystage, kstage, fxstage, stages, k0, fx0, dk0, dfx0, 
             prate[r] = v + hg * dtr[r]
         _rate_tangent_add(coef, sens, prate, param_reaction, tan_ptr, tan_species, tan_dpos, g)
         _scatter(g, st_ptr, st_idx, st_val, rhs)
-        for q in range(n_p):
-            for i in range(nv):
-                v = rhs[q, i] + r_air * ks_s[q, i]
-                for j in range(st):
-                    if mc[st, j] != 0.0:
-                        v += (mc[st, j] / h) * sens_stage[j, q, i]
-                rhs[q, i] = v
-            _solve_w(mode, a, ptr, col, diag, perm, w, piv, rhs[q], xw)
-            for i in range(nv):
-                sens_stage[st, q, i] = rhs[q, i]
-    for q in range(n_p):
         for i in range(nv):
-            v = sens[q, i]
-            for st in range(ns):
-                if mm[st] != 0.0:
-                    v += mm[st] * sens_stage[st, q, i]
-            snew[q, i] = v
+            dsti = rhs[i]
+            srci = ks_s[i]
+            for q in range(n_p):
+                dsti[q] += r_air * srci[q]
+            for j in range(st):
+                cj = mc[st, j]
+                if cj != 0.0:
+                    cj = cj / h
+                    kj = sens_stage[j, i]
+                    for q in range(n_p):
+                        dsti[q] += cj * kj[q]
+        _solve_many(mode, a, ptr, col, diag, perm, w, piv, rhs, xs, xw, tmp)
+        for i in range(nv):
+            dsti = sens_stage[st, i]
+            srci = rhs[i]
+            for q in range(n_p):
+                dsti[q] = srci[q]
+    for i in range(nv):
+        dsti = snew[i]
+        srci = sens[i]
+        for q in range(n_p):
+            dsti[q] = srci[q]
+        for st in range(ns):
+            m = mm[st]
+            if m != 0.0:
+                kj = sens_stage[st, i]
+                for q in range(n_p):
+                    dsti[q] += m * kj[q]
 
 
 @_njit
@@ -313,7 +385,7 @@ def _advance_member_tangent(t, t_end, y, sens, param_reaction, tan_ptr, tan_spec
                             mgsum, mreuse, err_exp, mass, sat, sat_half, st_ptr, st_idx, st_val,
                             jac_cols, jac_vals, jac_pos, perm, ptr, col, diag, l_pos, l_pivot, op_ptr,
                             op_src, op_dst, n_fixed, counters, info, params):
-    """``compiled._advance_member`` with S = dy/dp (``sens``, (n_p, nv), in place) on the same steps."""
+    """``compiled._advance_member`` with S = dy/dp (``sens``, (nv, n_p), in place) on the same steps."""
     safety, fmin, fmax, hmin_abs, hmin_rel, first_frac, fallback, fixed_diff, piv_tol = (
         params[0], params[1], params[2], params[3], params[4], params[5], params[6], params[7],
         params[8])
@@ -321,7 +393,7 @@ def _advance_member_tangent(t, t_end, y, sens, param_reaction, tan_ptr, tan_spec
     nr = poly.shape[1] - n_fixed
     ns = ma.shape[0]
     nnz = col.shape[0]
-    n_p = sens.shape[0]
+    n_p = sens.shape[1]
     c = np.empty(nv + n_fixed + 1)
     rate = np.empty(nr)
     d = np.empty(nr * (mass.shape[1] + sat.shape[1]))
@@ -356,11 +428,12 @@ def _advance_member_tangent(t, t_end, y, sens, param_reaction, tan_ptr, tan_spec
     ystage = np.empty((ns, nv))
     kstage = np.empty((ns, nr))
     fxstage = np.empty((ns, n_fixed))
-    ks_s = np.empty((n_p, nv))
-    sens_stage = np.empty((ns, n_p, nv))
-    g = np.empty((n_p, nr))
-    rhs = np.empty((n_p, nv))
-    snew = np.empty((n_p, nv))
+    ks_s = np.empty((nv, n_p))
+    sens_stage = np.empty((ns, nv, n_p))
+    g = np.empty((nr, n_p))
+    rhs = np.empty((nv, n_p))
+    xs = np.empty((nv, n_p))
+    snew = np.empty((nv, n_p))
 
     _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult,
                      fmult, k0, fx0, dk0, dfx0, True)
@@ -523,7 +596,7 @@ def _advance_member_tangent(t, t_end, y, sens, param_reaction, tan_ptr, tan_spec
         _tangent_step(y, sens, ystage, kstage, fxstage, stages, k0, fx0, dk0, dfx0, h, r_air, ma, mc,
                       mm, mgsum, mreuse, mode, a, ptr, col, diag, perm, w, piv, param_reaction,
                       tan_ptr, tan_species, tan_dpos, mass, sat, sat_half, st_ptr, st_idx, st_val,
-                      no_pos, jac_cols, jac_vals, c, ks_s, sens_stage, g, rhs, xw, snew)
+                      no_pos, jac_cols, jac_vals, c, ks_s, sens_stage, g, rhs, xs, xw, snew)
         counters[0] += 1
         corr = 1.0
         if r_air != 0.0:
@@ -542,12 +615,12 @@ def _advance_member_tangent(t, t_end, y, sens, param_reaction, tan_ptr, tan_spec
             if ynew[i] > 0.0:
                 y[i] = ynew[i]
                 for q in range(n_p):
-                    sens[q, i] = snew[q, i] * corr
+                    sens[i, q] = snew[i, q] * corr
             else:
                 y[i] = 0.0
                 # d max(y, 0)/dy: a clipped component carries no sensitivity
                 for q in range(n_p):
-                    sens[q, i] = 0.0 if ynew[i] < 0.0 else snew[q, i] * corr
+                    sens[i, q] = 0.0 if ynew[i] < 0.0 else snew[i, q] * corr
         if err_norm == 0.0:
             factor = fmax
         else:
@@ -588,7 +661,7 @@ def advance_tangent(landings, air_rates, out_index, ys, sens_out, out_rows, reac
                     st_ptr, st_idx, st_val, jac_cols, jac_vals, jac_pos, perm, ptr, col, diag, l_pos,
                     l_pivot, op_ptr, op_src, op_dst, n_fixed, counters, info, params):
     """``compiled.advance_batch`` for a batch of one member with its sensitivities ``sens``
-    (n_p, nv); at output j, ``sens_out[j] = sens[:, out_rows]`` (n_p, len(out_rows))."""
+    (nv, n_p); at output j, ``sens_out[j] = sens[out_rows].T`` (n_p, len(out_rows))."""
     if status[0] != 0:
         return
     for i in range(air_rates.shape[0]):
@@ -609,9 +682,9 @@ def advance_tangent(landings, air_rates, out_index, ys, sens_out, out_rows, reac
         if j >= 0:
             for q in range(y.shape[1]):
                 ys[0, j, q] = y[0, q]
-            for p in range(sens.shape[0]):
+            for p in range(sens.shape[1]):
                 for q in range(out_rows.shape[0]):
-                    sens_out[j, p, q] = sens[p, out_rows[q]]
+                    sens_out[j, p, q] = sens[out_rows[q], p]
             reached[0] = j + 1
 
 
@@ -626,13 +699,22 @@ def _rate_tangents_kernel(y, k, fixed, sens, param_reaction, tan_ptr, tan_specie
     rate = np.empty(nr)
     d = np.empty(nr * (mass.shape[1] + sat.shape[1]))
     dummy = np.empty(1)
+    n_p = sens.shape[1]
+    s = np.empty((nv, n_p))
+    g = np.empty((nr, n_p))
     for t in range(n_out):
         _slot_derivatives(y[t], k[t], fixed[t], mass, sat, sat_half, st_ptr, st_idx, st_val, no_pos,
                           jac_cols, jac_vals, c, rate, d, dummy)
-        for q in range(out.shape[1]):
+        for i in range(nv):
+            for q in range(n_p):
+                s[i, q] = sens[t, q, i]
+        for r in range(nr):
+            for q in range(n_p):
+                g[r, q] = 0.0
+        _rate_tangent_add(d, s, rate, param_reaction, tan_ptr, tan_species, tan_dpos, g)
+        for q in range(n_p):
             for r in range(nr):
-                out[t, q, r] = 0.0
-        _rate_tangent_add(d, sens[t], rate, param_reaction, tan_ptr, tan_species, tan_dpos, out[t])
+                out[t, q, r] = g[r, q]
 
 
 def rate_tangents(kinetics, y, k, fixed, sens, param_reaction) -> np.ndarray:

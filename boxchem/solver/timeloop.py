@@ -422,11 +422,11 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         tan_arrays = (tangent.param_reaction(),) + tl.tangent_slots(kinetics, kin_arrays)
         out_rows = np.arange(nv, dtype=np.int64) if tangent.output_species is None else \
             np.asarray(tangent.output_species, dtype=np.int64)
-        sens = np.zeros((tangent.n_params, nv))
+        sens = np.zeros((nv, tangent.n_params))     # species-major: the kernel's layout
         for q, j in enumerate(tangent.initial):
-            sens[len(tangent.reactions) + q, j] = y[0, j]     # d y0_j / d ln y0_j
+            sens[j, len(tangent.reactions) + q] = y[0, j]     # d y0_j / d ln y0_j
         sens_out = np.full((n_out, tangent.n_params, out_rows.size), np.nan)
-        sens_out[0] = sens[:, out_rows]
+        sens_out[0] = sens[out_rows].T
     info = np.zeros((n_members, 3))
     status = np.zeros(n_members, dtype=np.int64)
     failure = np.full((n_members, 3), np.nan)      # time, step, worst species index
