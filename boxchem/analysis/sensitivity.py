@@ -19,7 +19,7 @@ Method (docs/sensitivity-uncertainty.md, "Local sensitivities"):
   metric) adds at most ~1e-3 to S, small enough that the truncation error
   stays below ~1e-3 relative for the smooth responses of a box model;
   ``step`` and ``scheme="forward"`` (half the members) are settings;
-* ``method="tangent"`` (the default) instead integrates S = dy/d ln p for
+* ``method="tangent"`` instead integrates S = dy/d ln p for
   every parameter alongside the nominal run's Rosenbrock steps, with the
   step's LU (:mod:`boxchem.solver.tangent`), and linearises the metrics on
   the output (:mod:`boxchem.analysis.tangent_sensitivity`): one run instead
@@ -28,7 +28,10 @@ Method (docs/sensitivity-uncertainty.md, "Local sensitivities"):
   benchmarks/bench_sensitivity.py) and for what the tangent does not
   differentiate: the feedback of the box's composition on state-dependent k
   (surfaces that follow the composition, the ozone column following the box)
-  is in the differences but not in the tangent.
+  is in the differences but not in the tangent.  ``method="auto"`` (the
+  default) therefore takes the tangent unless the scenario has such k
+  (measured on the polar-spring season: 7 % on ClO + OH -> HCl, 1-2 % on the
+  leading coefficients; docs/sensitivity-uncertainty.md).
 
 Time-resolved sensitivities d ln x_s(t) / d ln p_i of chosen species come
 from the same members.
@@ -49,9 +52,10 @@ from .sampling import finite_difference_table, parameter_kind
 __all__ = ["local_sensitivities", "sensitivities_from_members", "ranking", "parameter_columns",
            "DEFAULT_STEP", "run_ensemble", "METHODS", "DEFAULT_METHOD"]
 
-#: ways of computing the local sensitivities (module docstring)
-METHODS = ("tangent", "differences")
-DEFAULT_METHOD = "tangent"
+#: ways of computing the local sensitivities (module docstring); "auto" is the tangent
+#: unless the scenario's k depend on the box's state (their feedback is not in the tangent)
+METHODS = ("auto", "tangent", "differences")
+DEFAULT_METHOD = "auto"
 
 #: default finite-difference step in ln p (see the module docstring)
 DEFAULT_STEP = 0.05
@@ -125,8 +129,9 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
     :func:`parameter_columns`; ``step``: h in ln p; ``scheme``: "central" or
     "forward"; ``species``: species whose time-resolved sensitivities are
     kept (default O3 when the mechanism has it).  ``method``: "tangent" (one
-    tangent-linear run; ``step`` and ``scheme`` unused) or "differences" (the
-    ensemble).  ``engine``: options of :func:`boxchem.ensemble` (``workers``,
+    tangent-linear run; ``step`` and ``scheme`` unused), "differences" (the
+    ensemble) or "auto" (default: the tangent unless some k depend on the box's
+    state, whose feedback only the differences see).  ``engine``: options of :func:`boxchem.ensemble` (``workers``,
     ``scheduler``, ``client``, ``progress``, ``output`` for the member file, ...);
     the tangent run uses only ``progress``.
 
@@ -147,8 +152,21 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
     columns, nominal = parameter_columns(scenario, reactions=reactions, initial=initial)
     if method not in METHODS:
         raise SensitivityError(f"method: expected one of {', '.join(METHODS)}, got {method!r}")
+    setup, choice = None, f"{method} (asked for)"
+    if method != "differences":
+        from ..runner import prepare, state_observer
+        setup = prepare(scenario)
+        if method == "auto":
+            feedback = state_observer(setup) is not None
+            method = "differences" if feedback else "tangent"
+            choice = ("auto: differences, because k depend on the box's state (surfaces or the "
+                      "ozone column following the composition), whose feedback the tangent does "
+                      "not differentiate" if feedback else
+                      "auto: tangent (no k depends on the box's state)")
     if method == "tangent":
-        return _tangent_result(scenario, parsed, columns, species, engine.get("progress"))
+        out = _tangent_result(scenario, parsed, columns, species, engine.get("progress"), setup)
+        out.attrs["method_choice"] = choice
+        return out
     table, labels, plan = finite_difference_table(columns, step=step, scheme=scheme,
                                                   initial=nominal)
     table["member_label"] = labels
@@ -157,11 +175,11 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
     wall = _time.perf_counter() - wall0
     result = sensitivities_from_members(members, parsed, plan, step=step, scheme=scheme,
                                         species=species, mechanism=scenario.mechanism)
-    result.attrs.update(ensemble_wall_time_s=wall, ensemble_members=len(table))
+    result.attrs.update(ensemble_wall_time_s=wall, ensemble_members=len(table), method_choice=choice)
     return result
 
 
-def _tangent_result(scenario, metrics, columns, species, progress) -> xr.Dataset:
+def _tangent_result(scenario, metrics, columns, species, progress, setup=None) -> xr.Dataset:
     """``local_sensitivities`` by the tangent-linear run, in the same layout as the differences'."""
     from .tangent_sensitivity import tangent_sensitivities
     bar = None
@@ -171,7 +189,8 @@ def _tangent_result(scenario, metrics, columns, species, progress) -> xr.Dataset
     wall0 = _time.perf_counter()
     try:
         S, values, series, times, attrs = tangent_sensitivities(scenario, metrics, columns, species,
-                                                                progress=progress or None)
+                                                                progress=progress or None,
+                                                                setup=setup)
     finally:
         if bar is not None:
             bar.close()

@@ -45,12 +45,13 @@ class TangentSensitivityError(BoxchemError):
 
 
 def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species: Sequence[str], *,
-                          progress=None):
+                          progress=None, setup=None):
     """Sensitivities by the tangent-linear run.
 
     ``scenario``: a Scenario; ``metrics``: checked :class:`Metric` objects;
     ``parameters``: member-table style columns (``scale.<id>``, ``initial.<species>``);
-    ``species``: species of the time-resolved output.  Returns
+    ``species``: species of the time-resolved output; ``setup``: the scenario's
+    ``runner.prepare`` when already built.  Returns
     ``(S (metric, parameter), values (metric,) DataArray, series (parameter, time, species)
     or None, times, attrs)``.
     """
@@ -60,7 +61,7 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
     from ..solver.timeloop import integrate_batch
 
     wall0 = _time.perf_counter()
-    setup = prepare(scenario)
+    setup = prepare(scenario) if setup is None else setup
     kin = setup.kinetics
     reactions = [p.split(".", 1)[1] for p in parameters if p.startswith("scale.")]
     initial = [p.split(".", 1)[1] for p in parameters if p.startswith("initial.")]
@@ -141,6 +142,7 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
                 cols.append(np.zeros((n_out, n_p)))
         series = np.stack(cols, axis=-1).transpose(1, 0, 2)             # (parameter, time, species)
     attrs = {"tangent_integration_wall_time_s": integration_s,
+             "state_dependent_k": int(state_observer(setup) is not None),
              "tangent_steps": int(result.steps[0]),
              "tangent_rejected_steps": int(result.rejected_steps[0]),
              "metric_linearisation_step_ln": METRIC_EPS}

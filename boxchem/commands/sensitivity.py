@@ -17,10 +17,11 @@ Metrics (several with ';' or repeated --metric):
   mean|noon|max|min SPECIES on DATE    or ... over TIME..TIME
   loss [FAMILY] [by CYCLE] over PERIOD accumulated loss [mol mol-1], total or by cycle
   share CYCLE over PERIOD              a cycle's fraction of the total loss
-By default one tangent-linear run carries d y/d ln k of every reaction (thermal k, J,
-surface gamma) on the nominal run's own steps (--method tangent); --method differences
-varies each by exp(+-h) in one batched ensemble instead (central differences, h = 0.05;
-the check): see docs/sensitivity-uncertainty.md.
+--method tangent: one tangent-linear run carries d y/d ln k of every reaction (thermal
+k, J, surface gamma) on the nominal run's own steps; --method differences varies each
+by exp(+-h) in one batched ensemble (central differences, h = 0.05; the check); the
+default auto takes the tangent unless k depend on the box's state (e.g. polar-spring's
+surfaces), whose feedback only the differences see: docs/sensitivity-uncertainty.md.
 Writes OUT.nc (sensitivities, time-resolved species sensitivities), OUT-tornado.png and
 prints the ranking."""
 
@@ -78,9 +79,11 @@ def register(subparsers) -> None:
                    help="reactions to vary (default all)")
     p.add_argument("--initial", default=None, metavar="SPECIES,...|all",
                    help="also differentiate with respect to these initial mole fractions")
-    p.add_argument("--method", choices=("tangent", "differences"), default="tangent",
-                   help="tangent (default: one run with forward sensitivities) or differences "
-                        "(central differences on the ensemble engine; the check)")
+    p.add_argument("--method", choices=("auto", "tangent", "differences"), default="auto",
+                   help="tangent (one run with forward sensitivities), differences (central "
+                        "differences on the ensemble engine; the check) or auto (default: tangent "
+                        "unless k depend on the box's state, e.g. surfaces following the "
+                        "composition, whose feedback only the differences see)")
     p.add_argument("--step", type=float, default=None, metavar="H",
                    help="finite-difference step in ln k (--method differences; default 0.05)")
     p.add_argument("--scheme", choices=("central", "forward"), default="central",
@@ -123,10 +126,12 @@ def main(args) -> int:
     from ..io.netcdf import write_dataset
     scenario = load_with_overrides(args.scenario, args.overrides)
     reactions = _names(args.reactions) or "all"
-    if args.method == "tangent" and (args.step is not None or args.scheme != "central"):
-        from ..errors import BoxchemError
-        raise BoxchemError("--step and --scheme set the finite differences; add --method "
-                           "differences to use them (the tangent-linear run needs no step)")
+    if args.step is not None or args.scheme != "central":
+        if args.method == "tangent":
+            from ..errors import BoxchemError
+            raise BoxchemError("--step and --scheme set the finite differences; add --method "
+                               "differences to use them (the tangent-linear run needs no step)")
+        args.method = "differences"
     wall0 = time.perf_counter()
     result = local_sensitivities(scenario, args.metric, reactions=reactions,
                                  initial=_names(args.initial) or (),
@@ -167,6 +172,10 @@ def main(args) -> int:
         if metric == result.attrs.get("global_metric"):
             print(global_text(result))
     failed = int(result.attrs.get("failed_members", 0))
+    print(f"method: {result.attrs.get('method_choice', result.attrs.get('sensitivity_method'))}")
+    if result.attrs.get("sensitivity_method") == "tangent" and result.attrs.get("state_dependent_k"):
+        print("note: k of this scenario depend on the box's state; the tangent takes them as "
+              "observed and does not differentiate that feedback (check with --method differences)")
     if result.attrs.get("sensitivity_method") == "tangent":
         print(f"one tangent-linear run ({result.sizes['parameter']} parameters, "
               f"{result.attrs['tangent_steps']} steps) in {time.perf_counter() - wall0:.1f} s; "
