@@ -1,7 +1,7 @@
-"""Local sensitivities by batched finite differences on the ensemble engine.
+"""Local sensitivities: the tangent-linear run and batched finite differences (its check).
 
 * closed form: the first-order chain A -> B -> C (tests/conftest_sensitivity.py)
-  to 1e-6 in S;
+  to 1e-6 in S, by both methods;
 * finite-difference agreement on polar-spring: the ten largest coefficients
   of O3 on 1 October against brute-force central differences of separate
   single runs (``boxchem.run(scale=...)``) at tighter tolerances and another
@@ -26,12 +26,13 @@ from boxchem.diagnostics.metrics import MetricError, parse_metrics
 from conftest_sensitivity import A0, HOURS, K1, K2, chain_b, chain_db, write_chain
 
 
-@pytest.fixture(scope="module")
-def chain_sensitivities(tmp_path_factory):
+@pytest.fixture(scope="module", params=["tangent", "differences"])
+def chain_sensitivities(tmp_path_factory, request):
     path = write_chain(tmp_path_factory.mktemp("chain"))
     metrics = ["B at end", "A at end", "C at start+5h", "loss AB by conversion over start..end"]
-    # step 5e-4: truncation ~h^2/6 ~ 4e-8 relative, integrator noise ~rtol/h ~ 2e-7
-    return local_sensitivities(path, metrics, step=5e-4, species=["B"], initial=["A"])
+    # differences: step 5e-4: truncation ~h^2/6 ~ 4e-8 relative, integrator noise ~rtol/h ~ 2e-7
+    return local_sensitivities(path, metrics, step=5e-4, species=["B"], initial=["A"],
+                               method=request.param)
 
 
 def test_closed_form_chain_sensitivities(chain_sensitivities):
@@ -72,7 +73,10 @@ def test_closed_form_loss_metric_and_time_resolved(chain_sensitivities):
     np.testing.assert_allclose(series[0, 1:], K1 * db1[1:] / b[1:], atol=1e-6)
     np.testing.assert_allclose(series[1, 1:], K2 * db2[1:] / b[1:], atol=1e-6)
     assert np.isnan(series[0, 0])        # B = 0 at the start: ln B undefined, not 0
-    assert r.attrs["finite_difference_scheme"] == "central" and r.attrs["members"] == 7
+    if r.attrs["sensitivity_method"] == "differences":
+        assert r.attrs["finite_difference_scheme"] == "central" and r.attrs["members"] == 7
+    else:
+        assert r.attrs["members"] == 1
     # first-order kinetics: every amount is proportional to A0, so d ln m / d ln A0 = 1
     np.testing.assert_allclose(r["sensitivity"].sel(parameter="initial.A").values, 1.0, atol=1e-6)
 
@@ -81,7 +85,8 @@ def test_forward_differences_are_first_order(tmp_path):
     # forward differences err by ~h/2 x curvature: at h = 0.05 the error on S_k1 of A(t)
     # (ln A = -k1 t is exponential in ln k1) is S (e^h - 1)/h - S = -3.6 x 0.0254
     path = write_chain(tmp_path, rtol=1e-9)
-    r = local_sensitivities(path, "A at end", step=0.05, scheme="forward", species=())
+    r = local_sensitivities(path, "A at end", step=0.05, scheme="forward", species=(),
+                            method="differences")
     t = HOURS * 3600.0
     expected = -K1 * t * (np.exp(0.05) - 1) / 0.05
     assert float(r["sensitivity"].sel(metric="A at end", parameter="scale.a_to_b")) == pytest.approx(expected, rel=1e-5)
@@ -116,6 +121,8 @@ def test_bad_inputs_are_clear_errors(tmp_path):
         local_sensitivities(path, "B at end", reactions=["a_tob"])
     with pytest.raises(SensitivityError, match="non-zero initial mole fraction"):
         local_sensitivities(path, "B at end", initial=["B"])
+    with pytest.raises(SensitivityError, match="method: expected one of auto, tangent, differences"):
+        local_sensitivities(path, "B at end", method="adjoint")
 
 
 # ---------------------------------------------------------------------------
@@ -134,6 +141,10 @@ def polar_spring_sensitivities():
 
 def test_ten_largest_agree_with_separate_single_runs(polar_spring_sensitivities):
     scenario, r = polar_spring_sensitivities
+    # the default (auto) takes the differences here: polar-spring's surfaces follow the box's
+    # composition, a feedback the tangent does not differentiate
+    assert r.attrs["sensitivity_method"] == "differences"
+    assert r.attrs["method_choice"].startswith("auto: differences")
     # brute force: separate boxchem.run calls with scale=, tighter tolerances and another
     # step (h = 0.02), so that the integrator's error and the step's truncation both count
     tight = scenario.with_overrides(**{"solver.rtol": 1e-6, "solver.atol": "1e-2 cm-3"})

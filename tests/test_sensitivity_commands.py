@@ -21,10 +21,19 @@ def test_sensitivity_command_writes_ranking_plot_and_netcdf(tmp_path, capsys):
     r = xr.load_dataset(out)
     t = HOURS * 3600.0
     _, db2 = chain_db(t)
-    # the default step h = 0.05 errs by ~h^2/6 x the third log-derivative: within 1e-3 of S
+    # the default (tangent-linear run) at rtol 1e-9: to 1e-6 of the closed form
     assert float(r["sensitivity"].sel(metric="B at end", parameter="scale.b_to_c")) == \
+        pytest.approx(K2 * db2 / chain_b(t), abs=1e-6)
+    assert "species_sensitivity" in r and r.attrs["sensitivity_method"] == "tangent"
+    assert "one tangent-linear run (2 parameters" in text and "method: auto: tangent" in text
+    # the check: central differences; the default step h = 0.05 errs by ~h^2/6 x the third
+    # log-derivative: within 1e-3 of S
+    assert main(["sensitivity", str(path), "--metric", "B at end", "-q", "--no-plot", "--method",
+                 "differences", "-o", str(tmp_path / "d.nc")]) == 0
+    d = xr.load_dataset(tmp_path / "d.nc")
+    assert float(d["sensitivity"].sel(metric="B at end", parameter="scale.b_to_c")) == \
         pytest.approx(K2 * db2 / chain_b(t), abs=1e-3)
-    assert "species_sensitivity" in r and r.attrs["finite_difference_step_ln"] == 0.05
+    assert d.attrs["finite_difference_step_ln"] == 0.05
     assert (tmp_path / "s-tornado.png").stat().st_size > 10_000
     assert (tmp_path / "rank.csv").read_text().startswith("metric,rank,parameter")
 
@@ -70,6 +79,10 @@ def test_uncertainty_command_and_the_change_beside_the_spread(tmp_path, capsys):
 @pytest.mark.parametrize("argv, expected", [
     (["sensitivity", "{path}", "--metric", "D at end"], "unknown species 'D'"),
     (["sensitivity", "{path}", "--metric", "B at 2027-01-01"], "outside the run"),
+    (["sensitivity", "{path}", "--metric", "B at end", "--reactions", "a_tob"],
+     "unknown reaction(s) 'a_tob' (did you mean 'a_to_b'?)"),
+    (["sensitivity", "{path}", "--metric", "B at end", "--method", "tangent", "--step", "0.01"],
+     "add --method differences"),
     (["uncertainty", "{path}", "--metric", "B at end", "--members", "1"], "at least 2 members"),
     (["uncertainty", "{path}", "--metric", "B at end", "--changed", "nowhere.mech"], "no such file"),
     (["uncertainty", "--baseline", "missing.nc"], "no such file"),

@@ -1,4 +1,4 @@
-"""Local sensitivities S_i = d ln(metric) / d ln(p_i) by batched finite differences.
+"""Local sensitivities S_i = d ln(metric) / d ln(p_i): tangent-linear run or batched differences.
 
 Every parameter of a scenario at once: the rate coefficient of each thermal
 reaction, each photolysis J and each surface gamma (``scale.<id>``), and
@@ -19,10 +19,19 @@ Method (docs/sensitivity-uncertainty.md, "Local sensitivities"):
   metric) adds at most ~1e-3 to S, small enough that the truncation error
   stays below ~1e-3 relative for the smooth responses of a box model;
   ``step`` and ``scheme="forward"`` (half the members) are settings;
-* a tangent-linear (direct-decoupled) mode is NOT built in this round: it
-  would ride on the solver's LU factorisations, but needs the derivative of
-  the tabulated k(t) and a second error-controlled state; the finite
-  differences here are its planned check once it exists.
+* ``method="tangent"`` instead integrates S = dy/d ln p for
+  every parameter alongside the nominal run's Rosenbrock steps, with the
+  step's LU (:mod:`boxchem.solver.tangent`), and linearises the metrics on
+  the output (:mod:`boxchem.analysis.tangent_sensitivity`): one run instead
+  of 2N + 1 members, no step to choose, and the exact derivative of the
+  discrete solution.  The finite differences stay as its check (tests,
+  benchmarks/bench_sensitivity.py) and for what the tangent does not
+  differentiate: the feedback of the box's composition on state-dependent k
+  (surfaces that follow the composition, the ozone column following the box)
+  is in the differences but not in the tangent.  ``method="auto"`` (the
+  default) therefore takes the tangent unless the scenario has such k
+  (measured on the polar-spring season: 7 % on ClO + OH -> HCl, 1-2 % on the
+  leading coefficients; docs/sensitivity-uncertainty.md).
 
 Time-resolved sensitivities d ln x_s(t) / d ln p_i of chosen species come
 from the same members.
@@ -41,7 +50,12 @@ from ..errors import BoxchemError
 from .sampling import finite_difference_table, parameter_kind
 
 __all__ = ["local_sensitivities", "sensitivities_from_members", "ranking", "parameter_columns",
-           "DEFAULT_STEP", "run_ensemble"]
+           "DEFAULT_STEP", "run_ensemble", "METHODS", "DEFAULT_METHOD"]
+
+#: ways of computing the local sensitivities (module docstring); "auto" is the tangent
+#: unless the scenario's k depend on the box's state (their feedback is not in the tangent)
+METHODS = ("auto", "tangent", "differences")
+DEFAULT_METHOD = "auto"
 
 #: default finite-difference step in ln p (see the module docstring)
 DEFAULT_STEP = 0.05
@@ -107,15 +121,19 @@ def run_ensemble(scenario, table, *, variables: Sequence[str] = (), **engine):
 def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric], *,
                         reactions="all", initial=(), step: float = DEFAULT_STEP,
                         scheme: str = "central", species: Sequence[str] | None = None,
-                        **engine) -> xr.Dataset:
+                        method: str = DEFAULT_METHOD, **engine) -> xr.Dataset:
     """Normalised local sensitivities of each metric to every parameter.
 
     ``scenario``: name, path or Scenario; ``metrics``: metric text(s)
     (:mod:`boxchem.diagnostics.metrics`); ``reactions``, ``initial``: see
     :func:`parameter_columns`; ``step``: h in ln p; ``scheme``: "central" or
     "forward"; ``species``: species whose time-resolved sensitivities are
-    kept (default O3 when the mechanism has it).  ``engine``: options of :func:`boxchem.ensemble` (``workers``,
-    ``scheduler``, ``client``, ``progress``, ``output`` for the member file, ...).
+    kept (default O3 when the mechanism has it).  ``method``: "tangent" (one
+    tangent-linear run; ``step`` and ``scheme`` unused), "differences" (the
+    ensemble) or "auto" (default: the tangent unless some k depend on the box's
+    state, whose feedback only the differences see).  ``engine``: options of :func:`boxchem.ensemble` (``workers``,
+    ``scheduler``, ``client``, ``progress``, ``output`` for the member file, ...);
+    the tangent run uses only ``progress``.
 
     Returns a Dataset: ``sensitivity`` (metric, parameter) [1],
     ``metric_value`` (metric) of the nominal run, ``species_sensitivity``
@@ -132,6 +150,23 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
     species = [check_name(s, context.species, "species", "time-resolved sensitivities",
                               context) for s in species]
     columns, nominal = parameter_columns(scenario, reactions=reactions, initial=initial)
+    if method not in METHODS:
+        raise SensitivityError(f"method: expected one of {', '.join(METHODS)}, got {method!r}")
+    setup, choice = None, f"{method} (asked for)"
+    if method != "differences":
+        from ..runner import prepare, state_observer
+        setup = prepare(scenario)
+        if method == "auto":
+            feedback = state_observer(setup) is not None
+            method = "differences" if feedback else "tangent"
+            choice = ("auto: differences, because k depend on the box's state (surfaces or the "
+                      "ozone column following the composition), whose feedback the tangent does "
+                      "not differentiate" if feedback else
+                      "auto: tangent (no k depends on the box's state)")
+    if method == "tangent":
+        out = _tangent_result(scenario, parsed, columns, species, engine.get("progress"), setup)
+        out.attrs["method_choice"] = choice
+        return out
     table, labels, plan = finite_difference_table(columns, step=step, scheme=scheme,
                                                   initial=nominal)
     table["member_label"] = labels
@@ -140,8 +175,62 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
     wall = _time.perf_counter() - wall0
     result = sensitivities_from_members(members, parsed, plan, step=step, scheme=scheme,
                                         species=species, mechanism=scenario.mechanism)
-    result.attrs.update(ensemble_wall_time_s=wall, ensemble_members=len(table))
+    result.attrs.update(ensemble_wall_time_s=wall, ensemble_members=len(table), method_choice=choice)
     return result
+
+
+def _tangent_result(scenario, metrics, columns, species, progress, setup=None) -> xr.Dataset:
+    """``local_sensitivities`` by the tangent-linear run, in the same layout as the differences'."""
+    from .tangent_sensitivity import tangent_sensitivities
+    bar = None
+    if progress is True:
+        from ..progress import ProgressBar
+        bar = progress = ProgressBar(scenario.duration_s)
+    wall0 = _time.perf_counter()
+    try:
+        S, values, series, times, attrs = tangent_sensitivities(scenario, metrics, columns, species,
+                                                                progress=progress or None,
+                                                                setup=setup)
+    finally:
+        if bar is not None:
+            bar.close()
+    kinds, equations = _kinds_and_equations(columns, scenario.mechanism)
+    out = xr.Dataset(
+        {"sensitivity": (("metric", "parameter"), S,
+                         {"units": "1", "long_name": "normalised local sensitivity "
+                          "d ln(metric) / d ln(parameter)"}),
+         "metric_value": ("metric", values.values,
+                          {"long_name": "value of each metric in the nominal run",
+                           "comment": "units in metric_units"}),
+         "parameter_failed": ("parameter", np.zeros(len(columns), dtype=np.int8),
+                              {"long_name": "1 where a member of this parameter's stencil failed "
+                               "(sensitivity NaN)"})},
+        coords={"metric": values["metric"].values,
+                "metric_definition": ("metric", values["metric_definition"].values),
+                "metric_units": ("metric", values["metric_units"].values),
+                "parameter": list(columns),
+                "parameter_kind": ("parameter", kinds),
+                "equation": ("parameter", equations)})
+    if series is not None:
+        out["species_sensitivity"] = (("parameter", "time", "sensitivity_species"), series,
+                                      {"units": "1", "long_name": "time-resolved sensitivity "
+                                       "d ln(mole fraction) / d ln(parameter)",
+                                       "comment": "tangent-linear: S / y at the output times"})
+        out = out.assign_coords(time=times, sensitivity_species=list(species))
+    out.attrs.update({
+        "boxchem_result_kind": "sensitivity",
+        "method": "tangent-linear (forward sensitivities on the Rosenbrock steps with the "
+                  "step's LU; metrics linearised on the output)",
+        "sensitivity_method": "tangent",
+        "not_differentiated": "the feedback of the box's composition on state-dependent k "
+                              "(surfaces following the composition, ozone column following "
+                              "the box): those k are taken as observed in the nominal run",
+        "failed_members": 0,
+        "members": 1,
+        "ensemble_members": 1,
+        "ensemble_wall_time_s": _time.perf_counter() - wall0,
+        **attrs})
+    return out
 
 
 def _kinds_and_equations(parameters, mechanism):
@@ -213,7 +302,8 @@ def sensitivities_from_members(members: xr.Dataset, metrics: Sequence[Metric], p
         "boxchem_result_kind": "sensitivity",
         "finite_difference_scheme": scheme,
         "finite_difference_step_ln": float(step),
-        "method": "batched finite differences on the ensemble engine (no tangent-linear mode)",
+        "method": "batched finite differences on the ensemble engine",
+        "sensitivity_method": "differences",
         "failed_members": int((~ok).sum()),
         "members": int(members.sizes["member"]),
     })

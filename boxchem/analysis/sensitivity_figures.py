@@ -66,10 +66,13 @@ def tornado(result: xr.Dataset, metric: str | None = None, top: int = 20):
                   fontsize=8)
     ax.axvline(0.0, color="black", lw=0.8)
     ax.set_xlabel("sensitivity  d ln(metric) / d ln(parameter)")
+    if result.attrs.get("sensitivity_method") == "tangent":
+        how = "tangent-linear run"
+    else:
+        how = (f"{result.attrs.get('finite_difference_scheme', '')} differences, "
+               f"h = {result.attrs.get('finite_difference_step_ln', float('nan')):g} in ln p")
     ax.set_title(f"{result.attrs.get('scenario_source', '')}: {metric}\nlargest {len(rows)} local sensitivities "
-                 f"({result.attrs.get('finite_difference_scheme', '')} differences, "
-                 f"h = {result.attrs.get('finite_difference_step_ln', float('nan')):g} in ln p)",
-                 fontsize=9)
+                 f"({how})", fontsize=9)
     handles = [plt.Rectangle((0, 0), 1, 1, color=c) for k, c in KIND_COLOURS.items() if k and
                k in {r["kind"] for r in rows}]
     labels = [k for k in KIND_COLOURS if k and k in {r["kind"] for r in rows}]

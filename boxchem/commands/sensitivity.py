@@ -17,8 +17,11 @@ Metrics (several with ';' or repeated --metric):
   mean|noon|max|min SPECIES on DATE    or ... over TIME..TIME
   loss [FAMILY] [by CYCLE] over PERIOD accumulated loss [mol mol-1], total or by cycle
   share CYCLE over PERIOD              a cycle's fraction of the total loss
-Every reaction (thermal k, J, surface gamma) is varied by exp(+-h) in one batched
-ensemble (central differences, h = 0.05 by default: see docs/sensitivity-uncertainty.md).
+--method tangent: one tangent-linear run carries d y/d ln k of every reaction (thermal
+k, J, surface gamma) on the nominal run's own steps; --method differences varies each
+by exp(+-h) in one batched ensemble (central differences, h = 0.05; the check); the
+default auto takes the tangent unless k depend on the box's state (e.g. polar-spring's
+surfaces), whose feedback only the differences see: docs/sensitivity-uncertainty.md.
 Writes OUT.nc (sensitivities, time-resolved species sensitivities), OUT-tornado.png and
 prints the ranking."""
 
@@ -69,8 +72,8 @@ def register(subparsers) -> None:
     p = subparsers.add_parser(
         "sensitivity", help="local sensitivity of metrics to every rate coefficient, J and gamma",
         description="Normalised local sensitivities d ln(metric)/d ln(k) of every reaction by "
-                    "batched finite differences on the ensemble engine: a ranking table, a "
-                    "tornado plot and a netCDF file.",
+                    "one tangent-linear run (default) or batched finite differences on the "
+                    "ensemble engine: a ranking table, a tornado plot and a netCDF file.",
         epilog=EXAMPLE, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("scenario", metavar="SCENARIO", help="shipped scenario name or path to a .toml file")
     p.add_argument("--metric", action="append", required=True, metavar="METRIC",
@@ -79,8 +82,13 @@ def register(subparsers) -> None:
                    help="reactions to vary (default all)")
     p.add_argument("--initial", default=None, metavar="SPECIES,...|all",
                    help="also differentiate with respect to these initial mole fractions")
+    p.add_argument("--method", choices=("auto", "tangent", "differences"), default="auto",
+                   help="tangent (one run with forward sensitivities), differences (central "
+                        "differences on the ensemble engine; the check) or auto (default: tangent "
+                        "unless k depend on the box's state, e.g. surfaces following the "
+                        "composition, whose feedback only the differences see)")
     p.add_argument("--step", type=float, default=None, metavar="H",
-                   help="finite-difference step in ln k (default 0.05)")
+                   help="finite-difference step in ln k (--method differences; default 0.05)")
     p.add_argument("--scheme", choices=("central", "forward"), default="central",
                    help="central (default, 2N+1 members) or forward differences (N+1 members)")
     p.add_argument("--species", default=None, metavar="SPECIES,...",
@@ -121,12 +129,18 @@ def main(args) -> int:
     from ..io.netcdf import write_dataset
     scenario = load_with_overrides(args.scenario, args.overrides)
     reactions = _names(args.reactions) or "all"
+    if args.step is not None or args.scheme != "central":
+        if args.method == "tangent":
+            from ..errors import BoxchemError
+            raise BoxchemError("--step and --scheme set the finite differences; add --method "
+                               "differences to use them (the tangent-linear run needs no step)")
+        args.method = "differences"
     wall0 = time.perf_counter()
     result = local_sensitivities(scenario, args.metric, reactions=reactions,
                                  initial=_names(args.initial) or (),
                                  step=args.step or DEFAULT_STEP, scheme=args.scheme,
                                  species=None if args.species is None else list(_names(args.species)),
-                                 **engine_options(args))
+                                 method=args.method, **engine_options(args))
     out = Path(args.output) if args.output else Path(f"{Path(str(args.scenario)).stem}-sensitivity.nc")
     result.attrs["command"] = " ".join(["boxchem", *sys.argv[1:]]) if sys.argv else ""
     metrics = [str(m) for m in result["metric"].values]
@@ -161,8 +175,17 @@ def main(args) -> int:
         if metric == result.attrs.get("global_metric"):
             print(global_text(result))
     failed = int(result.attrs.get("failed_members", 0))
-    print(f"{result.attrs['ensemble_members']} members ({failed} failed) in "
-          f"{time.perf_counter() - wall0:.1f} s; wrote {', '.join(written)}")
+    print(f"method: {result.attrs.get('method_choice', result.attrs.get('sensitivity_method'))}")
+    if result.attrs.get("sensitivity_method") == "tangent" and result.attrs.get("state_dependent_k"):
+        print("note: k of this scenario depend on the box's state; the tangent takes them as "
+              "observed and does not differentiate that feedback (check with --method differences)")
+    if result.attrs.get("sensitivity_method") == "tangent":
+        print(f"one tangent-linear run ({result.sizes['parameter']} parameters, "
+              f"{result.attrs['tangent_steps']} steps) in {time.perf_counter() - wall0:.1f} s; "
+              f"wrote {', '.join(written)}")
+    else:
+        print(f"{result.attrs['ensemble_members']} members ({failed} failed) in "
+              f"{time.perf_counter() - wall0:.1f} s; wrote {', '.join(written)}")
     return 1 if failed else 0
 
 

@@ -197,6 +197,9 @@ class BatchResult:
     #: the members' own state-dependent surface k at the output times, computed on demand
     #: from ``y`` (a :class:`~boxchem.solver.statesurfaces.MemberSurfaceK`), or None
     surface_k: object = None
+    #: with ``tangent``: dy/dp at the output times, (n_out, n_params, n_output_species) [cm-3]
+    #: (rows: the TangentParameters' reactions then initial values; columns its output_species)
+    sensitivity: np.ndarray | None = None
 
     @property
     def n_members(self) -> int:
@@ -382,7 +385,8 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                     breakpoint_width_s: float = BREAKPOINT_WIDTH_S, on_accept=None,
                     lu: str = "sparse", surface_feedback: str = "member",
                     state_map=None, step_policy: str = "auto",
-                    lockstep_group: int | None = None) -> BatchResult:
+                    lockstep_group: int | None = None,
+                    tangent=None) -> BatchResult:
     """Integrate a batch of members through shared output times with one compiled loop.
 
     Members share the kinetics, the k(t) tables of ``coefficients`` (a
@@ -438,6 +442,10 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         (default): lock-step for batches of at least LOCKSTEP_MIN_MEMBERS members, else
         per-member (DEVELOPERS.md, "Solver": measured choice and accuracy bound)
     lockstep_group : members per lock-step group (default LOCKSTEP_GROUP)
+    tangent : a :class:`~boxchem.solver.tangent.TangentParameters`, single-member batches
+        only: also integrate the forward sensitivities S = dy/dp (p = ln factor on k, ln y0)
+        on the same steps with the same LU (``solver/tangent.py``); returned as
+        ``BatchResult.sensitivity``
 
     Returns
     -------
@@ -467,6 +475,11 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         raise ValueError(f"lockstep_group: expected at least 1 member, got {lockstep_group!r}")
     if n_members == 1 or group == 1:
         policy = "per-member"    # a group of one steps on its own error norm: the per-member kernel
+    if tangent is not None:
+        if n_members != 1:
+            raise ValueError(f"tangent: forward sensitivities are for a batch of one member, got "
+                             f"{n_members} members")
+        tangent = tangent.validated(kinetics)
     if lu not in ("sparse", "dense"):
         raise ValueError(f"lu: expected 'sparse' or 'dense', got {lu!r}")
     if surface_feedback not in ("member", "member_exact", "rebuild"):
@@ -525,6 +538,16 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                        FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP, FIXED_DIFFERENCE,
                        cm.PIVOT_TOLERANCE if lu == "sparse" else -1.0])
     counters = np.zeros((n_members, len(COUNTERS)), dtype=np.int64)
+    if tangent is not None:
+        from . import tangent as tl
+        tan_arrays = (tangent.param_reaction(),) + tl.tangent_slots(kinetics, kin_arrays)
+        out_rows = np.arange(nv, dtype=np.int64) if tangent.output_species is None else \
+            np.asarray(tangent.output_species, dtype=np.int64)
+        sens = np.zeros((nv, tangent.n_params))     # species-major: the kernel's layout
+        for q, j in enumerate(tangent.initial):
+            sens[j, len(tangent.reactions) + q] = y[0, j]     # d y0_j / d ln y0_j
+        sens_out = np.full((n_out, tangent.n_params, out_rows.size), np.nan)
+        sens_out[0] = sens[out_rows].T
     info = np.zeros((n_members, 3))
     status = np.zeros(n_members, dtype=np.int64)
     failure = np.full((n_members, 3), np.nan)      # time, step, worst species index
@@ -574,13 +597,21 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                 lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
             fm_window = fm.copy()
             fm_window[:, columns] = np.exp(lm_window[:, columns])
-        for a, b in groups:     # one call per lock-step group (the whole batch when per member)
-            kernel(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys[a:b],
-                   outputs_reached[a:b], y[a:b], h[a:b], restart[a:b], status[a:b], h_max, table.t_a,
-                   table.t_b, table.poly, table.log_col, table.sza_poly, table.sgrid, table.lnj,
-                   table.phot_cols, table.horizon, lm_window[a:b], fm_window[a:b], rtol, atol,
-                   *m_arrays, *kin_arrays[:8], lu_arrays[0], *lu_arrays[1:], kinetics.n_fixed,
-                   counters[a:b], info[a:b], params)
+        if tangent is None:
+            for a, b in groups:     # one call per lock-step group (the whole batch when per member)
+                kernel(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys[a:b],
+                       outputs_reached[a:b], y[a:b], h[a:b], restart[a:b], status[a:b], h_max, table.t_a,
+                       table.t_b, table.poly, table.log_col, table.sza_poly, table.sgrid, table.lnj,
+                       table.phot_cols, table.horizon, lm_window[a:b], fm_window[a:b], rtol, atol,
+                       *m_arrays, *kin_arrays[:8], lu_arrays[0], *lu_arrays[1:], kinetics.n_fixed,
+                       counters[a:b], info[a:b], params)
+        else:
+            tl.advance_tangent(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
+                               sens_out, out_rows, outputs_reached, y, sens, *tan_arrays, h, restart,
+                               status, h_max, table.t_a, table.t_b, table.poly, table.log_col,
+                               table.sza_poly, table.sgrid, table.lnj, table.phot_cols, table.horizon,
+                               lm_window, fm_window, rtol, atol, *m_arrays, *kin_arrays[:8], lu_arrays[0],
+                               *lu_arrays[1:], kinetics.n_fixed, counters, info, params)
         newly_failed = running_before & (status != 0)
         if newly_failed.any():
             failure[newly_failed] = info[newly_failed]
@@ -640,7 +671,11 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                                  "lu": (f"sparse, fixed pattern ({structure.order_name} order, "
                                         f"{structure.nnz} non-zeros, {structure.operations} "
                                         f"multiply-adds), dense pivoting fallback")
-                                 if lu == "sparse" else "dense, partial pivoting"})
+                                 if lu == "sparse" else "dense, partial pivoting",
+                                 **({"tangent": "forward sensitivities on the same steps (the "
+                                     "augmented Rosenbrock system, S not in the error norm)"}
+                                    if tangent is not None else {})},
+                       sensitivity=None if tangent is None else sens_out)
 
 
 def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(),
