@@ -490,6 +490,15 @@ def state_observer(setup: RunSetup, surface_feedback: str = "member"):
     return observe
 
 
+def state_feedback(setup: RunSetup) -> bool:
+    """True when some k or the state itself follows the box's composition as it runs:
+    state-dependent surfaces, the ozone column following the box, or the phase
+    equilibrium (what a tangent-linear run does not differentiate)."""
+    return bool(getattr(setup.coefficients, "state_dependent", False)
+                or getattr(setup.photolysis, "observe", None) is not None
+                or phase_state_map(setup) is not None)
+
+
 def phase_state_map(setup: RunSetup):
     """The time loop's ``state_map``: the gas/condensed partition of HNO3 and H2O over NAT,
     STS and ice (``environment/condensation.py``), or None when the run has none."""

@@ -172,4 +172,6 @@ def test_sunlit_polar_spring_ranking_is_led_by_the_dimer_cycle_and_clo_bro(polar
     for rid in ("clo_clo_m", "j_cl2o2", "clo_bro_b"):
         assert float(S.sel(parameter=f"scale.{rid}")) > 0.1
         assert float(r["sensitivity"].sel(metric="o3", parameter=f"scale.{rid}")) < 0
-    assert float(S.sel(parameter="scale.het_clono2_hcl_ice")) == 0.0
+    # (zero up to the solver's noise: the + and - members may sit in different lock-step
+    # groups, which take different steps; common practice, no source)
+    assert abs(float(S.sel(parameter="scale.het_clono2_hcl_ice"))) < 1e-6

@@ -154,13 +154,13 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
         raise SensitivityError(f"method: expected one of {', '.join(METHODS)}, got {method!r}")
     setup, choice = None, f"{method} (asked for)"
     if method != "differences":
-        from ..runner import prepare, state_observer
+        from ..runner import prepare, state_feedback
         setup = prepare(scenario)
         if method == "auto":
-            feedback = state_observer(setup) is not None
+            feedback = state_feedback(setup)
             method = "differences" if feedback else "tangent"
-            choice = ("auto: differences, because k depend on the box's state (surfaces or the "
-                      "ozone column following the composition), whose feedback the tangent does "
+            choice = ("auto: differences, because k or the state follow the box's composition "
+                      "(surfaces, the ozone column, the NAT/ice phase equilibrium), whose feedback the tangent does "
                       "not differentiate" if feedback else
                       "auto: tangent (no k depends on the box's state)")
     if method == "tangent":

@@ -56,7 +56,8 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
     or None, times, attrs)``.
     """
     from ..diagnostics.metrics import evaluate_metrics
-    from ..runner import _dataset_from_result, prepare, solver_options, state_observer
+    from ..runner import (_dataset_from_result, phase_state_map, prepare, solver_options, state_feedback,
+                          state_observer)
     from ..solver.tangent import TangentParameters, rate_tangents
     from ..solver.timeloop import integrate_batch
 
@@ -71,7 +72,7 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
         raise TangentSensitivityError(f"{scenario.source}: {exc}") from None
     result = integrate_batch(kin, setup.coefficients, setup.y0[None, :], setup.output_times_s,
                              breakpoints_s=setup.breakpoints_s, on_accept=state_observer(setup),
-                             progress=progress, tangent=tp, **solver_options(scenario))
+                             state_map=phase_state_map(setup), progress=progress, tangent=tp, **solver_options(scenario))
     integration_s = _time.perf_counter() - wall0
     if result.status[0] != 0:
         raise TangentSensitivityError(f"{scenario.source}: the tangent-linear run failed: "
@@ -142,7 +143,7 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
                 cols.append(np.zeros((n_out, n_p)))
         series = np.stack(cols, axis=-1).transpose(1, 0, 2)             # (parameter, time, species)
     attrs = {"tangent_integration_wall_time_s": integration_s,
-             "state_dependent_k": int(state_observer(setup) is not None),
+             "state_dependent_k": int(state_feedback(setup)),
              "tangent_steps": int(result.steps[0]),
              "tangent_rejected_steps": int(result.rejected_steps[0]),
              "metric_linearisation_step_ln": METRIC_EPS}
