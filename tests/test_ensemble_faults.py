@@ -58,8 +58,11 @@ def worker_pids(parent: int) -> list[int]:
 
 @pytest.fixture(scope="module")
 def reference():
-    """The members run in this process, one batch: what every fault-hit run must reproduce."""
-    return boxchem.ensemble("stratosphere-box", MEMBERS, save="mole_fraction", batch_size=10)
+    """The members run in this process, one batch: what every fault-hit run must reproduce
+    (per-member step control, so that re-grouping after a fault cannot change a number;
+    lock-step groups are identical only when grouped the same)."""
+    return boxchem.ensemble("stratosphere-box", MEMBERS, save="mole_fraction", batch_size=10,
+                            step_policy="per-member")
 
 
 @pytest.mark.skipif(not sys.platform.startswith("linux"), reason="reads /proc")
@@ -144,7 +147,9 @@ def test_sigint_keeps_finished_members_and_resume_completes_them(reference, tmp_
     state = mf.read_member_state(out)                # valid netCDF, finished members kept
     done = state["status"] == mf.STATUS_SUCCESS
     assert 2 <= done.sum() < 10
-    ds = boxchem.ensemble("stratosphere-box", MEMBERS, output=out, save="mole_fraction", resume=True)
+    # the interrupted run had batches of one (per-member control); the resumed members too
+    ds = boxchem.ensemble("stratosphere-box", MEMBERS, output=out, save="mole_fraction", resume=True,
+                          step_policy="per-member")
     assert ds["member_status"].values.tolist() == [1] * 10
     np.testing.assert_allclose(ds["mole_fraction"].values, reference["mole_fraction"].values,
                                rtol=1e-12, atol=0)
