@@ -31,7 +31,7 @@ from boxchem.analysis.sensitivity import local_sensitivities, ranking
 
 
 def _kernel_times(scenario) -> tuple[float, float, int]:
-    from boxchem.runner import prepare, solver_options, state_observer
+    from boxchem.runner import phase_state_map, prepare, solver_options, state_observer
     from boxchem.solver.tangent import TangentParameters
     from boxchem.solver.timeloop import integrate_batch
     setup = prepare(scenario)
@@ -41,7 +41,7 @@ def _kernel_times(scenario) -> tuple[float, float, int]:
         t0 = time.perf_counter()
         integrate_batch(kin, setup.coefficients, setup.y0[None], setup.output_times_s,
                         breakpoints_s=setup.breakpoints_s, on_accept=state_observer(setup),
-                        tangent=tangent, **solver_options(scenario))
+                        state_map=phase_state_map(setup), tangent=tangent, **solver_options(scenario))
         return time.perf_counter() - t0
     base = run()
     tangent = run(TangentParameters(tuple(range(kin.n_reactions))))
