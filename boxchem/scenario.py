@@ -1116,17 +1116,9 @@ def _equilibrium_rule(value: Mapping, where: str, err: _Errors):
         err.add(f"{where}.rule", "rule \"ice\" belongs to [environment].ice_surface_area")
         ok = False
     default_n = 1.0 if kind == "nat" else 0.01
-    raw = value.get("particle_number_density", default_n)
-    number = None
-    if isinstance(raw, (int, float)) and not isinstance(raw, bool):
-        number = float(raw)
-    elif isinstance(raw, str) and raw.replace(" ", "").endswith("cm-3"):
-        try:
-            number = float(raw.replace(" ", "")[:-4])
-        except ValueError:
-            number = None
-    if number is None or not (number > 0 and math.isfinite(number)):
-        err.add(f"{where}.particle_number_density", f"got {raw!r}; valid: a number density > 0, e.g. \"1 cm-3\"")
+    number = _number_density(value.get("particle_number_density"), default_n,
+                             f"{where}.particle_number_density", err)
+    if number is None:
         ok = False
     sigma = value.get("geometric_std", 1.8)
     if not (isinstance(sigma, (int, float)) and not isinstance(sigma, bool) and math.isfinite(sigma)
