@@ -470,7 +470,7 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
         bar.close()
         done = int(np.sum(mf.read_member_state(path)["status"] != mf.STATUS_PENDING)) \
             if path.exists() else 0
-        where = f"kept in {path}; continue with resume" if keep else "discarded (no output file)"
+        where = f"kept in {path} (resume=True runs the rest)" if keep else "discarded (no output file)"
         raise EnsembleInterrupted(f"interrupted: {done} of {len(table)} members finished, {where}",
                                   done=done, total=len(table), output=str(path) if keep else None) \
             from None

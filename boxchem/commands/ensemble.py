@@ -101,9 +101,10 @@ def run_engine(args, table, out) -> int:
                       progress=not args.quiet, member_time_limit_s=args.member_time_limit,
                       step_policy=getattr(args, "step_policy", "auto"))
     except EnsembleInterrupted as exc:
-        how = "" if exc.output is None else \
-            f"; continue with: boxchem {args.command} ... -o {out} --resume"
-        print(f"boxchem {args.command}: {exc}{how}", file=sys.stderr)
+        where = (f"kept in {exc.output}; continue with: boxchem {args.command} ... -o {out} --resume"
+                 if exc.output is not None else "discarded (no output file)")
+        print(f"boxchem {args.command}: interrupted: {exc.done} of {exc.total} members finished, "
+              f"{where}", file=sys.stderr)
         return 130
     finally:
         signal.signal(signal.SIGTERM, previous)
