@@ -80,6 +80,8 @@ class BatchTask:
     save: tuple[str, ...]
     time_limit_s: float | None = None
     step_policy: str = "auto"           # integrate_batch's step_policy
+    #: a member that fails the conservation guard is a failed member (``--strict``)
+    strict: bool = False
     attempt: int = 0
     mechanism_sha256: str = ""
     table_source: str = "<table>"
@@ -107,6 +109,10 @@ class BatchOutput:
     #: "" for a normal result; "timeout" or "error" when the batch as a whole did not run
     #: (the engine then re-runs its members one by one)
     fault: str = ""
+    #: the conservation guard per member (``diagnostics.conservation.member_checks``), kept
+    #: for failed members too; ``check_names`` = (elements, fixed species) of its columns
+    checks: dict = field(default_factory=dict)
+    check_names: tuple = ((), ())
 
 
 def transferable_scenario(scenario) -> tuple:
@@ -159,6 +165,19 @@ class _Group:
         self.state = setup.environment.at(setup.output_times_s)
         self.air0 = float(np.asarray(setup.environment.at(0.0).air_density))
         self.base_multiplier = setup.coefficients.multiplier.copy()
+        from ..diagnostics.conservation import ConservationCheck, expected_fixed_fractions
+        self.check = ConservationCheck.for_mechanism(
+            setup.mechanism, expected_fixed_fractions(setup.mechanism, setup.scenario))
+        fixed = setup.kinetics.fixed_species
+        missing = [n for n in self.check.fixed if n not in fixed]
+        if missing:       # prescribed but not a fixed density of the kinetics: not checkable
+            import dataclasses as _dc
+            keep = [i for i, n in enumerate(self.check.fixed) if n in fixed]
+            self.check = _dc.replace(self.check, fixed=tuple(self.check.fixed[i] for i in keep),
+                                     fixed_expected=self.check.fixed_expected[keep])
+        self.check_fixed_index = [fixed.index(n) for n in self.check.fixed]
+        self.check_variable_index = [setup.kinetics.variable_species.index(n)
+                                     for n in self.check.variable]
 
 
 def _group(task: BatchTask) -> tuple[_Group, float]:
@@ -278,6 +297,15 @@ def run_batch(task: BatchTask) -> BatchOutput:
         # the whole batch could not be integrated (e.g. absurd factors): every member failed
         return _all_failed(task, f"{type(exc).__name__}: {exc}", wall0, fault="error")
     status = np.where(np.asarray(result.status) == 0, 1, 2).astype(np.int8)
+    messages = ["" if s == 1 else str(m) for s, m in zip(status, result.message)]
+    checks = _conservation(group, np.asarray(result.y, dtype=float))
+    if task.strict:
+        # members that fail the guard are failures (their check values are kept)
+        from ..diagnostics.conservation import member_failure_messages
+        for i, text in member_failure_messages(group.check, checks).items():
+            if status[i] == 1:
+                status[i] = 2
+                messages[i] = f"{text} (a failure under --strict)"
     # each member's k at the output times: the shared exact k times its factors (only when saved
     # or needed for rates: (members, times, reactions) is the largest array of a batch)
     needs_k = {"rate_coefficient", "reaction_rate", "cycle_rate"} & set(task.save)
@@ -287,11 +315,23 @@ def run_batch(task: BatchTask) -> BatchOutput:
         areas = (result.surface_k.areas(np.asarray(result.y, dtype=float))
                  if getattr(result, "surface_k", None) is not None else None)
         arrays = _outputs(group, np.asarray(result.y, dtype=float), k, task.save, areas)
-    return BatchOutput(task.batch_id, task.rows, arrays, status,
-                       ["" if s == 1 else str(m) for s, m in zip(status, result.message)],
+    return BatchOutput(task.batch_id, task.rows, arrays, status, messages,
                        np.asarray(result.failure_time_s, dtype=float),
                        wall_time_s=_time.perf_counter() - wall0, setup_time_s=setup_s,
-                       steps=int(np.sum(result.steps)))
+                       steps=int(np.sum(result.steps)), checks=checks,
+                       check_names=(group.check.elements, group.check.fixed))
+
+
+def _conservation(group: _Group, y: np.ndarray) -> dict[str, np.ndarray]:
+    """The single run's conservation guard on every member of a batch at once: y
+    (members, time, n_variable) [cm-3] -> ``member_checks`` (mole fractions as a run
+    file holds them: number density / [M] at the output times)."""
+    from ..diagnostics.conservation import member_checks
+    air = np.asarray(group.state.air_density, dtype=float)
+    with np.errstate(invalid="ignore", over="ignore"):
+        x = y[..., group.check_variable_index] / air[None, :, None]
+        xf = group.fixed_out[:, group.check_fixed_index] / air[:, None]
+    return member_checks(group.check, x, xf[None])
 
 
 def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progress,

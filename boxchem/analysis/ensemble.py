@@ -180,7 +180,9 @@ def plan_batches(groups, batch_size: int) -> list[tuple[int, np.ndarray]]:
 # ---------------------------------------------------------------------------
 # the member file's template
 # ---------------------------------------------------------------------------
-def _template(setup, plan: _Plan, table: MemberTable, save: Sequence[str], scenario) -> tuple[xr.Dataset, dict]:
+def _template(setup, plan: _Plan, table: MemberTable, save: Sequence[str], scenario,
+              check=None) -> tuple[xr.Dataset, dict, dict]:
+    from ..diagnostics.conservation import member_check_layout
     from ..runner import assemble_dataset
     times = plan.times_s
     mech = setup.mechanism
@@ -210,6 +212,8 @@ def _template(setup, plan: _Plan, table: MemberTable, save: Sequence[str], scena
                          {"long_name": "member name"}),
     }
     data = {}
+    check_coords, checks = member_check_layout(check) if check is not None else ({}, {})
+    coords.update(check_coords)
     if table.factors:
         coords["factor"] = ("factor", np.array(table.factors, dtype=object),
                             {"long_name": "member table column"})
@@ -239,7 +243,25 @@ def _template(setup, plan: _Plan, table: MemberTable, save: Sequence[str], scena
         "history": f"{template.attrs.get('date_created', '')}: created by boxchem ensemble",
     })
     template.attrs.update(table.attrs or {})
-    return template, variables
+    return template, variables, checks
+
+
+def _file_checks(outcome: BatchOutput, names: tuple) -> dict[str, np.ndarray]:
+    """A batch's conservation columns in the member file's order (by element / species name;
+    NaN where a group checks another set, e.g. a member with its own mechanism)."""
+    if not outcome.checks:
+        return {}
+    out = {"member_conservation": outcome.checks["member_conservation"]}
+    for key, own, file_names in (("member_element_drift", outcome.check_names[0], names[0]),
+                                 ("member_fixed_drift", outcome.check_names[1], names[1])):
+        values = np.asarray(outcome.checks[key], dtype=float)
+        if tuple(own) == tuple(file_names):
+            out[key] = values
+            continue
+        column = {n: j for j, n in enumerate(own)}
+        out[key] = np.stack([values[:, column[n]] if n in column else np.full(values.shape[0], np.nan)
+                             for n in file_names], axis=-1).reshape(values.shape[0], len(file_names))
+    return out
 
 
 # ---------------------------------------------------------------------------
@@ -321,7 +343,7 @@ def _check_resume(path: Path, table: MemberTable, save, scenario) -> np.ndarray:
 
 def ensemble(scenario, members, *, output=None, save=None, workers=None, scheduler=None, client=None,
              batch_size=None, resume=False, progress=None,
-             member_time_limit_s=None, step_policy="auto") -> xr.Dataset:
+             member_time_limit_s=None, step_policy="auto", strict=False) -> xr.Dataset:
     """Run every member of a member table and return the member-file Dataset.
 
     Parameters
@@ -343,6 +365,9 @@ def ensemble(scenario, members, *, output=None, save=None, workers=None, schedul
         gets n times it
     step_policy : the solver's step-size policy for each batch ("auto", "per-member",
         "lock-step"; ``integrate_batch``); recorded as the file's ``boxchem_step_policy``
+    strict : a member that fails the conservation guard (element totals, fixed mixing
+        ratios; docs/guards.md) is recorded as failed; every member's check is stored
+        (``member_conservation``, ``member_element_drift``, ``member_fixed_drift``)
 
     Returns the member file as an xarray Dataset (lazy when ``output`` is given).
     Raises :class:`EnsembleInterrupted` on Ctrl-C (finished members kept).
@@ -372,7 +397,7 @@ def ensemble(scenario, members, *, output=None, save=None, workers=None, schedul
     try:
         return _run(scn, table, plan, valid, save, path, int(batch_size), resume and output is not None,
                     run_backend, backend_name, progress, member_time_limit_s, keep=temporary is None,
-                    step_policy=step_policy)
+                    step_policy=step_policy, strict=bool(strict))
     finally:
         if close_backend is not None:
             close_backend()
@@ -381,7 +406,7 @@ def ensemble(scenario, members, *, output=None, save=None, workers=None, schedul
 
 
 def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, backend_name,
-         progress, time_limit, keep, step_policy="auto"):
+         progress, time_limit, keep, step_policy="auto", strict=False):
     from .batches import _group
     status = None
     if resume and path.exists():
@@ -401,6 +426,7 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
             initial_columns=initial_columns,
             initial_values=[[table.value(int(r), c) for r in rows] for c in initial_columns],
             save=save, time_limit_s=time_limit, attempt=attempt, step_policy=step_policy,
+            strict=strict,
             mechanism_sha256=scn.mechanism.text_sha256, table_source=table.source,
             table_where=[table.where(int(r), initial_columns[0]) if initial_columns else ""
                          for r in rows])
@@ -413,13 +439,16 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
             raise EnsembleError(f"no member can run: {messages}")
         # the template needs one setup: built here (and kept for in-process batches)
         first, _ = _group(tasks[0])
-        template, variables = _template(first.setup, plan, table, save, plan.groups[valid[0][0]][1])
+        template, variables, checks = _template(first.setup, plan, table, save,
+                                                plan.groups[valid[0][0]][1], first.check)
+        check_names = (first.check.elements, first.check.fixed)
         if not in_process:        # the workers build their own; do not hold it here
             from .batches import _SETUPS
             _SETUPS.clear()
             del first
         template.attrs["boxchem_step_policy"] = _policy_note(step_policy, batch_size)
-        mf.create_member_file(path, template, variables)
+        template.attrs["conservation_strict"] = "yes" if strict else "no"
+        mf.create_member_file(path, template, variables, checks)
         status = np.zeros(len(table), dtype=int)
         for group, gscn, error in plan.groups:
             if gscn is None:
@@ -436,6 +465,10 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
             if rows.size:
                 keep_tasks.append(task_for(task.group, rows, task.batch_id))
         tasks = keep_tasks
+        from ..diagnostics.conservation import ELEMENT_DIM, FIXED_DIM
+        with xr.open_dataset(path, engine="netcdf4") as old:
+            check_names = tuple(tuple(str(v) for v in old[d].values) if d in old.coords else ()
+                                for d in (ELEMENT_DIM, FIXED_DIM))
     file_times = plan.times_s
     done0 = int(np.sum(status != mf.STATUS_PENDING))
     bar = _progress(progress, len(table), done0)
@@ -449,7 +482,7 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
                 index = None if times.size == file_times.size else np.searchsorted(file_times, times)
                 mf.write_members(path, outcome.rows, outcome.arrays, status=outcome.status,
                                  message=outcome.message, failure_time_s=outcome.failure_time_s,
-                                 time_index=index)
+                                 time_index=index, checks=_file_checks(outcome, check_names))
                 ok = int(np.sum(outcome.status == mf.STATUS_SUCCESS))
                 bar.update(ok, len(outcome.rows) - ok)
                 continue

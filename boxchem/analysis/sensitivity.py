@@ -175,7 +175,9 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
     wall = _time.perf_counter() - wall0
     result = sensitivities_from_members(members, parsed, plan, step=step, scheme=scheme,
                                         species=species, mechanism=scenario.mechanism)
-    result.attrs.update(ensemble_wall_time_s=wall, ensemble_members=len(table), method_choice=choice)
+    from ..diagnostics.conservation import member_summary
+    result.attrs.update(ensemble_wall_time_s=wall, ensemble_members=len(table), method_choice=choice,
+                        conservation_summary=member_summary(members) or "")
     return result
 
 

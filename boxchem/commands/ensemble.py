@@ -65,7 +65,16 @@ def add_engine_options(p, *, default_output: str) -> None:
                    dest="overrides",
                    help='override a scenario value for every member, e.g. run.duration="10 d" '
                         '(repeatable; a member-table column of the same key wins)')
+    add_strict_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="no progress and no summary")
+
+
+def add_strict_option(p) -> None:
+    """--strict of the commands that run members (ensemble, sweep, uncertainty, sensitivity)."""
+    p.add_argument("--strict", action="store_true",
+                   help="a member that fails the conservation check (element totals, fixed mixing "
+                        "ratios, as boxchem run checks) is recorded as a failed member; the others "
+                        "are kept (docs/guards.md)")
 
 
 def scenario_of(args):
@@ -99,7 +108,7 @@ def run_engine(args, table, out) -> int:
         ds = ensemble(scenario_of(args), table, output=out, save=args.save, workers=args.workers,
                       scheduler=args.scheduler, batch_size=args.batch_size, resume=args.resume,
                       progress=not args.quiet, member_time_limit_s=args.member_time_limit,
-                      step_policy=getattr(args, "step_policy", "auto"))
+                      step_policy=getattr(args, "step_policy", "auto"), strict=args.strict)
     except EnsembleInterrupted as exc:
         where = (f"kept in {exc.output}; continue with: boxchem {args.command} ... -o {out} --resume"
                  if exc.output is not None else "discarded (no output file)")
@@ -124,6 +133,7 @@ def print_summary(ds, out, wall_s: float, *, quiet: bool = False) -> int:
     status = ds["member_status"].values
     n, ok, failed = status.size, int(np.sum(status == 1)), int(np.sum(status == 2))
     pending = n - ok - failed
+    print_conservation(ds, quiet=quiet)
     if quiet:
         return failed
     print(f"{out}: {n} members: {ok} succeeded, {failed} failed, {pending} pending "
@@ -142,3 +152,19 @@ def print_summary(ds, out, wall_s: float, *, quiet: bool = False) -> int:
             print(f"  ... and {shown.size - 10} more failed members (member_message in {out})",
                   file=sys.stderr)
     return failed
+
+
+def print_conservation(ds_or_text, *, quiet: bool = False) -> None:
+    """The conservation guard over a member file's members (the file, or its
+    ``member_summary`` text): a warning (stderr, also when ``quiet``) when some failed,
+    else one line (stdout)."""
+    import sys
+
+    from ..diagnostics.conservation import member_summary
+    text = ds_or_text if isinstance(ds_or_text, str) or ds_or_text is None else member_summary(ds_or_text)
+    if not text:
+        return
+    failed = not text.startswith("conservation: all")
+    if quiet and not failed:
+        return
+    print(f"warning: {text}" if failed else text, file=sys.stderr if failed else sys.stdout)

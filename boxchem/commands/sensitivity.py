@@ -38,12 +38,14 @@ def add_engine_options(p) -> None:
                    help="members integrated together in one batch (default: the engine's choice)")
     p.add_argument("--member-file", default=None, metavar="MEMBERS.nc",
                    help="also keep the engine's member file (streamed while members finish)")
+    from .ensemble import add_strict_option
+    add_strict_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar")
 
 
 def engine_options(args) -> dict:
     return {"workers": args.workers, "scheduler": args.scheduler, "batch_size": args.batch_size,
-            "output": args.member_file, "progress": not args.quiet}
+            "output": args.member_file, "progress": not args.quiet, "strict": args.strict}
 
 
 def load_with_overrides(name: str, overrides: list[str]):
@@ -184,6 +186,8 @@ def main(args) -> int:
               f"{result.attrs['tangent_steps']} steps) in {time.perf_counter() - wall0:.1f} s; "
               f"wrote {', '.join(written)}")
     else:
+        from .ensemble import print_conservation
+        print_conservation(result.attrs.get("conservation_summary"))
         print(f"{result.attrs['ensemble_members']} members ({failed} failed) in "
               f"{time.perf_counter() - wall0:.1f} s; wrote {', '.join(written)}")
     return 1 if failed else 0

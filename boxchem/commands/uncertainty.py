@@ -182,6 +182,8 @@ def main(args) -> int:
             written += _figures(mc, out, [str(v).removeprefix("band_") for v in mc.data_vars
                                           if str(v).startswith("band_") and v != "band_cycle_loss"])
         print(summary_text(mc))
+        from .ensemble import print_conservation
+        print_conservation(mc)
         print(f"{mc.sizes['member']} members in {time.perf_counter() - wall0:.1f} s; wrote "
               f"{', '.join(written)}")
     if args.changed or args.changed_scale:

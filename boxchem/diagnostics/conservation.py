@@ -25,6 +25,7 @@ result's attributes (``conservation_check`` = "passed"/"failed", ...).
 """
 from __future__ import annotations
 
+import dataclasses
 import json
 from dataclasses import dataclass, field
 from typing import Mapping
@@ -33,7 +34,7 @@ import numpy as np
 
 from .stoichiometry import net_stoichiometry_matrix
 
-__all__ = ["ELEMENT_DRIFT_BOUND", "FIXED_DRIFT_BOUND", "ConservationReport",
+__all__ = ["ELEMENT_DRIFT_BOUND", "FIXED_DRIFT_BOUND", "ConservationReport", "ConservationCheck",
            "conserved_elements", "element_matrix", "conservation_report", "annotate",
            "expected_fixed_fractions", "guard_run",
            "CONSERVATION_ATTRIBUTES"]
@@ -120,6 +121,94 @@ def conserved_elements(mechanism) -> tuple[tuple[str, ...], tuple[str, ...], np.
     return chosen, variable, a[:, keep]
 
 
+@dataclass(frozen=True)
+class ConservationCheck:
+    """The guard for one mechanism and its prescribed fixed mole fractions, on arrays.
+
+    The one implementation of the check: :func:`conservation_report` (single
+    runs) and the ensemble engine (every member of a batch at once) call
+    :meth:`drifts` on mole fractions with any leading dimensions.
+    """
+
+    elements: tuple[str, ...]            # conserved by the mechanism
+    variable: tuple[str, ...]            # integrated species (rows of ``atoms``)
+    atoms: np.ndarray                    # (n_variable, n_elements) [1]
+    fixed: tuple[str, ...]               # fixed species checked (not M)
+    fixed_expected: np.ndarray           # their prescribed mole fractions [mol mol-1]
+    not_conserved: tuple[str, ...] = ()
+    element_bound: float = ELEMENT_DRIFT_BOUND
+    fixed_bound: float = FIXED_DRIFT_BOUND
+
+    @classmethod
+    def for_mechanism(cls, mechanism, expected_fixed: Mapping[str, float] | None = None, *,
+                      element_bound: float = ELEMENT_DRIFT_BOUND,
+                      fixed_bound: float = FIXED_DRIFT_BOUND) -> "ConservationCheck":
+        chosen, variable, a = conserved_elements(mechanism)
+        every = sorted({e for s in mechanism.species if not s.fixed for e in (s.formula or {})})
+        names = set(mechanism.species_names)
+        fixed = {n: float(v) for n, v in (expected_fixed or {}).items()
+                 if n != "M" and n in names and v}
+        return cls(chosen, variable, a, tuple(fixed), np.array(list(fixed.values()), dtype=float),
+                   tuple(e for e in every if e not in chosen), element_bound, fixed_bound)
+
+    def drifts(self, variable_fraction: np.ndarray, fixed_fraction: np.ndarray | None = None
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Relative drifts from mole fractions [mol mol-1] at the output times.
+
+        ``variable_fraction`` (..., time, n_variable) in ``variable`` order;
+        ``fixed_fraction`` (..., time, n_fixed) in ``fixed`` order (or broadcastable).
+        Returns (element drift (..., n_elements), element initial total (...,
+        n_elements) [mol mol-1], fixed drift (..., n_fixed)): element drift =
+        max over the times with all values finite of |T_E(t) - T_E(t0)| / T_E(t0)
+        (t0 the first such time; inf when created from a zero total; NaN when no
+        time is finite); fixed drift = max over finite values of |x - x_prescribed|
+        / x_prescribed (NaN when none).
+        """
+        x = np.asarray(variable_fraction, dtype=float)
+        lead = x.shape[:-2]
+        finite = np.all(np.isfinite(x), axis=-1)                       # (..., time)
+        any_finite = finite.any(axis=-1)
+        with np.errstate(invalid="ignore", over="ignore"):
+            totals = np.where(finite[..., None], x, 0.0) @ self.atoms   # (..., time, n_elements)
+        first = np.argmax(finite, axis=-1)                              # first finite time
+        t0 = np.take_along_axis(totals, first[..., None, None], axis=-2)[..., 0, :]
+        deviation = np.max(np.where(finite[..., None], np.abs(totals - t0[..., None, :]), 0.0),
+                           axis=-2) if totals.shape[-2] else np.zeros(lead + (len(self.elements),))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            drift = np.where(t0 > 0, deviation / np.where(t0 > 0, t0, 1.0),
+                             np.where(deviation > 0, np.inf, 0.0))
+        drift = np.where(any_finite[..., None], drift, np.nan)
+        t0 = np.where(any_finite[..., None], t0, np.nan)
+        if fixed_fraction is None or not self.fixed:
+            return drift, t0, np.full(lead + (len(self.fixed),), np.nan)
+        f = np.asarray(fixed_fraction, dtype=float)
+        ok = np.isfinite(f)
+        with np.errstate(invalid="ignore"):
+            dev = np.where(ok, np.abs(f - self.fixed_expected) / self.fixed_expected, -np.inf)
+        fixed_drift = np.max(dev, axis=-2) if dev.shape[-2] else np.full(dev.shape[:-2] + dev.shape[-1:], -np.inf)
+        fixed_drift = np.broadcast_to(np.where(np.isfinite(fixed_drift), fixed_drift, np.nan),
+                                      lead + (len(self.fixed),))
+        return drift, t0, fixed_drift
+
+    def passed(self, element_drift: np.ndarray, fixed_drift: np.ndarray) -> np.ndarray:
+        """True where every checked drift is within its bound (NaN: not checked, passes)."""
+        e = np.asarray(element_drift, dtype=float)
+        f = np.asarray(fixed_drift, dtype=float)
+        with np.errstate(invalid="ignore"):
+            bad_e = ~(np.abs(e) <= self.element_bound) & ~np.isnan(e)
+            bad_f = ~(np.abs(f) <= self.fixed_bound) & ~np.isnan(f)
+        return ~(bad_e.any(axis=-1) | bad_f.any(axis=-1))
+
+    def report(self, element_drift: np.ndarray, element_initial: np.ndarray,
+               fixed_drift: np.ndarray) -> ConservationReport:
+        """The :class:`ConservationReport` of one run's drifts (1-D rows of :meth:`drifts`)."""
+        drift = {e: float(d) for e, d in zip(self.elements, element_drift) if not np.isnan(d)}
+        initial = {e: float(v) for e, v in zip(self.elements, element_initial) if not np.isnan(v)}
+        fixed = {n: float(d) for n, d in zip(self.fixed, fixed_drift) if not np.isnan(d)}
+        return ConservationReport(drift, initial, fixed, self.not_conserved,
+                                  self.element_bound, self.fixed_bound)
+
+
 def conservation_report(ds, mechanism, expected_fixed: Mapping[str, float] | None = None, *,
                         element_bound: float = ELEMENT_DRIFT_BOUND,
                         fixed_bound: float = FIXED_DRIFT_BOUND) -> ConservationReport:
@@ -129,34 +218,17 @@ def conservation_report(ds, mechanism, expected_fixed: Mapping[str, float] | Non
     mechanism's or the scenario's); M is never checked (it is the air).
     Times with non-finite values (a failed run's tail) are left out.
     """
-    chosen, variable, a = conserved_elements(mechanism)
-    every = sorted({e for s in mechanism.species if not s.fixed for e in (s.formula or {})})
-    x = np.asarray(ds["mole_fraction"].sel(species=list(variable)).values, dtype=float)
-    finite = np.all(np.isfinite(x), axis=1)
-    drift: dict[str, float] = {}
-    initial: dict[str, float] = {}
-    if finite.any() and chosen:
-        totals = x[finite] @ a                                       # (time, elements)
-        t0 = totals[0]
-        for j, e in enumerate(chosen):
-            initial[e] = float(t0[j])
-            deviation = float(np.max(np.abs(totals[:, j] - t0[j])))
-            if t0[j] > 0:
-                drift[e] = deviation / float(t0[j])
-            elif deviation > 0:
-                drift[e] = float("inf")
-            else:
-                drift[e] = 0.0
-    fixed_drift: dict[str, float] = {}
-    for name, value in (expected_fixed or {}).items():
-        if name == "M" or name not in ds["species"].values or not value:
-            continue
-        xs = np.asarray(ds["mole_fraction"].sel(species=name).values, dtype=float)
-        xs = xs[np.isfinite(xs)]
-        if xs.size:
-            fixed_drift[name] = float(np.max(np.abs(xs - value)) / value)
-    return ConservationReport(drift, initial, fixed_drift,
-                              tuple(e for e in every if e not in chosen), element_bound, fixed_bound)
+    check = ConservationCheck.for_mechanism(mechanism, expected_fixed, element_bound=element_bound,
+                                            fixed_bound=fixed_bound)
+    check = dataclasses.replace(check, fixed=tuple(n for n in check.fixed
+                                                   if n in ds["species"].values),
+                                fixed_expected=np.array([v for n, v in zip(check.fixed,
+                                                                           check.fixed_expected)
+                                                         if n in ds["species"].values]))
+    x = np.asarray(ds["mole_fraction"].sel(species=list(check.variable)).values, dtype=float)
+    xf = np.asarray(ds["mole_fraction"].sel(species=list(check.fixed)).values, dtype=float)
+    drift, initial, fixed = check.drifts(x, xf)
+    return check.report(drift, initial, fixed)
 
 
 def expected_fixed_fractions(mechanism, scenario) -> dict[str, float]:
@@ -192,3 +264,100 @@ def annotate(ds, report: ConservationReport) -> None:
                                       f"mole fractions {report.fixed_bound:g} relative; elements "
                                       f"not conserved by the mechanism (not checked): "
                                       f"{', '.join(report.not_conserved) or 'none'}")
+
+
+# ---------------------------------------------------------------------------
+# member files: the same check for every member (docs/guards.md, docs/output-format.md)
+# ---------------------------------------------------------------------------
+#: ``member_conservation`` flag values
+CHECK_NOT_RUN, CHECK_PASSED, CHECK_FAILED = 0, 1, 2
+CHECK_MEANINGS = "not_checked passed failed"
+#: dimensions of the per-member check variables
+ELEMENT_DIM, FIXED_DIM = "conserved_element", "checked_fixed_species"
+
+
+def member_check_layout(check: ConservationCheck) -> tuple[dict, dict]:
+    """Coordinates and per-member variables of the guard in a member file.
+
+    Returns (coords name -> (dim, values, attrs), variables name -> (dims, attrs,
+    dtype)); the variables are written for every member that ran, failed ones included.
+    """
+    coords = {
+        ELEMENT_DIM: (ELEMENT_DIM, np.array(check.elements, dtype=object),
+                      {"long_name": "element whose total the conservation guard checks (conserved "
+                                    "by the mechanism)"}),
+        FIXED_DIM: (FIXED_DIM, np.array(check.fixed, dtype=object),
+                    {"long_name": "fixed species whose mole fraction the conservation guard checks"}),
+    }
+    variables = {
+        "member_element_drift": (("member", ELEMENT_DIM), {
+            "units": "1", "long_name": "largest relative drift of each conserved element total "
+                                       "over the output times, max |T(t) - T(t0)| / T(t0)",
+            "comment": f"fails above {check.element_bound:g}; inf: created from a zero total; "
+                       f"NaN: not run (docs/guards.md)"}, "f8"),
+        "member_fixed_drift": (("member", FIXED_DIM), {
+            "units": "1", "long_name": "largest relative deviation of each fixed species' mole "
+                                       "fraction from its prescribed value",
+            "comment": f"fails above {check.fixed_bound:g}; NaN: not run"}, "f8"),
+        "member_conservation": (("member",), {
+            "long_name": "conservation guard of each member (element totals and fixed mixing "
+                         "ratios, as for a single run)",
+            "flag_values": np.array([CHECK_NOT_RUN, CHECK_PASSED, CHECK_FAILED], "i1"),
+            "flag_meanings": CHECK_MEANINGS}, "i1"),
+    }
+    return coords, variables
+
+
+def member_checks(check: ConservationCheck, variable_fraction: np.ndarray,
+                  fixed_fraction: np.ndarray) -> dict[str, np.ndarray]:
+    """The guard on a batch: (members, time, n_variable) and (..., time, n_fixed) mole
+    fractions -> the per-member variables of :func:`member_check_layout` (one call, no
+    loop over members)."""
+    drift, _, fixed = check.drifts(variable_fraction, fixed_fraction)
+    ran = np.any(np.all(np.isfinite(variable_fraction), axis=-1), axis=-1)
+    flag = np.where(~ran, CHECK_NOT_RUN,
+                    np.where(check.passed(drift, fixed), CHECK_PASSED, CHECK_FAILED)).astype("i1")
+    return {"member_element_drift": drift, "member_fixed_drift": fixed, "member_conservation": flag}
+
+
+def member_failure_messages(check: ConservationCheck, arrays: Mapping[str, np.ndarray]) -> dict[int, str]:
+    """Position in the batch -> the single-run guard's message, for members that failed it."""
+    failed = np.nonzero(np.asarray(arrays["member_conservation"]) == CHECK_FAILED)[0]
+    nan = np.full(len(check.elements), np.nan)
+    return {int(i): check.report(arrays["member_element_drift"][i], nan,
+                                 arrays["member_fixed_drift"][i]).message() for i in failed}
+
+
+#: failed members named in :func:`member_summary`
+SUMMARY_MEMBERS = 5
+
+
+def member_summary(ds) -> str | None:
+    """One paragraph on the guard over a member file's members, or None (no check stored)."""
+    if "member_conservation" not in ds.variables:
+        return None
+    flag = np.asarray(ds["member_conservation"].values, dtype=int)
+    checked = int(np.sum(flag != CHECK_NOT_RUN))
+    failed = np.nonzero(flag == CHECK_FAILED)[0]
+    elements = [str(e) for e in ds[ELEMENT_DIM].values] if ELEMENT_DIM in ds.coords else []
+    drift = (np.asarray(ds["member_element_drift"].values, dtype=float)
+             if "member_element_drift" in ds else np.zeros((flag.size, 0)))
+    fixed = ([str(s) for s in ds[FIXED_DIM].values] if FIXED_DIM in ds.coords else [])
+    fdrift = (np.asarray(ds["member_fixed_drift"].values, dtype=float)
+              if "member_fixed_drift" in ds else np.zeros((flag.size, 0)))
+    if not failed.size:
+        finite = drift[np.isfinite(drift)]
+        worst = f"; largest element drift {finite.max():.1e}" if finite.size else ""
+        return (f"conservation: all {checked} members that ran passed ({', '.join(elements) or 'no element'}"
+                f" checked{worst})")
+    labels = ds["member_label"].values
+    parts = []
+    for i in failed[:SUMMARY_MEMBERS]:
+        bad = [f"{e} total {_signed_percent(d)}" for e, d in zip(elements, drift[i])
+               if not abs(d) <= ELEMENT_DRIFT_BOUND and not np.isnan(d)]
+        bad += [f"fixed {s} {_signed_percent(d)}" for s, d in zip(fixed, fdrift[i])
+                if not abs(d) <= FIXED_DRIFT_BOUND and not np.isnan(d)]
+        parts.append(f"member {int(i)} ({labels[i]}) {', '.join(bad)}")
+    more = f"; ... and {failed.size - SUMMARY_MEMBERS} more" if failed.size > SUMMARY_MEMBERS else ""
+    return (f"{failed.size} of {checked} members failed the conservation check: {'; '.join(parts)}"
+            f"{more} (member_conservation, member_element_drift; docs/guards.md)")

@@ -165,13 +165,17 @@ def _encoded_bytes(text: str, length: int) -> np.ndarray:
 
 
 def create_member_file(path: str | Path, template: xr.Dataset,
-                       variables: Mapping[str, tuple[tuple[str, ...], Mapping[str, Any]]]) -> Path:
+                       variables: Mapping[str, tuple[tuple[str, ...], Mapping[str, Any]]],
+                       checks: Mapping[str, tuple[tuple[str, ...], Mapping[str, Any], str]] | None = None
+                       ) -> Path:
     """Create the member file at ``path`` atomically, every member pending.
 
     ``template``: coordinates (including ``member``), the member table
     variables, the static matrices and the global attributes.
     ``variables``: name -> (dims, attrs) of the per-member data variables
     (dims start with ``member``), created filled with NaN.
+    ``checks``: name -> (dims, attrs, dtype) of per-member check variables (the
+    conservation guard), kept for failed members too (NaN / 0 until written).
     """
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
@@ -184,6 +188,7 @@ def create_member_file(path: str | Path, template: xr.Dataset,
         template = template.drop_vars([n for n, v in template.variables.items()
                                        if set(v.dims) & set(empty)]).drop_dims(empty, errors="ignore")
         variables = {n: v for n, v in variables.items() if not set(v[0]) & set(empty)}
+        checks = {n: v for n, v in (checks or {}).items() if not set(v[0]) & set(empty)}
     sizes = dict(template.sizes)
     largest = max((8 * int(np.prod([sizes[d] for d in dims])) for dims, _ in variables.values()),
                   default=0)
@@ -206,7 +211,7 @@ def create_member_file(path: str | Path, template: xr.Dataset,
                 encoding.setdefault(name, {})["_FillValue"] = None    # CF: coordinates carry no fill value
         template.to_netcdf(tmp, format="NETCDF3_64BIT" if fmt == "NETCDF3_64BIT_OFFSET" else fmt,
                            engine="netcdf4", encoding=encoding)
-        _add_member_variables(tmp, template, variables)
+        _add_member_variables(tmp, template, variables, checks or {})
         os.chmod(tmp, 0o666 & ~_current_umask())
         _fsync_path(tmp)
         os.replace(tmp, path)
@@ -223,7 +228,7 @@ def _current_umask() -> int:
     return mask
 
 
-def _add_member_variables(tmp: Path, template: xr.Dataset, variables) -> None:
+def _add_member_variables(tmp: Path, template: xr.Dataset, variables, checks) -> None:
     import netCDF4
     aux = {name: set(var.dims) for name, var in template.coords.items() if name not in template.dims}
     n_members = template.sizes["member"]
@@ -246,6 +251,12 @@ def _add_member_variables(tmp: Path, template: xr.Dataset, variables) -> None:
             if coords:
                 attrs["coordinates"] = " ".join(coords)
             var.setncatts(attrs)
+        for name, (dims, attrs, dtype) in checks.items():
+            fill = np.nan if dtype == "f8" else False
+            var = nc.createVariable(name, dtype, dims, fill_value=fill)
+            var.setncatts(dict(attrs))
+            if dtype != "f8":
+                var[:] = np.zeros([nc.dimensions[d].size for d in dims], dtype=dtype)
 
 
 # ---------------------------------------------------------------------------
@@ -264,12 +275,14 @@ def _runs(rows: np.ndarray) -> list[tuple[int, int, int]]:
 
 def write_members(path: str | Path, rows: Sequence[int], arrays: Mapping[str, np.ndarray], *,
                   status: Sequence[int], message: Sequence[str], failure_time_s: Sequence[float],
-                  time_index: np.ndarray | None = None) -> None:
+                  time_index: np.ndarray | None = None,
+                  checks: Mapping[str, np.ndarray] | None = None) -> None:
     """Store finished members ``rows`` in place: data first (flushed to disk), then their status.
 
     ``arrays``: name -> (len(rows), n_time_of_these_members, ...) values; with
     ``time_index`` they go to those positions of the file's time axis.
-    Failed members are written as NaN.
+    Failed members are written as NaN; ``checks`` (name -> (len(rows), ...)) are
+    written as given (the conservation guard of failed members is kept).
     """
     import netCDF4
     rows = np.asarray(rows, dtype=np.int64)
@@ -292,6 +305,12 @@ def write_members(path: str | Path, rows: Sequence[int], arrays: Mapping[str, np
                 else:
                     for i, row in enumerate(rows):
                         var[int(row), time_index] = values[i]
+            for name, values in (checks or {}).items():
+                if name in nc.variables:
+                    values = np.asarray(values)[order]
+                    var = nc.variables[name]
+                    for a, b, pos in _runs(rows):
+                        var[a:b] = values[pos:pos + b - a]
             nc.sync()
             _fsync_path(Path(path))
             msg = nc.variables["member_message"]
@@ -357,8 +376,9 @@ def open_member_file(path: str | Path, *, load: bool = False) -> xr.Dataset:
         if name in ds.variables:
             ds[name].load()
     for name, var in list(ds.data_vars.items()):
+        # member_* variables describe members (table, checks): kept for every member
         if var.dims[:1] == ("member",) and var.ndim >= 2 and var.dtype.kind == "f" \
-                and name not in ("member_table",):
+                and not name.startswith("member_"):
             if load:
                 ds[name] = var.load().where(ok)
             elif _have_dask():
