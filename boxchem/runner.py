@@ -465,18 +465,20 @@ def solver_options(scenario: Scenario) -> dict[str, Any]:
             "method": getattr(rosenbrock, scenario.solver_method.upper())}
 
 
-def state_observer(setup: RunSetup, surface_feedback: str = "member"):
+def state_observer(setup: RunSetup, surface_feedback: str = "member", ozone_feedback: str = "member"):
     """The time loop's ``on_accept``: what must see the box's state as it runs, or None.
 
-    The ozone column following the box (``photolysis.observe``; one member at a time)
-    and, with ``surface_feedback="rebuild"`` (the earlier per-window table rebuild, also
+    With ``ozone_feedback="observe"`` (the earlier one-member treatment, also what the
+    numpy reference loop needs) the ozone column following the box
+    (``photolysis.observe``; with "member", the default, the batch time loop gives each
+    member its own column itself, ``photolysis.ozonefollow.MemberOzoneColumns``) and, with ``surface_feedback="rebuild"`` (the earlier per-window table rebuild, also
     what the numpy reference loop needs), state-dependent surfaces
     (``coefficients.observe_state``, docs/heterogeneous.md).  With "member" (default) the
     batch time loop gives each member its own surface k itself (solver/statesurfaces.py).
     The gas/condensed phase equilibrium is not an observer: it changes the state, and
     goes to the time loop as ``state_map`` (:func:`phase_state_map`).
     """
-    observers = [getattr(setup.photolysis, "observe", None)]
+    observers = [getattr(setup.photolysis, "observe", None) if ozone_feedback == "observe" else None]
     if getattr(setup.coefficients, "state_dependent", False) and (
             surface_feedback == "rebuild" or getattr(setup.coefficients, "state_surfaces", None) is None):
         observers.append(setup.coefficients.observe_state)
@@ -508,11 +510,13 @@ def phase_state_map(setup: RunSetup):
 
 
 def integrate(setup: RunSetup, *, progress=None, surface_feedback: str = "member",
-              compiled: bool | None = None):
+              compiled: bool | None = None, ozone_feedback: str = "member"):
     """Integrate one box of a prepared setup -> :class:`~boxchem.solver.timeloop.TimeLoopResult`.
 
     ``surface_feedback``: "member" (default) or "rebuild" (the earlier per-window table
-    rebuild; see ``integrate_batch``); ``compiled``: False for the numpy reference loop.
+    rebuild; see ``integrate_batch``); ``ozone_feedback``: "member" (default) or "observe"
+    (the earlier one-member treatment of the ozone column following the box; see
+    ``integrate_batch``); ``compiled``: False for the numpy reference loop.
     Raises :class:`~boxchem.errors.IntegrationError` (time in s since the start,
     ``partial_result`` a TimeLoopResult) when the integrator fails.
     """
@@ -520,11 +524,12 @@ def integrate(setup: RunSetup, *, progress=None, surface_feedback: str = "member
     from .solver.timeloop import integrate_box
     if compiled is False or not jit_available():
         surface_feedback = "member"      # the reference loop observes the state itself
+        ozone_feedback = "observe"
     return integrate_box(setup.kinetics, setup.coefficients, setup.y0, setup.output_times_s,
                          breakpoints_s=setup.breakpoints_s, progress=progress,
-                         on_accept=state_observer(setup, surface_feedback),
+                         on_accept=state_observer(setup, surface_feedback, ozone_feedback),
                          surface_feedback=surface_feedback, compiled=compiled,
-                         state_map=phase_state_map(setup),
+                         state_map=phase_state_map(setup), ozone_feedback=ozone_feedback,
                          **solver_options(setup.scenario))
 
 

@@ -221,9 +221,11 @@ def _initial_states(task: BatchTask, group: _Group) -> np.ndarray:
 _AREA_POSITION = {"psc_surface_area": 0, "sulfate_surface_area": 1, "ice_surface_area": 2}
 
 
-def _outputs(group: _Group, y: np.ndarray, k: np.ndarray, save, areas=None) -> dict[str, np.ndarray]:
+def _outputs(group: _Group, y: np.ndarray, k: np.ndarray, save, areas=None,
+             ozone_column=None) -> dict[str, np.ndarray]:
     """The saved variables of a batch: y (n, time, n_variable), k (n, time, n_reactions);
-    ``areas`` (psc, sulfate, ice) (n, time) from each member's composition, or None."""
+    ``areas`` (psc, sulfate, ice) (n, time) from each member's composition, or None;
+    ``ozone_column`` (n, time) [DU] each member's own followed column, or None."""
     from ..runner import derived_outputs, species_number_density
     setup = group.setup
     fixed = group.fixed_out
@@ -250,6 +252,8 @@ def _outputs(group: _Group, y: np.ndarray, k: np.ndarray, save, areas=None) -> d
             out[name] = derived[name]
         elif areas is not None and name in _AREA_POSITION:
             out[name] = areas[_AREA_POSITION[name]]
+        elif name == "ozone_column" and ozone_column is not None:
+            out[name] = ozone_column
         else:
             series = np.asarray(getattr(group.state, TIME_SERIES[name]), dtype=float)
             out[name] = np.broadcast_to(series, (n,) + series.shape)
@@ -314,7 +318,9 @@ def run_batch(task: BatchTask) -> BatchOutput:
         k = result.members_k() if needs_k else np.zeros((n, 0, 0))
         areas = (result.surface_k.areas(np.asarray(result.y, dtype=float))
                  if getattr(result, "surface_k", None) is not None else None)
-        arrays = _outputs(group, np.asarray(result.y, dtype=float), k, task.save, areas)
+        columns = (result.ozone_j.column(np.asarray(result.y, dtype=float))
+                   if getattr(result, "ozone_j", None) is not None else None)
+        arrays = _outputs(group, np.asarray(result.y, dtype=float), k, task.save, areas, columns)
     return BatchOutput(task.batch_id, task.rows, arrays, status, messages,
                        np.asarray(result.failure_time_s, dtype=float),
                        wall_time_s=_time.perf_counter() - wall0, setup_time_s=setup_s,
@@ -340,15 +346,10 @@ def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progre
     from ..solver.timeloop import integrate_batch
     setup = group.setup
     from ..runner import phase_state_map, state_observer
+    # state-dependent surfaces and the ozone column following the box batch: each member's
+    # own surface k and J ride on the shared tables as ln offsets (solver/statesurfaces.py,
+    # photolysis/ozonefollow.py), so there is no observer
     observe = state_observer(setup)
-    if observe is not None and y0.shape[0] > 1:
-        # the ozone column following the box (photolysis.observe): J follows this member's
-        # own O3 through the shared J table, so one member at a time.  State-dependent
-        # surfaces batch: each member's own surface k rides on the shared tables as ln
-        # offsets (solver/statesurfaces.py), with no observer.
-        parts = [_integrate(group, y0[i:i + 1], log_multiplier[i:i + 1], progress, step_policy)
-                 for i in range(y0.shape[0])]
-        return _stack(parts)
     result = integrate_batch(setup.kinetics, setup.coefficients, y0, setup.output_times_s,
                              log_multiplier=log_multiplier, breakpoints_s=setup.breakpoints_s,
                              progress=progress, on_accept=observe, state_map=phase_state_map(setup),
@@ -356,18 +357,6 @@ def _integrate(group: _Group, y0: np.ndarray, log_multiplier: np.ndarray, progre
                              **group.options)
     group.fixed_out = np.asarray(result.fixed, dtype=float)
     return result
-
-
-def _stack(parts):
-    first = parts[0]
-    joined = dataclasses.replace(first)
-    for name in ("y", "log_multiplier", "status", "message", "failure_time_s", "failure_step_s",
-                 "failure_species", "outputs_reached", "steps", "rejected_steps", "rhs_evaluations",
-                 "jacobian_evaluations", "lu_decompositions", "lu_fallbacks"):
-        setattr(joined, name, np.concatenate([np.asarray(getattr(p, name)) for p in parts]))
-    # each member's own exact k (its J follows its own ozone column)
-    joined.k = np.stack([np.asarray(p.k if np.ndim(p.k) == 2 else p.k[0]) for p in parts])
-    return joined
 
 
 def _all_failed(task: BatchTask, message: str, wall0: float, *, fault: str = "") -> BatchOutput:

@@ -521,7 +521,7 @@ def _policy_note(step_policy: str, batch_size: int) -> str:
             "lock-step": lock,
             "auto": f"auto: {lock} (batches of at least {LOCKSTEP_MIN_MEMBERS} members), else "
                     f"per-member"}[step_policy] + (
-        "; members whose surfaces or J follow their own state run one at a time (per-member)")
+        "; members whose surfaces or J follow their own state batch (per-member ln offsets on the shared tables)")
 
 
 def _progress(progress, total: int, done: int):

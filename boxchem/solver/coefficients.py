@@ -373,6 +373,11 @@ class RateCoefficientModel:
         k = np.unique(np.concatenate(knots))
         return k[(k > t0) & (k < t1)]
 
+    @property
+    def photolysis_columns(self) -> np.ndarray:
+        """Reaction columns of the photolysis reactions (int64)."""
+        return self._phot_cols
+
     def sunlit(self, times_s) -> np.ndarray:
         """True where the sun is above the box's horizon at ``times_s`` [s] (bool array).
 

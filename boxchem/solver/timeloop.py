@@ -197,6 +197,9 @@ class BatchResult:
     #: the members' own state-dependent surface k at the output times, computed on demand
     #: from ``y`` (a :class:`~boxchem.solver.statesurfaces.MemberSurfaceK`), or None
     surface_k: object = None
+    #: each member's J from its own followed ozone column at the output times, on demand
+    #: (a :class:`~boxchem.photolysis.ozonefollow.MemberOzoneJ`), or None
+    ozone_j: object = None
     #: with ``tangent``: dy/dp at the output times, (n_out, n_params, n_output_species) [cm-3]
     #: (rows: the TangentParameters' reactions then initial values; columns its output_species)
     sensitivity: np.ndarray | None = None
@@ -226,6 +229,10 @@ class BatchResult:
             cols = self.surface_k.columns
             with np.errstate(invalid="ignore", over="ignore"):   # NaN states after a failure
                 k[:, :, cols] = self.surface_k(self.y[rows]) * np.exp(lm[:, cols])[:, None, :]
+        if self.ozone_j is not None:
+            cols = self.ozone_j.columns
+            with np.errstate(invalid="ignore", over="ignore"):
+                k[:, :, cols] = self.ozone_j(self.y[rows], rows) * np.exp(lm[:, cols])[:, None, :]
         return k
 
     def member(self, i: int) -> TimeLoopResult:
@@ -370,6 +377,22 @@ def _apply_state_map(state_map, t_s: float, y: np.ndarray, status: np.ndarray, y
         ys[run, out_q] = y[run]
 
 
+def _ozone_follows(coefficients, ozone_feedback: str) -> bool:
+    """True when the members' own ozone columns ride on the J table as ln offsets."""
+    if ozone_feedback not in ("member", "observe"):
+        raise ValueError(f"ozone_feedback: expected 'member' or 'observe', got {ozone_feedback!r}")
+    return ozone_feedback == "member" and hasattr(getattr(coefficients, "photolysis_rates", None),
+                                                  "member_columns")
+
+
+def _ozone_offsets(ozone, window: int, lm_window, running, y):
+    """(lm, exp(lm)) of a feedback window with each running member's ln J offsets added."""
+    run = np.nonzero(running)[0]
+    lm_out = np.array(lm_window, dtype=float, copy=True)
+    lm_out[run[:, None], ozone.cols] += ozone.offsets(window, run, y[run])
+    return lm_out, np.ascontiguousarray(np.exp(lm_out))
+
+
 def _chosen_policy(step_policy: str, n_members: int) -> str:
     if step_policy not in STEP_POLICIES:
         raise ValueError(f"step_policy: expected one of {', '.join(STEP_POLICIES)}, got {step_policy!r}")
@@ -386,7 +409,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                     lu: str = "sparse", surface_feedback: str = "member",
                     state_map=None, step_policy: str = "auto",
                     lockstep_group: int | None = None,
-                    tangent=None) -> BatchResult:
+                    tangent=None, ozone_feedback: str = "member") -> BatchResult:
     """Integrate a batch of members through shared output times with one compiled loop.
 
     Members share the kinetics, the k(t) tables of ``coefficients`` (a
@@ -442,6 +465,12 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         (default): lock-step for batches of at least LOCKSTEP_MIN_MEMBERS members, else
         per-member (DEVELOPERS.md, "Solver": measured choice and accuracy bound)
     lockstep_group : members per lock-step group (default LOCKSTEP_GROUP)
+    ozone_feedback : how an ozone column following the box (``photolysis.ozonefollow``)
+        follows the members.  "member" (default): the shared J table at the scenario's
+        column and every running member's own ln J offsets at the start of each feedback
+        window (``MemberOzoneColumns``; output J from each member's own column); "observe":
+        the earlier one-member treatment - the caller's ``on_accept`` gives the state to
+        ``photolysis.observe`` and each table is built at the observed column.
     tangent : a :class:`~boxchem.solver.tangent.TangentParameters`, single-member batches
         only: also integrate the forward sensitivities S = dy/dp (p = ln factor on k, ln y0)
         on the same steps with the same LU (``solver/tangent.py``); returned as
@@ -495,9 +524,10 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                          "plain callables run on the numpy reference loop (integrate_box)")
 
     t0, t_end = float(out[0]), float(out[-1])
-    window_edges = _window_edges(coefficients, out, breaks, on_accept is not None)
+    follows = _ozone_follows(coefficients, ozone_feedback)
+    window_edges = _window_edges(coefficients, out, breaks, on_accept is not None or follows)
     # the compiled calls: one per table window, or per feedback window with state surfaces
-    segment_edges = window_edges if surfaces is None and state_map is None else \
+    segment_edges = window_edges if surfaces is None and state_map is None and not follows else \
         _feedback_edges(window_edges, out)
     landing = np.union1d(out, segment_edges)
     air_rate = air_dilution_rates(kinetics, coefficients, landing)
@@ -511,6 +541,8 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         y[:] = state_map(t0, y)
     if on_accept is not None:
         on_accept(t0, y[0])
+    ozone = coefficients.photolysis_rates.member_columns(segment_edges, y, coefficients.photolysis_columns) \
+        if follows else None
     ks[0], fxs[0] = coefficients(t0)
     coefficient_evaluations = 1
     # state-dependent k must be evaluated right after the state is observed
@@ -597,6 +629,9 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                 lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
             fm_window = fm.copy()
             fm_window[:, columns] = np.exp(lm_window[:, columns])
+        if ozone is not None:      # each running member's own ozone column: ln J offsets
+            lm_window, fm_window = _ozone_offsets(ozone, window, lm if surfaces is None else lm_window,
+                                                  status == 0, y)
         if tangent is None:
             for a, b in groups:     # one call per lock-step group (the whole batch when per member)
                 kernel(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys[a:b],
@@ -645,6 +680,10 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         from .statesurfaces import MemberSurfaceK
         out_state = coefficients.environment.at(np.array([side(float(tt), False) for tt in out]))
         surface_k = MemberSurfaceK(surfaces, out_state, coefficients.multiplier)
+    ozone_j = None
+    if ozone is not None:
+        out_state = coefficients.environment.at(np.array([side(float(tt), False) for tt in out]))
+        ozone_j = ozone.output_j(out_state, coefficients.multiplier)
 
     message = np.empty(n_members, dtype=object)
     species = np.empty(n_members, dtype=object)
@@ -661,7 +700,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                        failure[:, 0].copy(), failure[:, 1].copy(), species, outputs_reached,
                        *(counters[:, q].copy() for q in range(len(COUNTERS))),
                        coefficient_evaluations=coefficient_evaluations,
-                       wall_time_s=_time.perf_counter() - wall0, surface_k=surface_k,
+                       wall_time_s=_time.perf_counter() - wall0, surface_k=surface_k, ozone_j=ozone_j,
                        settings={"method": method.name, "rtol": rtol, "atol": atol_setting,
                                  "compiled": True,
                                  "step_control": ("per member" if policy == "per-member" else
@@ -684,7 +723,7 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
                   breakpoint_width_s: float = BREAKPOINT_WIDTH_S,
                   method: RosenbrockMethod = RODAS3, on_accept=None,
                   compiled: bool | None = None, surface_feedback: str = "member",
-                  state_map=None) -> TimeLoopResult:
+                  state_map=None, ozone_feedback: str = "member") -> TimeLoopResult:
     """Integrate one box through ``output_times_s``: a batch of one (:func:`integrate_batch`).
 
     Parameters
@@ -713,6 +752,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
         the state through ``on_accept``: give it ``observe_state`` there).
     state_map : as :func:`integrate_batch` (the reference loop applies it after every
         accepted step, before ``on_accept``).
+    ozone_feedback : as :func:`integrate_batch` (the reference loop observes the state:
+        give it ``photolysis.observe`` through ``on_accept``).
 
     Returns
     -------
@@ -753,7 +794,8 @@ def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(
                             breakpoints_s=breakpoints_s, rtol=rtol, atol=atol, first_step=first_step,
                             max_step=max_step, method=method, progress=progress,
                             breakpoint_width_s=breakpoint_width_s, on_accept=on_accept,
-                            surface_feedback=surface_feedback, state_map=state_map)
+                            surface_feedback=surface_feedback, state_map=state_map,
+                            ozone_feedback=ozone_feedback)
     res = batch.member(0)
     if res.status != 0 and raise_on_failure:
         species = str(batch.failure_species[0]) or None
