@@ -154,3 +154,13 @@ def test_vectorised_check_equals_the_report_row_by_row():
     flags = member_checks(check, x, xf)["member_conservation"]
     assert flags[3] == CHECK_NOT_RUN
     assert (flags[:3] == CHECK_FAILED).all()        # random states are far from conserving
+
+
+def test_a_selected_member_carries_its_guard_like_a_run(season):
+    from boxchem.diagnostics.members import select_member
+    _, ds, singles = season
+    one = select_member(ds, 2)
+    assert one.attrs["conservation_check"] == "failed"
+    assert one.attrs["conservation_message"] == singles["loose"].attrs["conservation_message"]
+    assert select_member(ds, 0).attrs["conservation_check"] == "passed"
+    assert one.attrs["conservation_bound"] == singles["loose"].attrs["conservation_bound"]

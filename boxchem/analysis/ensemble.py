@@ -448,6 +448,7 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
             del first
         template.attrs["boxchem_step_policy"] = _policy_note(step_policy, batch_size)
         template.attrs["conservation_strict"] = "yes" if strict else "no"
+        template.attrs["conservation_elements_not_checked"] = " ".join(first.check.not_conserved)
         mf.create_member_file(path, template, variables, checks)
         status = np.zeros(len(table), dtype=int)
         for group, gscn, error in plan.groups:

@@ -361,3 +361,20 @@ def member_summary(ds) -> str | None:
     more = f"; ... and {failed.size - SUMMARY_MEMBERS} more" if failed.size > SUMMARY_MEMBERS else ""
     return (f"{failed.size} of {checked} members failed the conservation check: {'; '.join(parts)}"
             f"{more} (member_conservation, member_element_drift; docs/guards.md)")
+
+
+def member_report(ds, i: int) -> ConservationReport | None:
+    """Member ``i``'s stored check of a member file as a :class:`ConservationReport` (None
+    when the file has none or the member was not checked)."""
+    if "member_conservation" not in ds.variables or \
+            int(ds["member_conservation"].values[i]) == CHECK_NOT_RUN:
+        return None
+    def row(name, dim):
+        if name not in ds.variables or dim not in ds.coords:
+            return {}
+        values = np.asarray(ds[name].values[i], dtype=float)
+        return {str(k): float(v) for k, v in zip(ds[dim].values, values) if not np.isnan(v)}
+    skipped = str(ds.attrs.get("conservation_elements_not_checked", ""))
+    return ConservationReport(row("member_element_drift", ELEMENT_DIM), {},
+                              row("member_fixed_drift", FIXED_DIM),
+                              tuple(e for e in skipped.split() if e))

@@ -99,6 +99,10 @@ def select_member(ds: xr.Dataset, key: int | str) -> xr.Dataset:
     one = _with_member_scale(one, ds, i)
     one.attrs = dict(ds.attrs, member_index=i, member_label=member_labels(ds)[i],
                      member_settings=_member_settings(ds, i))
+    from .conservation import annotate, member_report
+    report = member_report(ds, i)
+    if report is not None:         # the member's own guard, as a run file carries it
+        annotate(one, report)
     return one
 
 
