@@ -164,3 +164,16 @@ def test_a_selected_member_carries_its_guard_like_a_run(season):
     assert one.attrs["conservation_message"] == singles["loose"].attrs["conservation_message"]
     assert select_member(ds, 0).attrs["conservation_check"] == "passed"
     assert one.attrs["conservation_bound"] == singles["loose"].attrs["conservation_bound"]
+
+
+def test_worker_processes_store_the_same_check(tmp_path):
+    """The check is computed in the worker that ran the batch; the file is the same as
+    in-process (local worker processes)."""
+    table = {"scale.cl_o3": [1.0, 1.5, 0.5, 2.0]}
+    here = boxchem.ensemble(CL_BOX, table, step_policy="per-member")
+    there = boxchem.ensemble(CL_BOX, table, step_policy="per-member", workers=2, batch_size=2,
+                             output=tmp_path / "w.nc")
+    np.testing.assert_array_equal(there.member_conservation.values, here.member_conservation.values)
+    np.testing.assert_array_equal(there.member_element_drift.values, here.member_element_drift.values)
+    assert there.attrs["conservation_elements_not_checked"] == "O"
+    there.close()

@@ -442,13 +442,13 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
         template, variables, checks = _template(first.setup, plan, table, save,
                                                 plan.groups[valid[0][0]][1], first.check)
         check_names = (first.check.elements, first.check.fixed)
+        template.attrs["conservation_elements_not_checked"] = " ".join(first.check.not_conserved)
         if not in_process:        # the workers build their own; do not hold it here
             from .batches import _SETUPS
             _SETUPS.clear()
             del first
         template.attrs["boxchem_step_policy"] = _policy_note(step_policy, batch_size)
         template.attrs["conservation_strict"] = "yes" if strict else "no"
-        template.attrs["conservation_elements_not_checked"] = " ".join(first.check.not_conserved)
         mf.create_member_file(path, template, variables, checks)
         status = np.zeros(len(table), dtype=int)
         for group, gscn, error in plan.groups:
