@@ -177,3 +177,12 @@ def test_worker_processes_store_the_same_check(tmp_path):
     np.testing.assert_array_equal(there.member_element_drift.values, here.member_element_drift.values)
     assert there.attrs["conservation_elements_not_checked"] == "O"
     there.close()
+
+
+def test_resume_refuses_another_strict_setting(tmp_path):
+    from boxchem.errors import BoxchemError
+    path = tmp_path / "m.nc"
+    boxchem.ensemble(CL_BOX, {"scale.cl_o3": [1.0, 2.0]}, output=path).close()
+    with pytest.raises(BoxchemError, match=r"--strict differs \(conservation_strict = no"):
+        boxchem.ensemble(CL_BOX, {"scale.cl_o3": [1.0, 2.0]}, output=path, resume=True, strict=True)
+    boxchem.ensemble(CL_BOX, {"scale.cl_o3": [1.0, 2.0]}, output=path, resume=True).close()

@@ -314,7 +314,7 @@ def _backend(workers, scheduler, client):
     return backends.in_process, "in-process", None
 
 
-def _check_resume(path: Path, table: MemberTable, save, scenario) -> np.ndarray:
+def _check_resume(path: Path, table: MemberTable, save, scenario, strict: bool = False) -> np.ndarray:
     """Status of an existing member file that matches this ensemble; refuses one that does not."""
     try:
         state = mf.read_member_state(path)
@@ -334,10 +334,13 @@ def _check_resume(path: Path, table: MemberTable, save, scenario) -> np.ndarray:
         problems.append("the mechanism differs")
     if attrs.get("scenario") != scenario.text:
         problems.append("the scenario text differs")
+    if attrs.get("conservation_strict", "yes" if strict else "no") != ("yes" if strict else "no"):
+        problems.append(f"--strict differs (conservation_strict = {attrs['conservation_strict']} "
+                        f"in the file)")
     if problems:
         raise BoxchemError(f"--resume {path}: the file was made by another ensemble "
                            f"({'; '.join(problems)}); give the same scenario, member table and "
-                           f"--save, or run without --resume to start again")
+                           f"--save (and --strict), or run without --resume to start again")
     return np.asarray(state["status"], dtype=int)
 
 
@@ -410,7 +413,7 @@ def _run(scn, table, plan, valid, save, path, batch_size, resume, run_backend, b
     from .batches import _group
     status = None
     if resume and path.exists():
-        status = _check_resume(path, table, save, scn)
+        status = _check_resume(path, table, save, scn, strict)
         mf.remove_stale_temporaries(path)
     in_process = backend_name == "in-process"
 

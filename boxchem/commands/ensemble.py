@@ -24,8 +24,10 @@ e.g.
 
 The output is the member file (docs/ensembles.md): finished members are
 written as they finish, so an interrupted run keeps them; --resume runs the
-rest.  Exit status 0 when every member succeeded, 1 when any failed, 2 for
-input errors, 130 when interrupted."""
+rest.  Every member gets the conservation check of boxchem run (element totals,
+fixed mixing ratios): the summary says how many failed it, and --strict records
+those members as failed.  Exit status 0 when every member succeeded, 1 when any
+failed, 2 for input errors, 130 when interrupted."""
 
 
 def register(subparsers) -> None:
