@@ -499,6 +499,21 @@ def state_feedback(setup: RunSetup) -> bool:
                 or phase_state_map(setup) is not None)
 
 
+def undifferentiated_feedback(setup: RunSetup) -> list[str]:
+    """The state feedbacks of a run that a tangent-linear run does not differentiate (empty
+    when it differentiates all): the ozone column following the box (``photolysis.observe``)
+    and state-dependent k observed through ``observe_state`` (no per-member surfaces).  The
+    state-dependent surfaces and the phase equilibrium are differentiated
+    (``solver/tangent_feedback.py``)."""
+    out = []
+    if getattr(setup.photolysis, "observe", None) is not None:
+        out.append("the ozone column following the box")
+    if getattr(setup.coefficients, "state_dependent", False) and \
+            getattr(setup.coefficients, "state_surfaces", None) is None:
+        out.append("state-dependent k observed per window (no per-member surfaces)")
+    return out
+
+
 def phase_state_map(setup: RunSetup):
     """The time loop's ``state_map``: the gas/condensed partition of HNO3 and H2O over NAT,
     STS and ice (``environment/condensation.py``), or None when the run has none."""

@@ -154,14 +154,15 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
         raise SensitivityError(f"method: expected one of {', '.join(METHODS)}, got {method!r}")
     setup, choice = None, f"{method} (asked for)"
     if method != "differences":
-        from ..runner import prepare, state_feedback
+        from ..runner import prepare, state_feedback, undifferentiated_feedback
         setup = prepare(scenario)
         if method == "auto":
-            feedback = state_feedback(setup)
-            method = "differences" if feedback else "tangent"
-            choice = ("auto: differences, because k or the state follow the box's composition "
-                      "(surfaces, the ozone column, the NAT/ice phase equilibrium), whose feedback the tangent does "
-                      "not differentiate" if feedback else
+            missing = undifferentiated_feedback(setup)
+            method = "differences" if missing else "tangent"
+            choice = (f"auto: differences, because the tangent does not differentiate "
+                      f"{' and '.join(missing)}" if missing else
+                      "auto: tangent (it differentiates the state feedback: state-dependent surfaces "
+                      "and the phase equilibrium)" if state_feedback(setup) else
                       "auto: tangent (no k depends on the box's state)")
     if method == "tangent":
         out = _tangent_result(scenario, parsed, columns, species, engine.get("progress"), setup)
@@ -222,9 +223,6 @@ def _tangent_result(scenario, metrics, columns, species, progress, setup=None) -
         "method": "tangent-linear (forward sensitivities on the Rosenbrock steps with the "
                   "step's LU; metrics linearised on the output)",
         "sensitivity_method": "tangent",
-        "not_differentiated": "the feedback of the box's composition on state-dependent k "
-                              "(surfaces following the composition, ozone column following "
-                              "the box): those k are taken as observed in the nominal run",
         "failed_members": 0,
         "members": 1,
         "ensemble_members": 1,

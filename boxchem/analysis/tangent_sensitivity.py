@@ -1,5 +1,11 @@
 """Local sensitivities of metrics from one tangent-linear run (``method="tangent"``).
 
+The run differentiates the state feedback too (``solver/tangent_feedback.py``):
+state-dependent surfaces (evaluated exactly every feedback window) and the
+phase equilibrium; the ozone column following the box is taken as observed
+(``runner.undifferentiated_feedback``; ``method="auto"`` then takes the
+differences).
+
 One integration of the scenario carries S = dy/dp for every parameter
 (:mod:`boxchem.solver.tangent`: p = ln factor on a reaction's k, J or surface
 k, or ln of an initial value) on the nominal run's own steps.  The metrics
@@ -57,7 +63,7 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
     """
     from ..diagnostics.metrics import evaluate_metrics
     from ..runner import (_dataset_from_result, phase_state_map, prepare, solver_options, state_feedback,
-                          state_observer)
+                          state_observer, undifferentiated_feedback)
     from ..solver.tangent import TangentParameters, rate_tangents
     from ..solver.timeloop import integrate_batch
 
@@ -144,6 +150,8 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
         series = np.stack(cols, axis=-1).transpose(1, 0, 2)             # (parameter, time, species)
     attrs = {"tangent_integration_wall_time_s": integration_s,
              "state_dependent_k": int(state_feedback(setup)),
+             "tangent_feedback": result.settings["tangent_feedback"],
+             "not_differentiated": "; ".join(undifferentiated_feedback(setup)) or "none",
              "tangent_steps": int(result.steps[0]),
              "tangent_rejected_steps": int(result.rejected_steps[0]),
              "metric_linearisation_step_ln": METRIC_EPS}

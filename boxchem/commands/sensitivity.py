@@ -177,8 +177,10 @@ def main(args) -> int:
     failed = int(result.attrs.get("failed_members", 0))
     print(f"method: {result.attrs.get('method_choice', result.attrs.get('sensitivity_method'))}")
     if result.attrs.get("sensitivity_method") == "tangent" and result.attrs.get("state_dependent_k"):
-        print("note: k of this scenario depend on the box's state; the tangent takes them as "
-              "observed and does not differentiate that feedback (check with --method differences)")
+        missing = result.attrs.get("not_differentiated", "none")
+        print(f"tangent feedback: {result.attrs.get('tangent_feedback')}" + (
+            "" if missing == "none" else f"; not differentiated: {missing} (taken as observed; check "
+            "with --method differences)"))
     if result.attrs.get("sensitivity_method") == "tangent":
         print(f"one tangent-linear run ({result.sizes['parameter']} parameters, "
               f"{result.attrs['tangent_steps']} steps) in {time.perf_counter() - wall0:.1f} s; "

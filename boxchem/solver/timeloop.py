@@ -370,6 +370,19 @@ def _apply_state_map(state_map, t_s: float, y: np.ndarray, status: np.ndarray, y
         ys[run, out_q] = y[run]
 
 
+def _tangent_feedback_text(surfaces, state_map, on_accept) -> str:
+    """Which state feedbacks a tangent run differentiated (``BatchResult.settings``)."""
+    done = []
+    if surfaces is not None:
+        done.append(f"state-dependent surfaces ({len(surfaces)} columns, exact offsets every window)")
+    if state_map is not None:
+        done.append("phase equilibrium state map")
+    text = "differentiated: " + (", ".join(done) if done else "none (no state feedback)")
+    if on_accept is not None:
+        text += "; NOT differentiated: on_accept (taken as observed in the nominal run)"
+    return text
+
+
 def _chosen_policy(step_policy: str, n_members: int) -> str:
     if step_policy not in STEP_POLICIES:
         raise ValueError(f"step_policy: expected one of {', '.join(STEP_POLICIES)}, got {step_policy!r}")
@@ -507,6 +520,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     ys = np.full((n_members, n_out, nv), np.nan)   # filled by the compiled loop
     ks = np.full((n_out, kinetics.n_reactions), np.nan)
     fxs = np.full((n_out, kinetics.n_fixed), np.nan)
+    y_given = y.copy()
     if state_map is not None:
         y[:] = state_map(t0, y)
     if on_accept is not None:
@@ -523,7 +537,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         mid_state = coefficients.environment.at(mids)       # every window's mid-point at once
         offsets = surfaces.tracker(n_members, mid_state.temperature, mid_state.pressure,
                                    mid_state.psc_area, mid_state.sulfate_area, mid_state.ice_area,
-                                   tolerances=surface_feedback == "member")
+                                   tolerances=surface_feedback == "member" and tangent is None)
         start_air = np.asarray(coefficients.air_density(segment_edges[:-1]), dtype=float)
     ys[:, 0] = y
     outputs_reached = np.ones(n_members, dtype=np.int64)
@@ -540,13 +554,24 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     counters = np.zeros((n_members, len(COUNTERS)), dtype=np.int64)
     if tangent is not None:
         from . import tangent as tl
-        tan_arrays = (tangent.param_reaction(),) + tl.tangent_slots(kinetics, kin_arrays)
+        from . import tangent_feedback as tfb
+        n_p = tangent.n_params
+        # the surface feedback's response columns Z (solver/tangent_feedback.py) after the parameters'
+        n_z = 0 if surfaces is None else len(surfaces)
+        param_reaction = tangent.param_reaction()
+        if n_z:
+            param_reaction = np.concatenate([param_reaction, surfaces.columns.astype(np.int64)])
+            offset_gradient = tfb.SurfaceOffsetGradient(surfaces, mid_state, nv)
+        tan_arrays = (param_reaction,) + tl.tangent_slots(kinetics, kin_arrays)
         out_rows = np.arange(nv, dtype=np.int64) if tangent.output_species is None else \
             np.asarray(tangent.output_species, dtype=np.int64)
-        sens = np.zeros((nv, tangent.n_params))     # species-major: the kernel's layout
+        sens = np.zeros((nv, n_p + n_z))     # species-major: the kernel's layout
         for q, j in enumerate(tangent.initial):
-            sens[j, len(tangent.reactions) + q] = y[0, j]     # d y0_j / d ln y0_j
-        sens_out = np.full((n_out, tangent.n_params, out_rows.size), np.nan)
+            sens[j, len(tangent.reactions) + q] = y_given[0, j]     # d y0_j / d ln y0_j
+        if state_map is not None:            # the map at t0: S0 = dM/dy S0
+            sens[:, :n_p] = tfb.state_map_jacobian(state_map, t0, y_given[0], float(
+                coefficients.air_density(np.array([t0]))[0])) @ sens[:, :n_p]
+        sens_out = np.full((n_out, n_p + n_z, out_rows.size), np.nan)
         sens_out[0] = sens[out_rows].T
     info = np.zeros((n_members, 3))
     status = np.zeros(n_members, dtype=np.int64)
@@ -597,6 +622,11 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                 lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
             fm_window = fm.copy()
             fm_window[:, columns] = np.exp(lm_window[:, columns])
+            if tangent is not None and status[0] == 0:
+                # G = d ln k_c / dp over this window; the Z columns start from zero
+                feedback_gain = offset_gradient(window, y[0], float(start_air[window]),
+                                                lm_window[0, columns] - lm[0, columns]) @ sens[:, :n_p]
+                sens[:, n_p:] = 0.0
         if tangent is None:
             for a, b in groups:     # one call per lock-step group (the whole batch when per member)
                 kernel(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys[a:b],
@@ -616,6 +646,14 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         if newly_failed.any():
             failure[newly_failed] = info[newly_failed]
             y[newly_failed] = np.nan
+        if tangent is not None and status[0] == 0 and (n_z or state_map is not None):
+            if n_z:
+                sens[:, :n_p] += sens[:, n_p:] @ feedback_gain       # superposition of the feedback
+            if state_map is not None:
+                sens[:, :n_p] = tfb.state_map_jacobian(state_map, wb, y[0], float(
+                    coefficients.air_density(np.array([wb]))[0])) @ sens[:, :n_p]
+            if out_index[stop - 1] >= 0:
+                sens_out[out_index[stop - 1]] = sens[out_rows].T
         if state_map is not None:     # first: what the observers and the next window see
             _apply_state_map(state_map, wb, y, status, ys, int(out_index[stop - 1]))
         if on_accept is not None and status[0] == 0:
@@ -667,15 +705,18 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                                  "step_control": ("per member" if policy == "per-member" else
                                                   f"lock-step in groups of at most {group} members"),
                                  "state_surfaces": ("none" if getattr(coefficients, "state_surfaces", None)
-                                                    is None else surface_feedback),
+                                                    is None else "member_exact" if tangent is not None
+                                                    and surface_feedback == "member" else surface_feedback),
                                  "lu": (f"sparse, fixed pattern ({structure.order_name} order, "
                                         f"{structure.nnz} non-zeros, {structure.operations} "
                                         f"multiply-adds), dense pivoting fallback")
                                  if lu == "sparse" else "dense, partial pivoting",
                                  **({"tangent": "forward sensitivities on the same steps (the "
-                                     "augmented Rosenbrock system, S not in the error norm)"}
+                                     "augmented Rosenbrock system, S not in the error norm)",
+                                     "tangent_feedback": _tangent_feedback_text(surfaces, state_map,
+                                                                                on_accept)}
                                     if tangent is not None else {})},
-                       sensitivity=None if tangent is None else sens_out)
+                       sensitivity=None if tangent is None else sens_out[:, :n_p])
 
 
 def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(),
