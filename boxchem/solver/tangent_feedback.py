@@ -55,8 +55,8 @@ class SurfaceOffsetGradient:
         self.s = surfaces
         self.nv = int(n_variable)
         self._variable = np.nonzero(surfaces._index >= 0)[0]        # positions in surfaces.species
-        n = 2 * self._variable.size
-        self.tracker = surfaces.tracker(max(n, 1), mid_state.temperature, mid_state.pressure,
+        n = 2 * self._variable.size + 1
+        self.tracker = surfaces.tracker(n, mid_state.temperature, mid_state.pressure,
                                         mid_state.psc_area, mid_state.sulfate_area, mid_state.ice_area,
                                         tolerances=False)
         self.evaluations = 0
@@ -66,47 +66,51 @@ class SurfaceOffsetGradient:
         """The integrated species the offsets read (the surfaces' inputs that are variables)."""
         return tuple(self.s.species[i] for i in self._variable)
 
-    def __call__(self, window: int, y, air: float, offsets) -> np.ndarray:
-        """d c / d y [cm3] at state ``y`` (n_variable,) [cm-3], air density ``air`` [cm-3],
-        ``offsets`` (n_columns,) the nominal ones (the time loop's, for this window)."""
+    def __call__(self, window: int, y, air: float):
+        """(offsets (n_columns,), d offsets / d y (n_columns, n_variable) [cm3]) of feedback
+        window ``window`` at state ``y`` (n_variable,) [cm-3] and air density ``air`` [cm-3]:
+        the exact offsets (re-evaluated, no refresh tolerances) and their central differences,
+        in one vectorised evaluation."""
         s = self.s
         grad = np.zeros((len(s), self.nv))
         m = self._variable.size
-        if m == 0:
-            return grad
         x = s.mole_fractions(y[None, :], air)[0]
         xv = x[self._variable]
         h, lower = _steps(xv, FEEDBACK_DIFFERENCE, DIFFERENCE_FLOOR)
         upper = lower + np.where(lower < xv, 2.0 * h, h)
-        X = np.broadcast_to(x, (2 * m, x.size)).copy()
+        X = np.broadcast_to(x, (2 * m + 1, x.size)).copy()          # row 2m: the nominal state
         rows = np.arange(m)
         X[rows, self._variable] = upper
         X[m + rows, self._variable] = lower
-        c = self.tracker.offsets(window, np.arange(2 * m), X)        # (2m, n_columns)
+        c = self.tracker.offsets(window, np.arange(2 * m + 1), X)    # (2m + 1, n_columns)
         self.evaluations += 1
+        offsets = c[-1]
+        if m == 0:
+            return offsets, grad
         finite = np.isfinite(offsets)
         with np.errstate(invalid="ignore", over="ignore"):
             # through the k ratio exp(c - c0): a side where the area vanishes gives k = 0, not -inf
-            ratio = np.exp(c - np.where(finite, offsets, 0.0)[None, :])
+            ratio = np.exp(c[:-1] - np.where(finite, offsets, 0.0)[None, :])
             dc_dx = (ratio[:m] - ratio[m:]) / (upper - lower)[:, None]   # (m, n_columns)
         dc_dx = np.where(finite[None, :] & np.isfinite(dc_dx), dc_dx, 0.0)
         grad[:, s._index[self._variable]] = dc_dx.T / air
-        return grad
+        return offsets, grad
 
 
-def state_map_jacobian(state_map, t_s: float, y, air: float) -> np.ndarray:
-    """dM/dy (n_variable, n_variable) of ``state_map(t_s, Y)`` (rows of states [cm-3]) at
-    ``y`` (n_variable,); ``air`` [cm-3] sets the floor of the steps.  Differences of
-    M(y) - y, so a component the map leaves alone has the identity exactly."""
+def state_map_jacobian(state_map, t_s: float, y, air: float):
+    """(dM/dy (n_variable, n_variable), M(y)) of ``state_map(t_s, Y)`` (rows of states
+    [cm-3]) at ``y`` (n_variable,), in one call; ``air`` [cm-3] sets the floor of the steps.
+    Differences of M(y) - y, so a component the map leaves alone has the identity exactly."""
     y = np.asarray(y, dtype=float)
     nv = y.size
     h, lower = _steps(y, MAP_DIFFERENCE, DIFFERENCE_FLOOR * air)
     upper = lower + np.where(lower < y, 2.0 * h, h)
-    Y = np.broadcast_to(y, (2 * nv, nv)).copy()
+    Y = np.broadcast_to(y, (2 * nv + 1, nv)).copy()                 # row 2 nv: y itself
     rows = np.arange(nv)
     Y[rows, rows] = upper
     Y[nv + rows, rows] = lower
-    change = state_map(t_s, Y) - Y
+    new = state_map(t_s, Y)
+    change = new[:-1] - Y[:-1]
     jac = ((change[:nv] - change[nv:]) / (upper - lower)[:, None]).T     # [i, j] = d M_i / d y_j
     jac[rows, rows] += 1.0
-    return jac
+    return jac, new[-1]

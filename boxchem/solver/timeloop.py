@@ -559,20 +559,22 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         # the surface feedback's response columns Z (solver/tangent_feedback.py) after the parameters'
         n_z = 0 if surfaces is None else len(surfaces)
         param_reaction = tangent.param_reaction()
+        slots = tl.tangent_slots(kinetics, kin_arrays)
+        tan_arrays = (param_reaction,) + slots
         if n_z:
-            param_reaction = np.concatenate([param_reaction, surfaces.columns.astype(np.int64)])
             offset_gradient = tfb.SurfaceOffsetGradient(surfaces, mid_state, nv)
-        tan_arrays = (param_reaction,) + tl.tangent_slots(kinetics, kin_arrays)
+        if state_map is not None:
+            edge_air = np.asarray(coefficients.air_density(segment_edges), dtype=float)
         out_rows = np.arange(nv, dtype=np.int64) if tangent.output_species is None else \
             np.asarray(tangent.output_species, dtype=np.int64)
-        sens = np.zeros((nv, n_p + n_z))     # species-major: the kernel's layout
+        sens = np.zeros((nv, n_p))     # species-major: the kernel's layout
         for q, j in enumerate(tangent.initial):
             sens[j, len(tangent.reactions) + q] = y_given[0, j]     # d y0_j / d ln y0_j
         if state_map is not None:            # the map at t0: S0 = dM/dy S0
-            sens[:, :n_p] = tfb.state_map_jacobian(state_map, t0, y_given[0], float(
-                coefficients.air_density(np.array([t0]))[0])) @ sens[:, :n_p]
+            sens = tfb.state_map_jacobian(state_map, t0, y_given[0], float(edge_air[0]))[0] @ sens
         sens_out = np.full((n_out, n_p + n_z, out_rows.size), np.nan)
-        sens_out[0] = sens[out_rows].T
+        sens_out[0, :n_p] = sens[out_rows].T
+        sens_run = sens                      # what the kernel integrates (with the Z columns)
     info = np.zeros((n_members, 3))
     status = np.zeros(n_members, dtype=np.int64)
     failure = np.full((n_members, 3), np.nan)      # time, step, worst species index
@@ -615,18 +617,25 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
             # each running member's own surface k: ln offsets on the reference columns
             lm_window = lm.copy()
             run = np.nonzero(running_before)[0]
-            x = surfaces.mole_fractions(y[run], start_air[window])
-            if run.size == n_members:
-                lm_window[:, columns] += offsets.offsets(window, run, x)
+            if tangent is not None:
+                if run.size:
+                    # the offsets and their gradient in one evaluation; G = d ln k_c / dp over
+                    # this window, and the response columns Z of the columns it moves, from zero
+                    nominal, gradient = offset_gradient(window, y[0], float(start_air[window]))
+                    lm_window[0, columns] += nominal
+                    active = np.nonzero(gradient.any(axis=1))[0]
+                    feedback_gain = gradient[active] @ sens
+                    sens_run = np.zeros((nv, n_p + active.size))
+                    sens_run[:, :n_p] = sens
+                    tan_arrays = (np.concatenate([param_reaction, columns[active]]),) + slots
             else:
-                lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
+                x = surfaces.mole_fractions(y[run], start_air[window])
+                if run.size == n_members:
+                    lm_window[:, columns] += offsets.offsets(window, run, x)
+                else:
+                    lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
             fm_window = fm.copy()
             fm_window[:, columns] = np.exp(lm_window[:, columns])
-            if tangent is not None and status[0] == 0:
-                # G = d ln k_c / dp over this window; the Z columns start from zero
-                feedback_gain = offset_gradient(window, y[0], float(start_air[window]),
-                                                lm_window[0, columns] - lm[0, columns]) @ sens[:, :n_p]
-                sens[:, n_p:] = 0.0
         if tangent is None:
             for a, b in groups:     # one call per lock-step group (the whole batch when per member)
                 kernel(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys[a:b],
@@ -637,7 +646,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                        counters[a:b], info[a:b], params)
         else:
             tl.advance_tangent(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
-                               sens_out, out_rows, outputs_reached, y, sens, *tan_arrays, h, restart,
+                               sens_out, out_rows, outputs_reached, y, sens_run, *tan_arrays, h, restart,
                                status, h_max, table.t_a, table.t_b, table.poly, table.log_col,
                                table.sza_poly, table.sgrid, table.lnj, table.phot_cols, table.horizon,
                                lm_window, fm_window, rtol, atol, *m_arrays, *kin_arrays[:8], lu_arrays[0],
@@ -646,15 +655,20 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         if newly_failed.any():
             failure[newly_failed] = info[newly_failed]
             y[newly_failed] = np.nan
+        mapped = False
         if tangent is not None and status[0] == 0 and (n_z or state_map is not None):
-            if n_z:
-                sens[:, :n_p] += sens[:, n_p:] @ feedback_gain       # superposition of the feedback
-            if state_map is not None:
-                sens[:, :n_p] = tfb.state_map_jacobian(state_map, wb, y[0], float(
-                    coefficients.air_density(np.array([wb]))[0])) @ sens[:, :n_p]
+            if n_z:          # superposition of the feedback: S = S_0 + Z G
+                sens = sens_run[:, :n_p] + sens_run[:, n_p:] @ feedback_gain
+                sens_run = sens
+            if state_map is not None:      # the map and its Jacobian in one evaluation
+                jacobian, y[0] = tfb.state_map_jacobian(state_map, wb, y[0], float(edge_air[window + 1]))
+                sens = sens_run = jacobian @ sens
+                mapped = True
+                if out_index[stop - 1] >= 0:
+                    ys[0, out_index[stop - 1]] = y[0]
             if out_index[stop - 1] >= 0:
-                sens_out[out_index[stop - 1]] = sens[out_rows].T
-        if state_map is not None:     # first: what the observers and the next window see
+                sens_out[out_index[stop - 1], :n_p] = sens[out_rows].T
+        if state_map is not None and not mapped:     # first: what the observers and the next window see
             _apply_state_map(state_map, wb, y, status, ys, int(out_index[stop - 1]))
         if on_accept is not None and status[0] == 0:
             on_accept(wb, y[0])      # before the output k and the next window's table
