@@ -493,7 +493,8 @@ def state_observer(setup: RunSetup, surface_feedback: str = "member"):
 def state_feedback(setup: RunSetup) -> bool:
     """True when some k or the state itself follows the box's composition as it runs:
     state-dependent surfaces, the ozone column following the box, or the phase
-    equilibrium (what a tangent-linear run does not differentiate)."""
+    equilibrium (``undifferentiated_feedback`` says which of them a tangent run does not
+    differentiate)."""
     return bool(getattr(setup.coefficients, "state_dependent", False)
                 or getattr(setup.photolysis, "observe", None) is not None
                 or phase_state_map(setup) is not None)

@@ -150,3 +150,55 @@ def test_nat_box_feeding_its_own_area_agrees_with_separate_runs():
         np.testing.assert_allclose(res.sensitivity[-1, q], fd, rtol=0, atol=1e-5 * scale, err_msg=name)
     # the feedback matters here: d ClONO2 / d ln HNO3(0) is a sizeable part of the ClONO2 loss
     assert abs(res.sensitivity[-1, 1, i]) > 0.05 * abs(res.sensitivity[-1, 0, i])
+
+
+def _ten_largest_against_single_runs(scenario, metric_time):
+    """(tangent S, brute-force S) of the ten largest coefficients of O3 at ``metric_time``:
+    brute force = central differences (h = 0.02) of separate ``boxchem.run(scale=...)`` runs
+    (the engine's default surface refresh), common practice, no source."""
+    from boxchem.analysis.sensitivity import local_sensitivities, ranking
+    tangent = local_sensitivities(scenario, [f"o3 = O3 at {metric_time}"], species=())
+    assert tangent.attrs["sensitivity_method"] == "tangent"          # what auto chose
+    assert tangent.attrs["not_differentiated"] == "none"
+    assert "state-dependent surfaces" in tangent.attrs["tangent_feedback"]
+    assert "phase equilibrium" in tangent.attrs["tangent_feedback"]
+    pairs = []
+    for row in ranking(tangent, "o3", 10):
+        rid = row["parameter"].split(".", 1)[1]
+        o3 = [float(boxchem.run(scenario, scale={rid: math.exp(s * 0.02)}).mole_fraction
+                    .sel(species="O3").sel(time=metric_time.rstrip("Z"))) for s in (1.0, -1.0)]
+        pairs.append((rid, row["sensitivity"], (math.log(o3[0]) - math.log(o3[1])) / 0.04))
+    return pairs
+
+
+def test_twenty_days_of_polar_spring_with_feedback_agree_with_separate_runs():
+    # 11-30 September of polar-spring: NAT, ice rule and liquid sulfate gammas following the
+    # composition, phase equilibrium, sunlit.  Measured: worst 0.03 % (clo_bro_b ... j_o3_o);
+    # the tangent without the feedback was 5.7 % off (clo_oh_b) and 2.2 % (cl_o3) here, so a
+    # tangent that lost the feedback fails this bar of 0.5 %
+    scenario = boxchem.load_scenario("polar-spring").with_overrides(
+        **{"run.start": "2026-09-11T00:00:00Z", "run.duration": "20 d"})
+    for rid, tangent, brute in _ten_largest_against_single_runs(scenario, "2026-10-01T00:00:00Z"):
+        assert tangent == pytest.approx(brute, rel=0.005), rid
+
+
+@pytest.mark.slow
+def test_polar_spring_season_ten_largest_of_o3_on_1_october_within_2_percent():
+    # the issue's acceptance criterion: the season from 1 August, O3 on 1 October (the run
+    # ends there); measured 0.02 % at worst (benchmarks/README.md, bench_sensitivity.py)
+    scenario = boxchem.load_scenario("polar-spring").with_overrides(**{"run.duration": "61 d"})
+    for rid, tangent, brute in _ten_largest_against_single_runs(scenario, "2026-10-01T00:00:00Z"):
+        assert tangent == pytest.approx(brute, rel=0.02), rid
+
+
+def test_auto_takes_the_differences_when_the_ozone_column_follows_the_box():
+    # the one feedback the tangent does not differentiate: auto says so and takes the differences
+    from boxchem.analysis.sensitivity import local_sensitivities
+    scenario = boxchem.load_scenario("polar-spring").with_overrides(**{
+        "run.start": "2026-09-30T00:00:00Z", "run.duration": "6 h",
+        "photolysis.ozone_column_follows_box": True})
+    assert runner.undifferentiated_feedback(runner.prepare(scenario)) == ["the ozone column following the box"]
+    r = local_sensitivities(scenario, ["O3 at end"], reactions=["clo_clo_m"], species=())
+    assert r.attrs["sensitivity_method"] == "differences"
+    assert r.attrs["method_choice"] == ("auto: differences, because the tangent does not differentiate "
+                                        "the ozone column following the box")

@@ -26,12 +26,12 @@ Method (docs/sensitivity-uncertainty.md, "Local sensitivities"):
   of 2N + 1 members, no step to choose, and the exact derivative of the
   discrete solution.  The finite differences stay as its check (tests,
   benchmarks/bench_sensitivity.py) and for what the tangent does not
-  differentiate: the feedback of the box's composition on state-dependent k
-  (surfaces that follow the composition, the ozone column following the box)
-  is in the differences but not in the tangent.  ``method="auto"`` (the
-  default) therefore takes the tangent unless the scenario has such k
-  (measured on the polar-spring season: 7 % on ClO + OH -> HCl, 1-2 % on the
-  leading coefficients; docs/sensitivity-uncertainty.md).
+  differentiate: the ozone column following the box.  The state-dependent
+  surfaces and the phase equilibrium are differentiated
+  (:mod:`boxchem.solver.tangent_feedback`), so ``method="auto"`` (the
+  default) takes the tangent unless the ozone column follows the box
+  (measured on the polar-spring season: the ten largest coefficients of O3 on
+  1 October within 0.02 % of separate runs; docs/sensitivity-uncertainty.md).
 
 Time-resolved sensitivities d ln x_s(t) / d ln p_i of chosen species come
 from the same members.
@@ -53,7 +53,7 @@ __all__ = ["local_sensitivities", "sensitivities_from_members", "ranking", "para
            "DEFAULT_STEP", "run_ensemble", "METHODS", "DEFAULT_METHOD"]
 
 #: ways of computing the local sensitivities (module docstring); "auto" is the tangent
-#: unless the scenario's k depend on the box's state (their feedback is not in the tangent)
+#: unless the run has a feedback the tangent does not differentiate (runner.undifferentiated_feedback)
 METHODS = ("auto", "tangent", "differences")
 DEFAULT_METHOD = "auto"
 
@@ -130,8 +130,9 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
     "forward"; ``species``: species whose time-resolved sensitivities are
     kept (default O3 when the mechanism has it).  ``method``: "tangent" (one
     tangent-linear run; ``step`` and ``scheme`` unused), "differences" (the
-    ensemble) or "auto" (default: the tangent unless some k depend on the box's
-    state, whose feedback only the differences see).  ``engine``: options of :func:`boxchem.ensemble` (``workers``,
+    ensemble) or "auto" (default: the tangent unless the run has a feedback it does
+    not differentiate, ``runner.undifferentiated_feedback``: the ozone column following
+    the box).  ``engine``: options of :func:`boxchem.ensemble` (``workers``,
     ``scheduler``, ``client``, ``progress``, ``output`` for the member file, ...);
     the tangent run uses only ``progress``.
 
