@@ -116,9 +116,12 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
             drate = np.moveaxis(rate_tangents(kin, y, member.k, fixed, sens[:, a:b, :],
                                               param_reaction[a:b]), 1, 0)   # (c, n_out, nr)
             rates = (rates0[None, None] + signs * drate[None]).reshape((-1,) + rates0.shape)
-        else:
+            derived = derived_outputs(nd, rates, air, weights, cycles)
+        else:       # no metric reads rates: the nominal ones, and their cycle rates once
             rates = np.broadcast_to(rates0, (nd.shape[0],) + rates0.shape)
-        derived = derived_outputs(nd, rates, air, weights, cycles)
+            derived = derived_outputs(nd, rates0[None], air, weights, cycles)
+            derived["cycle_rate"] = np.broadcast_to(derived["cycle_rate"],
+                                                    (nd.shape[0],) + derived["cycle_rate"].shape[1:])
         moved = ds.drop_vars([v for v in ("mole_fraction", "reaction_rate", "cycle_rate",
                                           "number_density", "family_number_density") if v in ds])
         members = np.arange(nd.shape[0])
