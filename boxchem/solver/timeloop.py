@@ -458,7 +458,10 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     tangent : a :class:`~boxchem.solver.tangent.TangentParameters`, single-member batches
         only: also integrate the forward sensitivities S = dy/dp (p = ln factor on k, ln y0)
         on the same steps with the same LU (``solver/tangent.py``); returned as
-        ``BatchResult.sensitivity``
+        ``BatchResult.sensitivity``.  The state feedback is differentiated
+        (``solver/tangent_feedback.py``): state-dependent surfaces (their offsets then
+        re-evaluated every window, as "member_exact") and ``state_map``; what
+        ``on_accept`` observes is not (``settings["tangent_feedback"]`` says which)
 
     Returns
     -------
