@@ -495,10 +495,26 @@ def state_observer(setup: RunSetup, surface_feedback: str = "member", ozone_feed
 def state_feedback(setup: RunSetup) -> bool:
     """True when some k or the state itself follows the box's composition as it runs:
     state-dependent surfaces, the ozone column following the box, or the phase
-    equilibrium (what a tangent-linear run does not differentiate)."""
+    equilibrium (``undifferentiated_feedback`` says which of them a tangent run does not
+    differentiate)."""
     return bool(getattr(setup.coefficients, "state_dependent", False)
                 or getattr(setup.photolysis, "observe", None) is not None
                 or phase_state_map(setup) is not None)
+
+
+def undifferentiated_feedback(setup: RunSetup) -> list[str]:
+    """The state feedbacks of a run that a tangent-linear run does not differentiate (empty
+    when it differentiates all): the ozone column following the box (``photolysis.observe``)
+    and state-dependent k observed through ``observe_state`` (no per-member surfaces).  The
+    state-dependent surfaces and the phase equilibrium are differentiated
+    (``solver/tangent_feedback.py``)."""
+    out = []
+    if getattr(setup.photolysis, "observe", None) is not None:
+        out.append("the ozone column following the box")
+    if getattr(setup.coefficients, "state_dependent", False) and \
+            getattr(setup.coefficients, "state_surfaces", None) is None:
+        out.append("state-dependent k observed per window (no per-member surfaces)")
+    return out
 
 
 def phase_state_map(setup: RunSetup):

@@ -141,10 +141,12 @@ def polar_spring_sensitivities():
 
 def test_ten_largest_agree_with_separate_single_runs(polar_spring_sensitivities):
     scenario, r = polar_spring_sensitivities
-    # the default (auto) takes the differences here: polar-spring's surfaces follow the box's
-    # composition, a feedback the tangent does not differentiate
-    assert r.attrs["sensitivity_method"] == "differences"
-    assert r.attrs["method_choice"].startswith("auto: differences")
+    # the default (auto) takes the tangent here: it differentiates polar-spring's state
+    # feedback (surfaces following the composition, the NAT/ice phase equilibrium)
+    assert r.attrs["sensitivity_method"] == "tangent"
+    assert r.attrs["method_choice"].startswith("auto: tangent (it differentiates")
+    assert "state-dependent surfaces" in r.attrs["tangent_feedback"] and \
+        "phase equilibrium" in r.attrs["tangent_feedback"] and r.attrs["not_differentiated"] == "none"
     # brute force: separate boxchem.run calls with scale=, tighter tolerances and another
     # step (h = 0.02), so that the integrator's error and the step's truncation both count
     tight = scenario.with_overrides(**{"solver.rtol": 1e-6, "solver.atol": "1e-2 cm-3"})

@@ -26,12 +26,12 @@ Method (docs/sensitivity-uncertainty.md, "Local sensitivities"):
   of 2N + 1 members, no step to choose, and the exact derivative of the
   discrete solution.  The finite differences stay as its check (tests,
   benchmarks/bench_sensitivity.py) and for what the tangent does not
-  differentiate: the feedback of the box's composition on state-dependent k
-  (surfaces that follow the composition, the ozone column following the box)
-  is in the differences but not in the tangent.  ``method="auto"`` (the
-  default) therefore takes the tangent unless the scenario has such k
-  (measured on the polar-spring season: 7 % on ClO + OH -> HCl, 1-2 % on the
-  leading coefficients; docs/sensitivity-uncertainty.md).
+  differentiate: the ozone column following the box.  The state-dependent
+  surfaces and the phase equilibrium are differentiated
+  (:mod:`boxchem.solver.tangent_feedback`), so ``method="auto"`` (the
+  default) takes the tangent unless the ozone column follows the box
+  (measured on the polar-spring season: the ten largest coefficients of O3 on
+  1 October within 0.02 % of separate runs; docs/sensitivity-uncertainty.md).
 
 Time-resolved sensitivities d ln x_s(t) / d ln p_i of chosen species come
 from the same members.
@@ -53,7 +53,7 @@ __all__ = ["local_sensitivities", "sensitivities_from_members", "ranking", "para
            "DEFAULT_STEP", "run_ensemble", "METHODS", "DEFAULT_METHOD"]
 
 #: ways of computing the local sensitivities (module docstring); "auto" is the tangent
-#: unless the scenario's k depend on the box's state (their feedback is not in the tangent)
+#: unless the run has a feedback the tangent does not differentiate (runner.undifferentiated_feedback)
 METHODS = ("auto", "tangent", "differences")
 DEFAULT_METHOD = "auto"
 
@@ -130,8 +130,9 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
     "forward"; ``species``: species whose time-resolved sensitivities are
     kept (default O3 when the mechanism has it).  ``method``: "tangent" (one
     tangent-linear run; ``step`` and ``scheme`` unused), "differences" (the
-    ensemble) or "auto" (default: the tangent unless some k depend on the box's
-    state, whose feedback only the differences see).  ``engine``: options of :func:`boxchem.ensemble` (``workers``,
+    ensemble) or "auto" (default: the tangent unless the run has a feedback it does
+    not differentiate, ``runner.undifferentiated_feedback``: the ozone column following
+    the box).  ``engine``: options of :func:`boxchem.ensemble` (``workers``,
     ``scheduler``, ``client``, ``progress``, ``output`` for the member file, ...);
     the tangent run uses only ``progress``.
 
@@ -154,14 +155,15 @@ def local_sensitivities(scenario, metrics: str | Sequence[str] | Sequence[Metric
         raise SensitivityError(f"method: expected one of {', '.join(METHODS)}, got {method!r}")
     setup, choice = None, f"{method} (asked for)"
     if method != "differences":
-        from ..runner import prepare, state_feedback
+        from ..runner import prepare, state_feedback, undifferentiated_feedback
         setup = prepare(scenario)
         if method == "auto":
-            feedback = state_feedback(setup)
-            method = "differences" if feedback else "tangent"
-            choice = ("auto: differences, because k or the state follow the box's composition "
-                      "(surfaces, the ozone column, the NAT/ice phase equilibrium), whose feedback the tangent does "
-                      "not differentiate" if feedback else
+            missing = undifferentiated_feedback(setup)
+            method = "differences" if missing else "tangent"
+            choice = (f"auto: differences, because the tangent does not differentiate "
+                      f"{' and '.join(missing)}" if missing else
+                      "auto: tangent (it differentiates the state feedback: state-dependent surfaces "
+                      "and the phase equilibrium)" if state_feedback(setup) else
                       "auto: tangent (no k depends on the box's state)")
     if method == "tangent":
         out = _tangent_result(scenario, parsed, columns, species, engine.get("progress"), setup)
@@ -224,9 +226,6 @@ def _tangent_result(scenario, metrics, columns, species, progress, setup=None) -
         "method": "tangent-linear (forward sensitivities on the Rosenbrock steps with the "
                   "step's LU; metrics linearised on the output)",
         "sensitivity_method": "tangent",
-        "not_differentiated": "the feedback of the box's composition on state-dependent k "
-                              "(surfaces following the composition, ozone column following "
-                              "the box): those k are taken as observed in the nominal run",
         "failed_members": 0,
         "members": 1,
         "ensemble_members": 1,

@@ -1,5 +1,11 @@
 """Local sensitivities of metrics from one tangent-linear run (``method="tangent"``).
 
+The run differentiates the state feedback too (``solver/tangent_feedback.py``):
+state-dependent surfaces (evaluated exactly every feedback window) and the
+phase equilibrium; the ozone column following the box is taken as observed
+(``runner.undifferentiated_feedback``; ``method="auto"`` then takes the
+differences).
+
 One integration of the scenario carries S = dy/dp for every parameter
 (:mod:`boxchem.solver.tangent`: p = ln factor on a reaction's k, J or surface
 k, or ln of an initial value) on the nominal run's own steps.  The metrics
@@ -57,7 +63,7 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
     """
     from ..diagnostics.metrics import evaluate_metrics
     from ..runner import (_dataset_from_result, phase_state_map, prepare, solver_options, state_feedback,
-                          state_observer)
+                          state_observer, undifferentiated_feedback)
     from ..solver.tangent import TangentParameters, rate_tangents
     from ..solver.timeloop import integrate_batch
 
@@ -110,9 +116,12 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
             drate = np.moveaxis(rate_tangents(kin, y, member.k, fixed, sens[:, a:b, :],
                                               param_reaction[a:b]), 1, 0)   # (c, n_out, nr)
             rates = (rates0[None, None] + signs * drate[None]).reshape((-1,) + rates0.shape)
-        else:
+            derived = derived_outputs(nd, rates, air, weights, cycles)
+        else:       # no metric reads rates: the nominal ones, and their cycle rates once
             rates = np.broadcast_to(rates0, (nd.shape[0],) + rates0.shape)
-        derived = derived_outputs(nd, rates, air, weights, cycles)
+            derived = derived_outputs(nd, rates0[None], air, weights, cycles)
+            derived["cycle_rate"] = np.broadcast_to(derived["cycle_rate"],
+                                                    (nd.shape[0],) + derived["cycle_rate"].shape[1:])
         moved = ds.drop_vars([v for v in ("mole_fraction", "reaction_rate", "cycle_rate",
                                           "number_density", "family_number_density") if v in ds])
         members = np.arange(nd.shape[0])
@@ -144,6 +153,8 @@ def tangent_sensitivities(scenario, metrics, parameters: Sequence[str], species:
         series = np.stack(cols, axis=-1).transpose(1, 0, 2)             # (parameter, time, species)
     attrs = {"tangent_integration_wall_time_s": integration_s,
              "state_dependent_k": int(state_feedback(setup)),
+             "tangent_feedback": result.settings["tangent_feedback"],
+             "not_differentiated": "; ".join(undifferentiated_feedback(setup)) or "none",
              "tangent_steps": int(result.steps[0]),
              "tangent_rejected_steps": int(result.rejected_steps[0]),
              "metric_linearisation_step_ln": METRIC_EPS}

@@ -20,8 +20,9 @@ Metrics (several with ';' or repeated --metric):
 --method tangent: one tangent-linear run carries d y/d ln k of every reaction (thermal
 k, J, surface gamma) on the nominal run's own steps; --method differences varies each
 by exp(+-h) in one batched ensemble (central differences, h = 0.05; the check); the
-default auto takes the tangent unless k depend on the box's state (e.g. polar-spring's
-surfaces), whose feedback only the differences see: docs/sensitivity-uncertainty.md.
+default auto takes the tangent, which also differentiates the state feedback (surfaces
+following the composition, the NAT/STS/ice phase equilibrium), unless the ozone column
+follows the box (not differentiated; then the differences): docs/sensitivity-uncertainty.md.
 Writes OUT.nc (sensitivities, time-resolved species sensitivities), OUT-tornado.png and
 prints the ranking."""
 
@@ -86,9 +87,9 @@ def register(subparsers) -> None:
                    help="also differentiate with respect to these initial mole fractions")
     p.add_argument("--method", choices=("auto", "tangent", "differences"), default="auto",
                    help="tangent (one run with forward sensitivities), differences (central "
-                        "differences on the ensemble engine; the check) or auto (default: tangent "
-                        "unless k depend on the box's state, e.g. surfaces following the "
-                        "composition, whose feedback only the differences see)")
+                        "differences on the ensemble engine; the check) or auto (default: the "
+                        "tangent, which differentiates the surfaces' and the phase equilibrium's "
+                        "feedback, unless the ozone column follows the box: then differences)")
     p.add_argument("--step", type=float, default=None, metavar="H",
                    help="finite-difference step in ln k (--method differences; default 0.05)")
     p.add_argument("--scheme", choices=("central", "forward"), default="central",
@@ -179,8 +180,10 @@ def main(args) -> int:
     failed = int(result.attrs.get("failed_members", 0))
     print(f"method: {result.attrs.get('method_choice', result.attrs.get('sensitivity_method'))}")
     if result.attrs.get("sensitivity_method") == "tangent" and result.attrs.get("state_dependent_k"):
-        print("note: k of this scenario depend on the box's state; the tangent takes them as "
-              "observed and does not differentiate that feedback (check with --method differences)")
+        missing = result.attrs.get("not_differentiated", "none")
+        print(f"tangent feedback: {result.attrs.get('tangent_feedback')}" + (
+            "" if missing == "none" else f"; not differentiated: {missing} (taken as observed; check "
+            "with --method differences)"))
     if result.attrs.get("sensitivity_method") == "tangent":
         print(f"one tangent-linear run ({result.sizes['parameter']} parameters, "
               f"{result.attrs['tangent_steps']} steps) in {time.perf_counter() - wall0:.1f} s; "

@@ -44,10 +44,13 @@ Rules shared with the state:
   value, see ``timeloop``) has the derivative of max(y, 0) there: its row of
   S is zeroed;
 * the k(t) window tables (and their multipliers) are given functions of
-  time: state-dependent k (surfaces that follow the box's composition,
-  ``on_accept``; the ozone column following the box) are taken as they were
-  observed, and the feedback of the composition on those k is not
-  differentiated.
+  time inside the kernel.  The state feedback between kernel calls is
+  differentiated by the time loop (``tangent_feedback``): the state-dependent
+  surface offsets set at each feedback window's start (by superposition of
+  extra response columns, ``param_reaction`` = the surface column) and the
+  phase equilibrium map at t0 and each window end (its Jacobian).  Only what
+  ``on_accept`` observes (the ozone column following the box) is taken as
+  observed and not differentiated.
 
 The step loop is that of ``compiled._advance_member`` (same order of
 operations, so y is bitwise the same as a plain run's); it is repeated here

@@ -393,6 +393,21 @@ def _ozone_offsets(ozone, window: int, lm_window, running, y):
     return lm_out, np.ascontiguousarray(np.exp(lm_out))
 
 
+def _tangent_feedback_text(surfaces, state_map, on_accept, ozone) -> str:
+    """Which state feedbacks a tangent run differentiated (``BatchResult.settings``)."""
+    done = []
+    if surfaces is not None:
+        done.append(f"state-dependent surfaces ({len(surfaces)} columns, exact offsets every window)")
+    if state_map is not None:
+        done.append("phase equilibrium state map")
+    text = "differentiated: " + (", ".join(done) if done else "none (no state feedback)")
+    missed = (["on_accept (taken as observed in the nominal run)"] if on_accept is not None else []) + \
+        (["the members' own ozone columns (J offsets taken as in the nominal run)"] if ozone is not None else [])
+    if missed:
+        text += "; NOT differentiated: " + ", ".join(missed)
+    return text
+
+
 def _chosen_policy(step_policy: str, n_members: int) -> str:
     if step_policy not in STEP_POLICIES:
         raise ValueError(f"step_policy: expected one of {', '.join(STEP_POLICIES)}, got {step_policy!r}")
@@ -474,7 +489,10 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     tangent : a :class:`~boxchem.solver.tangent.TangentParameters`, single-member batches
         only: also integrate the forward sensitivities S = dy/dp (p = ln factor on k, ln y0)
         on the same steps with the same LU (``solver/tangent.py``); returned as
-        ``BatchResult.sensitivity``
+        ``BatchResult.sensitivity``.  The state feedback is differentiated
+        (``solver/tangent_feedback.py``): state-dependent surfaces (their offsets then
+        re-evaluated every window, as "member_exact") and ``state_map``; what
+        ``on_accept`` observes is not (``settings["tangent_feedback"]`` says which)
 
     Returns
     -------
@@ -537,6 +555,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     ys = np.full((n_members, n_out, nv), np.nan)   # filled by the compiled loop
     ks = np.full((n_out, kinetics.n_reactions), np.nan)
     fxs = np.full((n_out, kinetics.n_fixed), np.nan)
+    y_given = y.copy()
     if state_map is not None:
         y[:] = state_map(t0, y)
     if on_accept is not None:
@@ -555,7 +574,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         mid_state = coefficients.environment.at(mids)       # every window's mid-point at once
         offsets = surfaces.tracker(n_members, mid_state.temperature, mid_state.pressure,
                                    mid_state.psc_area, mid_state.sulfate_area, mid_state.ice_area,
-                                   tolerances=surface_feedback == "member")
+                                   tolerances=surface_feedback == "member" and tangent is None)
         start_air = np.asarray(coefficients.air_density(segment_edges[:-1]), dtype=float)
     ys[:, 0] = y
     outputs_reached = np.ones(n_members, dtype=np.int64)
@@ -572,14 +591,27 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
     counters = np.zeros((n_members, len(COUNTERS)), dtype=np.int64)
     if tangent is not None:
         from . import tangent as tl
-        tan_arrays = (tangent.param_reaction(),) + tl.tangent_slots(kinetics, kin_arrays)
+        from . import tangent_feedback as tfb
+        n_p = tangent.n_params
+        # the surface feedback's response columns Z (solver/tangent_feedback.py) after the parameters'
+        n_z = 0 if surfaces is None else len(surfaces)
+        param_reaction = tangent.param_reaction()
+        slots = tl.tangent_slots(kinetics, kin_arrays)
+        tan_arrays = (param_reaction,) + slots
+        if n_z:
+            offset_gradient = tfb.SurfaceOffsetGradient(surfaces, mid_state, nv)
+        if state_map is not None:
+            edge_air = np.asarray(coefficients.air_density(segment_edges), dtype=float)
         out_rows = np.arange(nv, dtype=np.int64) if tangent.output_species is None else \
             np.asarray(tangent.output_species, dtype=np.int64)
-        sens = np.zeros((nv, tangent.n_params))     # species-major: the kernel's layout
+        sens = np.zeros((nv, n_p))     # species-major: the kernel's layout
         for q, j in enumerate(tangent.initial):
-            sens[j, len(tangent.reactions) + q] = y[0, j]     # d y0_j / d ln y0_j
-        sens_out = np.full((n_out, tangent.n_params, out_rows.size), np.nan)
-        sens_out[0] = sens[out_rows].T
+            sens[j, len(tangent.reactions) + q] = y_given[0, j]     # d y0_j / d ln y0_j
+        if state_map is not None:            # the map at t0: S0 = dM/dy S0
+            sens = tfb.state_map_jacobian(state_map, t0, y_given[0], float(edge_air[0]))[0] @ sens
+        sens_out = np.full((n_out, n_p + n_z, out_rows.size), np.nan)
+        sens_out[0, :n_p] = sens[out_rows].T
+        sens_run = sens                      # what the kernel integrates (with the Z columns)
     info = np.zeros((n_members, 3))
     status = np.zeros(n_members, dtype=np.int64)
     failure = np.full((n_members, 3), np.nan)      # time, step, worst species index
@@ -622,11 +654,23 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
             # each running member's own surface k: ln offsets on the reference columns
             lm_window = lm.copy()
             run = np.nonzero(running_before)[0]
-            x = surfaces.mole_fractions(y[run], start_air[window])
-            if run.size == n_members:
-                lm_window[:, columns] += offsets.offsets(window, run, x)
+            if tangent is not None:
+                if run.size:
+                    # the offsets and their gradient in one evaluation; G = d ln k_c / dp over
+                    # this window, and the response columns Z of the columns it moves, from zero
+                    nominal, gradient = offset_gradient(window, y[0], float(start_air[window]))
+                    lm_window[0, columns] += nominal
+                    active = np.nonzero(gradient.any(axis=1))[0]
+                    feedback_gain = gradient[active] @ sens
+                    sens_run = np.zeros((nv, n_p + active.size))
+                    sens_run[:, :n_p] = sens
+                    tan_arrays = (np.concatenate([param_reaction, columns[active]]),) + slots
             else:
-                lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
+                x = surfaces.mole_fractions(y[run], start_air[window])
+                if run.size == n_members:
+                    lm_window[:, columns] += offsets.offsets(window, run, x)
+                else:
+                    lm_window[run[:, None], columns] += offsets.offsets(window, run, x)
             fm_window = fm.copy()
             fm_window[:, columns] = np.exp(lm_window[:, columns])
         if ozone is not None:      # each running member's own ozone column: ln J offsets
@@ -642,7 +686,7 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                        counters[a:b], info[a:b], params)
         else:
             tl.advance_tangent(landing[start:stop + 1], air_rate[start:stop], out_index[start:stop], ys,
-                               sens_out, out_rows, outputs_reached, y, sens, *tan_arrays, h, restart,
+                               sens_out, out_rows, outputs_reached, y, sens_run, *tan_arrays, h, restart,
                                status, h_max, table.t_a, table.t_b, table.poly, table.log_col,
                                table.sza_poly, table.sgrid, table.lnj, table.phot_cols, table.horizon,
                                lm_window, fm_window, rtol, atol, *m_arrays, *kin_arrays[:8], lu_arrays[0],
@@ -651,7 +695,20 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         if newly_failed.any():
             failure[newly_failed] = info[newly_failed]
             y[newly_failed] = np.nan
-        if state_map is not None:     # first: what the observers and the next window see
+        mapped = False
+        if tangent is not None and status[0] == 0 and (n_z or state_map is not None):
+            if n_z:          # superposition of the feedback: S = S_0 + Z G
+                sens = sens_run[:, :n_p] + sens_run[:, n_p:] @ feedback_gain
+                sens_run = sens
+            if state_map is not None:      # the map and its Jacobian in one evaluation
+                jacobian, y[0] = tfb.state_map_jacobian(state_map, wb, y[0], float(edge_air[window + 1]))
+                sens = sens_run = jacobian @ sens
+                mapped = True
+                if out_index[stop - 1] >= 0:
+                    ys[0, out_index[stop - 1]] = y[0]
+            if out_index[stop - 1] >= 0:
+                sens_out[out_index[stop - 1], :n_p] = sens[out_rows].T
+        if state_map is not None and not mapped:     # first: what the observers and the next window see
             _apply_state_map(state_map, wb, y, status, ys, int(out_index[stop - 1]))
         if on_accept is not None and status[0] == 0:
             on_accept(wb, y[0])      # before the output k and the next window's table
@@ -706,15 +763,18 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
                                  "step_control": ("per member" if policy == "per-member" else
                                                   f"lock-step in groups of at most {group} members"),
                                  "state_surfaces": ("none" if getattr(coefficients, "state_surfaces", None)
-                                                    is None else surface_feedback),
+                                                    is None else "member_exact" if tangent is not None
+                                                    and surface_feedback == "member" else surface_feedback),
                                  "lu": (f"sparse, fixed pattern ({structure.order_name} order, "
                                         f"{structure.nnz} non-zeros, {structure.operations} "
                                         f"multiply-adds), dense pivoting fallback")
                                  if lu == "sparse" else "dense, partial pivoting",
                                  **({"tangent": "forward sensitivities on the same steps (the "
-                                     "augmented Rosenbrock system, S not in the error norm)"}
+                                     "augmented Rosenbrock system, S not in the error norm)",
+                                     "tangent_feedback": _tangent_feedback_text(surfaces, state_map,
+                                                                                on_accept, ozone)}
                                     if tangent is not None else {})},
-                       sensitivity=None if tangent is None else sens_out)
+                       sensitivity=None if tangent is None else sens_out[:, :n_p])
 
 
 def integrate_box(kinetics, coefficients, y0, output_times_s, *, breakpoints_s=(),
