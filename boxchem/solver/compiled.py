@@ -1,13 +1,23 @@
 """Compiled (numba) kernels and the Rosenbrock step loop of the time loop.
 
 One compiled call (``advance_batch``) takes every running member of a batch
-through one k(t) window: per member and landing time, ``_advance_member``
-runs the steps - RHS, analytic Jacobian written into the sparse LU pattern
-(``sparselu``), the LU without pivoting on that fixed pattern (dense partial
-pivoting as the fallback where a pivot is too small), the Rosenbrock stages,
-the error test and step-size control, and k(t) from the window's table
-(``RateCoefficientModel.interval_table``) with the member's multipliers - all
-without returning to Python.  The Python side is ``timeloop.integrate_batch``.
+through one k(t) window: per member, ``_advance_member`` - the one step loop -
+runs the steps through the window's landing times - RHS, analytic Jacobian
+written into the sparse LU pattern (``sparselu``), the LU without pivoting on
+that fixed pattern (dense partial pivoting as the fallback where a pivot is too
+small), the Rosenbrock stages, the error test and step-size control, and k(t)
+from the window's table (``RateCoefficientModel.interval_table``) with the
+member's multipliers - all without returning to Python.  The Python side is
+``timeloop.integrate_batch``.
+
+Each rule of a step is one small compiled function, called by this loop and by
+the lock-step kernel (``lockstep``): the first-step estimate, landing on a stop,
+the error norm, the step after a rejection and after an acceptance, the smallest
+step, the air-density factor, the output copy.  What a kind of run adds to the
+steps comes in through hooks chosen by the type of the loop's ``extra`` argument
+(``_hook``/``_implements``; numba compiles the loop once per kind): nothing for a
+plain run (``()``), the sensitivities S for the tangent-linear run
+(``tangent.advance_tangent``), so both take the same steps with the same code.
 
 The formulas are those of the numpy kernels, written as loops:
 
@@ -54,13 +64,15 @@ def jit_available() -> bool:
     return _numba is not None and os.environ.get("BOXCHEM_JIT", "1").strip() not in ("0", "false", "no")
 
 
-def _njit(fn=None, *, cache=True):
+def _njit(fn=None, *, cache=True, inline="never"):
     if fn is None:
-        return lambda f: _njit(f, cache=cache)
+        return lambda f: _njit(f, cache=cache, inline=inline)
     if _numba is None:
         return fn
-    # error_model="numpy": x / 0 gives inf or nan (caught as non-finite values) instead of raising
-    return _numba.njit(cache=cache, nogil=True, error_model="numpy")(fn)
+    # error_model="numpy": x / 0 gives inf or nan (caught as non-finite values) instead of raising;
+    # inline="always" (small step rules): inlined into the callers' numba IR, so compiled once
+    # with each caller instead of as a function of its own (compile time)
+    return _numba.njit(cache=cache, nogil=True, error_model="numpy", inline=inline)(fn)
 
 
 # ---------------------------------------------------------------------------
@@ -534,7 +546,7 @@ def _solve_w(mode, a, ptr, col, diag, perm, w, piv, b, x):
 # the rules of a step, each written once (the per-member loop below, the tangent's hooks and
 # the lock-step kernel call them; numba compiles them into their callers)
 # ---------------------------------------------------------------------------
-@_njit
+@_njit(inline="always")
 def _first_step(y, f, atol, rtol, first_fraction, fallback):
     """First step-size estimate [s] from y and f = dy/dt at the start (Hairer & Wanner 1996, II.4)."""
     nv = y.shape[0]
@@ -549,7 +561,7 @@ def _first_step(y, f, atol, rtol, first_fraction, fallback):
     return first_fraction * d0 / d1 if (d0 > 1e-5 and d1 > 1e-5) else fallback
 
 
-@_njit
+@_njit(inline="always")
 def _land(t, t_end, h):
     """``(h, clipped)``: the step from t cut to land on t_end (and snapped onto it when it would
     stop within 1e-9 relative of it); ``clipped`` when the proposal was cut."""
@@ -562,7 +574,7 @@ def _land(t, t_end, h):
     return h, clipped
 
 
-@_njit
+@_njit(inline="always")
 def _error_norm(y, ynew, err, atol, rtol, worst):
     """``(norm, nonfinite, worst)`` of the step y -> ynew with error estimate ``err``.
 
@@ -600,7 +612,7 @@ def _error_norm(y, ynew, err, atol, rtol, worst):
     return norm, False, worst
 
 
-@_njit
+@_njit(inline="always")
 def _rejected_step(h, err_norm, err_exp, params):
     """The step to retry after a rejection: the controller's factor of ``rosenbrock``, at most 1
     (``FACTOR_MIN`` when the norm is not finite)."""
@@ -614,13 +626,13 @@ def _rejected_step(h, err_norm, err_exp, params):
     return h * factor
 
 
-@_njit
+@_njit(inline="always")
 def _below_minimum(h, t, params):
     """True when h is below the smallest step allowed at t (``MIN_STEP_ABSOLUTE``, ``_RELATIVE``)."""
     return h < max(params[3], params[4] * abs(t))
 
 
-@_njit
+@_njit(inline="always")
 def _next_step(h, err_norm, err_exp, params, rejected_last, clipped, rejected_here, h_proposed,
                h_max):
     """The proposal after an accepted step h: the controller's factor (at most 1 after a
@@ -639,7 +651,7 @@ def _next_step(h, err_norm, err_exp, params, rejected_last, clipped, rejected_he
     return min(h_next, h_max)
 
 
-@_njit
+@_njit(inline="always")
 def _air_density_factor(r_air, h, gamma, ma, mc, mm, z):
     """exp(r h) / R(r h) for the air-density rate r [s-1] (1 when r = 0): the exact dilution of
     linear invariants over a step (``timeloop``); R is the method's stability function, its
@@ -657,7 +669,7 @@ def _air_density_factor(r_air, h, gamma, ma, mc, mm, z):
     return math.exp(zz) / rsum
 
 
-@_njit
+@_njit(inline="always")
 def _store_output(ys, m, j, y, reached):
     """Member m's state ``y`` as its output j (``reached[m]`` = outputs written)."""
     for q in range(y.shape[0]):
@@ -668,65 +680,76 @@ def _store_output(ys, m, j, y, reached):
 # ---------------------------------------------------------------------------
 # hooks: what a kind of run adds to the steps of the one loop (the tangent's S)
 # ---------------------------------------------------------------------------
-def _hook(name):
-    """A hook of the step loop: ``hook(extra, ...)`` runs the implementation registered
-    (``_implements``) for the kind of ``extra``; numba compiles it into the loop for that kind."""
-    implementations = {}
-
-    def hook(extra, *args):
-        return implementations[type(extra)](extra, *args)
-    hook.__name__ = hook.__qualname__ = name
-    hook.implementations = implementations
-    return hook
+_STAGE_HOOKS, _STEP_HOOKS, _OUTPUT_HOOKS = {}, {}, {}     # class of ``extra`` -> implementation
 
 
-def _implements(hook, extra_class):
-    """Decorator: ``impl(extra, ...)`` is ``hook``'s implementation for an ``extra`` of
-    ``extra_class`` (``tuple``: the plain run's empty ``()``; else a namedtuple class)."""
+def _implements(hooks, extra_class):
+    """Decorator: the function is the hook's implementation (``_STAGE_HOOKS``, ...) for an
+    ``extra`` of ``extra_class`` (``tuple``: the plain run's ``()``; else a namedtuple class).
+    It takes the hook's parameter names."""
     def register(impl):
-        compiled_impl = _njit(impl)
-        hook.implementations[extra_class] = compiled_impl
-        if _numba is not None:
-            from numba import types
-            from numba.extending import overload
-
-            @overload(hook)
-            def typing(extra, *args):
-                if extra_class is tuple:
-                    chosen = isinstance(extra, types.BaseTuple) and len(extra) == 0
-                else:
-                    chosen = getattr(extra, "instance_class", None) is extra_class
-                if chosen:
-                    def call(extra, *args):
-                        return compiled_impl(extra, *args)
-                    return call
-                return None
-        return compiled_impl
+        hooks[extra_class] = impl
+        return impl
     return register
 
 
-#: ``_on_stage(extra, st, yi, ks, fxs)``: at each stage point the method evaluates (not a
-#: reused one), with its k and fixed densities
-_on_stage = _hook("_on_stage")
-#: ``_on_step(extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv)``: on
-#: each accepted step before y becomes ``ynew`` (y and k at the step's start, ynew already
-#: multiplied by the air-density factor ``corr``; the stages and the factors of W of the step)
-_on_step = _hook("_on_step")
-#: ``_on_output(extra, j)``: after the member's state is written as output j
-_on_output = _hook("_on_output")
+def _on_stage(extra, st, yi, ks, fxs):
+    """At each stage point the method evaluates (not a reused one), with its k and fixed."""
+    return _STAGE_HOOKS[type(extra)](extra, st, yi, ks, fxs)
 
 
-@_implements(_on_stage, tuple)
+def _on_step(extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv):
+    """On each accepted step before y becomes ``ynew`` (y and k at the step's start, ynew
+    multiplied by the air-density factor ``corr``; the stages and W's factors of the step)."""
+    return _STEP_HOOKS[type(extra)](extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode,
+                                    a, w, piv)
+
+
+def _on_output(extra, j):
+    """After the member's state is written as output j."""
+    return _OUTPUT_HOOKS[type(extra)](extra, j)
+
+
+def _hook_for(hooks, extra_type):
+    """The implementation for the numba type of ``extra`` (None: not this hook's kind)."""
+    for extra_class, impl in hooks.items():
+        if extra_class is tuple:
+            if isinstance(extra_type, _numba.types.Tuple) and len(extra_type) == 0:
+                return impl
+        elif getattr(extra_type, "instance_class", None) is extra_class:
+            return impl
+    return None
+
+
+if _numba is not None:
+    # compiled: the implementation is chosen by the type of ``extra`` and inlined into the loop
+    # (a function passed as an argument instead would make the callers uncacheable)
+    from numba.extending import overload
+
+    @overload(_on_stage, inline="always")
+    def _on_stage_compiled(extra, st, yi, ks, fxs):
+        return _hook_for(_STAGE_HOOKS, extra)
+
+    @overload(_on_step, inline="always")
+    def _on_step_compiled(extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv):
+        return _hook_for(_STEP_HOOKS, extra)
+
+    @overload(_on_output, inline="always")
+    def _on_output_compiled(extra, j):
+        return _hook_for(_OUTPUT_HOOKS, extra)
+
+
+@_implements(_STAGE_HOOKS, tuple)
 def _plain_stage(extra, st, yi, ks, fxs):
     pass
 
 
-@_implements(_on_step, tuple)
+@_implements(_STEP_HOOKS, tuple)
 def _plain_step(extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv):
     pass
 
 
-@_implements(_on_output, tuple)
+@_implements(_OUTPUT_HOOKS, tuple)
 def _plain_output(extra, j):
     pass
 
@@ -734,7 +757,8 @@ def _plain_output(extra, j):
 # ---------------------------------------------------------------------------
 # the one step loop
 # ---------------------------------------------------------------------------
-@_njit(cache=False)   # compiled into each (cached) caller with its kind of hooks
+@_njit(cache=False)   # compiled into each (cached) caller with its kind of hooks (too many
+#                       arguments for numba to inline it)
 def _advance_member(m, landings, air_rates, out_index, ys, reached, y, h, restart, status, h_max, t_a,
                     t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult, fmult, rtol,
                     atol, gamma, ma, mc, mm, me, malpha, mgsum, mreuse, err_exp, mass, sat, sat_half,
@@ -913,10 +937,12 @@ def _advance_member(m, landings, air_rates, out_index, ys, reached, y, h, restar
             rejected_last = False
             t = t_new
             if last_alpha == 1.0:       # k(t_new) and its slope from the last stage
-                k0[:] = ks
-                dk0[:] = dks
-                fx0[:] = fxs
-                dfx0[:] = dfxs
+                for r in range(nr):
+                    k0[r] = ks[r]
+                    dk0[r] = dks[r]
+                for q in range(n_fixed):
+                    fx0[q] = fxs[q]
+                    dfx0[q] = dfxs[q]
             else:
                 _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon,
                                  lm, fm, k0, fx0, dk0, dfx0, True)

@@ -6,7 +6,10 @@ running members of the call through the window *together*: one step size for
 all of them, accepted when the largest of the members' own weighted RMS error
 norms (``rosenbrock``'s norm, with the negative-value term of the per-member
 kernel) is <= 1, and the controller of ``rosenbrock`` driven by that largest
-norm.  Every work array is laid out (n_species, M), (n_reactions, M) or
+norm.  The rules of a step that do not depend on the layout (first-step
+estimate, landing on stops, each member's error norm, the controller, the
+smallest step, the air-density factor, the output copy) are the per-member
+loop's own compiled helpers (``compiled``).  Every work array is laid out (n_species, M), (n_reactions, M) or
 (n_nonzeros, M) with the member index innermost and contiguous, so the inner
 loops of the RHS, the Jacobian scatter and the fixed-pattern sparse LU
 (``sparselu``: the same elimination lists, run for all members at once) are

@@ -49,9 +49,12 @@ Rules shared with the state:
   observed, and the feedback of the composition on those k is not
   differentiated.
 
-The step loop is that of ``compiled._advance_member`` (same order of
-operations, so y is bitwise the same as a plain run's); it is repeated here
-rather than parametrised there to keep the base kernel lean.
+The steps are those of the one step loop, ``compiled._advance_member``, run
+with this module's hooks (``_TangentWork`` chooses them): ``_keep_stage`` keeps
+the state's stage points, ``_sensitivity_step`` advances S on each accepted step,
+``_sensitivity_output`` writes S at the output times.  y is therefore bitwise a
+plain run's (tests/test_tangent.py), and a change to the base step reaches the
+tangent by construction.
 """
 from __future__ import annotations
 
@@ -60,8 +63,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .compiled import (_advance_member, _implements, _kinetics, _njit, _on_output, _on_stage, _on_step,
-                       _solve_w)
+from .compiled import (_OUTPUT_HOOKS, _STAGE_HOOKS, _STEP_HOOKS, _advance_member, _implements, _kinetics,
+                       _njit, _solve_w)
 
 __all__ = ["TangentParameters", "tangent_slots", "advance_tangent", "rate_tangents"]
 
@@ -387,18 +390,23 @@ _TangentWork = namedtuple("_TangentWork", [
     "fxstage", "ks_s", "sens_stage", "g", "rhs", "xs", "xw", "snew"])
 
 
-@_implements(_on_stage, _TangentWork)
-def _keep_stage(x, st, yi, ks, fxs):
+@_implements(_STAGE_HOOKS, _TangentWork)
+def _keep_stage(extra, st, yi, ks, fxs):
     """``_on_stage``: keep the state's stage point and its k, fixed (S's stages are taken there)."""
-    x.ystage[st, :] = yi
-    x.kstage[st, :] = ks
-    x.fxstage[st, :] = fxs
+    ystage, kstage, fxstage = extra.ystage, extra.kstage, extra.fxstage
+    for i in range(yi.shape[0]):
+        ystage[st, i] = yi[i]
+    for r in range(ks.shape[0]):
+        kstage[st, r] = ks[r]
+    for q in range(fxs.shape[0]):
+        fxstage[st, q] = fxs[q]
 
 
-@_implements(_on_step, _TangentWork)
-def _sensitivity_step(x, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv):
+@_implements(_STEP_HOOKS, _TangentWork)
+def _sensitivity_step(extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv):
     """``_on_step``: S over the accepted step (same factorisation), times the air-density factor
     ``corr``; the rows of the components clipped to zero are zeroed (d max(y, 0)/dy)."""
+    x = extra
     _tangent_step(y, x.sens, x.ystage, x.kstage, x.fxstage, stages, k0, fx0, dk0, dfx0, h, r_air,
                   x.ma, x.mc, x.mm, x.mgsum, x.mreuse, mode, a, x.ptr, x.col, x.diag, x.perm, w, piv,
                   x.param_reaction, x.tan_ptr, x.tan_species, x.tan_dpos, x.mass, x.sat, x.sat_half,
@@ -411,12 +419,12 @@ def _sensitivity_step(x, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mo
             sens[i, q] = 0.0 if clipped else snew[i, q] * corr
 
 
-@_implements(_on_output, _TangentWork)
-def _sensitivity_output(x, j):
+@_implements(_OUTPUT_HOOKS, _TangentWork)
+def _sensitivity_output(extra, j):
     """``_on_output``: ``sens_out[j] = sens[out_rows].T``."""
-    for p in range(x.sens.shape[1]):
-        for q in range(x.out_rows.shape[0]):
-            x.sens_out[j, p, q] = x.sens[x.out_rows[q], p]
+    for p in range(extra.sens.shape[1]):
+        for q in range(extra.out_rows.shape[0]):
+            extra.sens_out[j, p, q] = extra.sens[extra.out_rows[q], p]
 
 
 @_njit
