@@ -141,11 +141,12 @@ def test_unknown_parameter_is_a_clear_error():
 def test_tangent_run_takes_the_plain_runs_steps_bit_for_bit():
     # the tangent rides on the one step loop (compiled._advance_member): y, the step sequence
     # and every work counter are those of the plain run, to the bit (solver contract; common
-    # practice, no source).  Two days of polar-spring: sunrise/sunset breakpoints, air-density
-    # term, clipping and rejections all occur
+    # practice, no source).  Two sunlit days of polar-spring before 1 October: sunrise/sunset
+    # breakpoints, surfaces, clipping and rejected steps all occur
     from boxchem.runner import prepare
     from boxchem.scenario import load_scenario
-    setup = prepare(load_scenario("polar-spring").with_overrides(**{"run.duration": "2 d"}))
+    setup = prepare(load_scenario("polar-spring").with_overrides(
+        **{"run.start": "2026-09-29T00:00:00Z", "run.duration": "2 d"}))
     kin, coef, sc = setup.kinetics, setup.coefficients, setup.scenario
     kw = dict(breakpoints_s=setup.breakpoints_s, rtol=sc.rtol, atol=sc.atol)
     tp = TangentParameters(reactions=tuple(range(0, kin.n_reactions, 20)), initial=(0,))
