@@ -14,10 +14,11 @@ Each rule of a step is one small compiled function, called by this loop and by
 the lock-step kernel (``lockstep``): the first-step estimate, landing on a stop,
 the error norm, the step after a rejection and after an acceptance, the smallest
 step, the air-density factor, the output copy.  What a kind of run adds to the
-steps comes in through hooks chosen by the type of the loop's ``extra`` argument
-(``_hook``/``_implements``; numba compiles the loop once per kind): nothing for a
-plain run (``()``), the sensitivities S for the tangent-linear run
-(``tangent.advance_tangent``), so both take the same steps with the same code.
+steps comes in through hooks (``_on_stage``, ``_on_step``, ``_on_output``) chosen by
+the type of the loop's ``extra`` argument (``_implements``; numba compiles the loop
+once per kind): nothing for a plain run (``()``), the sensitivities S for the
+tangent-linear run (``tangent.advance_tangent``), so both take the same steps with
+the same code.
 
 The formulas are those of the numpy kernels, written as loops:
 
