@@ -138,6 +138,29 @@ def test_unknown_parameter_is_a_clear_error():
 # ---------------------------------------------------------------------------
 # a real scenario: the tangent-linear run against its check, batched central differences
 # ---------------------------------------------------------------------------
+def test_tangent_run_takes_the_plain_runs_steps_bit_for_bit():
+    # the tangent rides on the one step loop (compiled._advance_member): y, the step sequence
+    # and every work counter are those of the plain run, to the bit (solver contract; common
+    # practice, no source).  Two sunlit days of polar-spring before 1 October: sunrise/sunset
+    # breakpoints, surfaces, clipping and rejected steps all occur
+    from boxchem.runner import prepare
+    from boxchem.scenario import load_scenario
+    setup = prepare(load_scenario("polar-spring").with_overrides(
+        **{"run.start": "2026-09-29T00:00:00Z", "run.duration": "2 d"}))
+    kin, coef, sc = setup.kinetics, setup.coefficients, setup.scenario
+    kw = dict(breakpoints_s=setup.breakpoints_s, rtol=sc.rtol, atol=sc.atol)
+    tp = TangentParameters(reactions=tuple(range(0, kin.n_reactions, 20)), initial=(0,))
+    plain = integrate_batch(kin, coef, setup.y0[None], setup.output_times_s, **kw)
+    tangent = integrate_batch(kin, coef, setup.y0[None], setup.output_times_s, tangent=tp, **kw)
+    assert plain.status[0] == 0 and tangent.status[0] == 0
+    assert plain.rejected_steps[0] > 0
+    np.testing.assert_array_equal(tangent.y, plain.y)
+    for counter in ("steps", "rejected_steps", "rhs_evaluations", "jacobian_evaluations",
+                    "lu_decompositions", "lu_fallbacks"):
+        np.testing.assert_array_equal(getattr(tangent, counter), getattr(plain, counter))
+    assert np.isfinite(tangent.sensitivity).all() and np.abs(tangent.sensitivity).max() > 0.0
+
+
 def test_tangent_agrees_with_central_differences_on_sunlit_polar_spring():
     # the last sunlit day before 1 October of polar-spring (PSCs, spectral J, surfaces that follow
     # the composition); the ten largest coefficients of three kinds of metric, the

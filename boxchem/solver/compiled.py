@@ -1,13 +1,24 @@
 """Compiled (numba) kernels and the Rosenbrock step loop of the time loop.
 
 One compiled call (``advance_batch``) takes every running member of a batch
-through one k(t) window: per member and landing time, ``_advance_member``
-runs the steps - RHS, analytic Jacobian written into the sparse LU pattern
-(``sparselu``), the LU without pivoting on that fixed pattern (dense partial
-pivoting as the fallback where a pivot is too small), the Rosenbrock stages,
-the error test and step-size control, and k(t) from the window's table
-(``RateCoefficientModel.interval_table``) with the member's multipliers - all
-without returning to Python.  The Python side is ``timeloop.integrate_batch``.
+through one k(t) window: per member, ``_advance_member`` - the one step loop -
+runs the steps through the window's landing times - RHS, analytic Jacobian
+written into the sparse LU pattern (``sparselu``), the LU without pivoting on
+that fixed pattern (dense partial pivoting as the fallback where a pivot is too
+small), the Rosenbrock stages, the error test and step-size control, and k(t)
+from the window's table (``RateCoefficientModel.interval_table``) with the
+member's multipliers - all without returning to Python.  The Python side is
+``timeloop.integrate_batch``.
+
+Each rule of a step is one small compiled function, called by this loop and by
+the lock-step kernel (``lockstep``): the first-step estimate, landing on a stop,
+the error norm, the step after a rejection and after an acceptance, the smallest
+step, the air-density factor, the output copy.  What a kind of run adds to the
+steps comes in through hooks (``_on_stage``, ``_on_step``, ``_on_output``) chosen by
+the type of the loop's ``extra`` argument (``_implements``; numba compiles the loop
+once per kind): nothing for a plain run (``()``), the sensitivities S for the
+tangent-linear run (``tangent.advance_tangent``), so both take the same steps with
+the same code.
 
 The formulas are those of the numpy kernels, written as loops:
 
@@ -54,11 +65,15 @@ def jit_available() -> bool:
     return _numba is not None and os.environ.get("BOXCHEM_JIT", "1").strip() not in ("0", "false", "no")
 
 
-def _njit(fn):
+def _njit(fn=None, *, cache=True, inline="never"):
+    if fn is None:
+        return lambda f: _njit(f, cache=cache, inline=inline)
     if _numba is None:
         return fn
-    # error_model="numpy": x / 0 gives inf or nan (caught as non-finite values) instead of raising
-    return _numba.njit(cache=True, nogil=True, error_model="numpy")(fn)
+    # error_model="numpy": x / 0 gives inf or nan (caught as non-finite values) instead of raising;
+    # inline="always" (small step rules): inlined into the callers' numba IR, so compiled once
+    # with each caller instead of as a function of its own (compile time)
+    return _numba.njit(cache=cache, nogil=True, error_model="numpy", inline=inline)(fn)
 
 
 # ---------------------------------------------------------------------------
@@ -528,26 +543,249 @@ def _solve_w(mode, a, ptr, col, diag, perm, w, piv, b, x):
         _dense_solve(w, piv, perm, b, x)
 
 
-@_njit
-def _advance_member(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj,
-                    phot_cols, horizon, lmult, fmult, r_air, rtol, atol, gamma, ma, mc, mm, me, malpha,
-                    mgsum, mreuse, err_exp, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_cols,
-                    jac_vals, jac_pos, perm, ptr, col, diag, l_pos, l_pivot, op_ptr, op_src, op_dst,
-                    n_fixed, counters, info, params):
-    """Advance one member's ``y`` (in place) from ``t`` to ``t_end`` with Rosenbrock steps.
-
-    ``params`` = (SAFETY, FACTOR_MIN, FACTOR_MAX, MIN_STEP_ABSOLUTE,
-    MIN_STEP_RELATIVE, FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP,
-    FIXED_DIFFERENCE, PIVOT_TOLERANCE).  ``counters`` (int64): steps, rejected,
-    RHS, Jacobian, LU evaluations, dense-LU fallbacks (added to).  On return
-    ``info`` = (t reached, step proposal for the next interval, index of the
-    worst species).  Status: 0 reached ``t_end``; 1 step size below the minimum
-    (error test); 2 step size below the minimum (non-finite values).
-    """
-    safety, fmin, fmax, hmin_abs, hmin_rel, first_frac, fallback, fixed_diff, piv_tol = (
-        params[0], params[1], params[2], params[3], params[4], params[5], params[6], params[7],
-        params[8])
+# ---------------------------------------------------------------------------
+# the rules of a step, each written once (the per-member loop below, the tangent's hooks and
+# the lock-step kernel call them; numba compiles them into their callers)
+# ---------------------------------------------------------------------------
+@_njit(inline="always")
+def _first_step(y, f, atol, rtol, first_fraction, fallback):
+    """First step-size estimate [s] from y and f = dy/dt at the start (Hairer & Wanner 1996, II.4)."""
     nv = y.shape[0]
+    d0 = 0.0
+    d1 = 0.0
+    for i in range(nv):
+        sc = atol[i] + rtol * abs(y[i])
+        d0 += (y[i] / sc) ** 2
+        d1 += (f[i] / sc) ** 2
+    d0 = math.sqrt(d0 / nv) if nv else 0.0
+    d1 = math.sqrt(d1 / nv) if nv else 0.0
+    return first_fraction * d0 / d1 if (d0 > 1e-5 and d1 > 1e-5) else fallback
+
+
+@_njit(inline="always")
+def _land(t, t_end, h):
+    """``(h, clipped)``: the step from t cut to land on t_end (and snapped onto it when it would
+    stop within 1e-9 relative of it); ``clipped`` when the proposal was cut."""
+    h_proposed = h
+    if h > t_end - t:
+        h = t_end - t
+    clipped = h < h_proposed
+    if t_end - (t + h) < 1e-9 * max(abs(t_end), 1.0):
+        h = t_end - t
+    return h, clipped
+
+
+@_njit(inline="always")
+def _error_norm(y, ynew, err, atol, rtol, worst):
+    """``(norm, nonfinite, worst)`` of the step y -> ynew with error estimate ``err``.
+
+    The weighted RMS norm of ``rosenbrock`` (scale atol + rtol max(|y|, |ynew|)), raised to
+    the largest scaled negative value of ynew when that exceeds 1 (a larger negative rejects
+    the step; a smaller one is clipped after it).  Not finite: norm inf, ``nonfinite`` True,
+    ``worst`` the first non-finite species of ynew (or the worst so far when only the norm is
+    not finite).  Else ``worst`` is the species with the largest scaled error or negative.
+    """
+    nv = y.shape[0]
+    for i in range(nv):
+        if not math.isfinite(ynew[i]):
+            return math.inf, True, i
+    acc = 0.0
+    worst_ratio = -1.0
+    neg = 0.0
+    neg_i = -1
+    for i in range(nv):
+        sc = atol[i] + rtol * max(abs(y[i]), abs(ynew[i]))
+        ratio = abs(err[i]) / sc
+        acc += ratio * ratio
+        if ratio > worst_ratio:
+            worst_ratio = ratio
+            worst = i
+        if ynew[i] < 0.0 and -ynew[i] / sc > neg:
+            neg = -ynew[i] / sc
+            neg_i = i
+    norm = math.sqrt(acc / nv) if nv else 0.0
+    if not math.isfinite(norm):
+        return math.inf, True, worst
+    if neg > 1.0:
+        worst = neg_i
+        if neg > norm:
+            norm = neg
+    return norm, False, worst
+
+
+@_njit(inline="always")
+def _rejected_step(h, err_norm, err_exp, params):
+    """The step to retry after a rejection: the controller's factor of ``rosenbrock``, at most 1
+    (``FACTOR_MIN`` when the norm is not finite)."""
+    safety, fmin, fmax = params[0], params[1], params[2]
+    if math.isfinite(err_norm) and err_norm > 0.0:
+        factor = safety * err_norm ** (-err_exp)
+    else:
+        factor = fmin
+    factor = min(fmax, max(fmin, factor))
+    factor = min(factor, 1.0)
+    return h * factor
+
+
+@_njit(inline="always")
+def _below_minimum(h, t, params):
+    """True when h is below the smallest step allowed at t (``MIN_STEP_ABSOLUTE``, ``_RELATIVE``)."""
+    return h < max(params[3], params[4] * abs(t))
+
+
+@_njit(inline="always")
+def _next_step(h, err_norm, err_exp, params, rejected_last, clipped, rejected_here, h_proposed,
+               h_max):
+    """The proposal after an accepted step h: the controller's factor (at most 1 after a
+    rejection), kept at least at the proposal a landing cut, at most ``h_max``."""
+    safety, fmin, fmax = params[0], params[1], params[2]
+    if err_norm == 0.0:
+        factor = fmax
+    else:
+        factor = safety * err_norm ** (-err_exp)
+    factor = min(fmax, max(fmin, factor))
+    if rejected_last:
+        factor = min(factor, 1.0)
+    h_next = h * factor
+    if clipped and not rejected_here:
+        h_next = max(h_next, h_proposed)
+    return min(h_next, h_max)
+
+
+@_njit(inline="always")
+def _air_density_factor(r_air, h, gamma, ma, mc, mm, z):
+    """exp(r h) / R(r h) for the air-density rate r [s-1] (1 when r = 0): the exact dilution of
+    linear invariants over a step (``timeloop``); R is the method's stability function, its
+    stages computed in the work array ``z`` (ns,)."""
+    if r_air == 0.0:
+        return 1.0
+    zz = r_air * h
+    rsum = 1.0
+    for st in range(ma.shape[0]):
+        v = zz
+        for q in range(st):
+            v += zz * ma[st, q] * z[q] + mc[st, q] * z[q]
+        z[st] = v / (1.0 / gamma - zz)
+        rsum += mm[st] * z[st]
+    return math.exp(zz) / rsum
+
+
+@_njit(inline="always")
+def _store_output(ys, m, j, y, reached):
+    """Member m's state ``y`` as its output j (``reached[m]`` = outputs written)."""
+    for q in range(y.shape[0]):
+        ys[m, j, q] = y[q]
+    reached[m] = j + 1
+
+
+# ---------------------------------------------------------------------------
+# hooks: what a kind of run adds to the steps of the one loop (the tangent's S)
+# ---------------------------------------------------------------------------
+_STAGE_HOOKS, _STEP_HOOKS, _OUTPUT_HOOKS = {}, {}, {}     # class of ``extra`` -> implementation
+
+
+def _implements(hooks, extra_class):
+    """Decorator: the function is the hook's implementation (``_STAGE_HOOKS``, ...) for an
+    ``extra`` of ``extra_class`` (``tuple``: the plain run's ``()``; else a namedtuple class).
+    It takes the hook's parameter names."""
+    def register(impl):
+        hooks[extra_class] = impl
+        return impl
+    return register
+
+
+def _on_stage(extra, st, yi, ks, fxs):
+    """At each stage point the method evaluates (not a reused one), with its k and fixed."""
+    return _STAGE_HOOKS[type(extra)](extra, st, yi, ks, fxs)
+
+
+def _on_step(extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv):
+    """On each accepted step before y becomes ``ynew`` (y and k at the step's start, ynew
+    multiplied by the air-density factor ``corr``; the stages and W's factors of the step)."""
+    return _STEP_HOOKS[type(extra)](extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode,
+                                    a, w, piv)
+
+
+def _on_output(extra, j):
+    """After the member's state is written as output j."""
+    return _OUTPUT_HOOKS[type(extra)](extra, j)
+
+
+def _hook_for(hooks, extra_type):
+    """The implementation for the numba type of ``extra`` (None: not this hook's kind)."""
+    for extra_class, impl in hooks.items():
+        if extra_class is tuple:
+            if isinstance(extra_type, _numba.types.Tuple) and len(extra_type) == 0:
+                return impl
+        elif getattr(extra_type, "instance_class", None) is extra_class:
+            return impl
+    return None
+
+
+if _numba is not None:
+    # compiled: the implementation is chosen by the type of ``extra`` and inlined into the loop
+    # (a function passed as an argument instead would make the callers uncacheable)
+    from numba.extending import overload
+
+    @overload(_on_stage, inline="always")
+    def _on_stage_compiled(extra, st, yi, ks, fxs):
+        return _hook_for(_STAGE_HOOKS, extra)
+
+    @overload(_on_step, inline="always")
+    def _on_step_compiled(extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv):
+        return _hook_for(_STEP_HOOKS, extra)
+
+    @overload(_on_output, inline="always")
+    def _on_output_compiled(extra, j):
+        return _hook_for(_OUTPUT_HOOKS, extra)
+
+
+@_implements(_STAGE_HOOKS, tuple)
+def _plain_stage(extra, st, yi, ks, fxs):
+    pass
+
+
+@_implements(_STEP_HOOKS, tuple)
+def _plain_step(extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv):
+    pass
+
+
+@_implements(_OUTPUT_HOOKS, tuple)
+def _plain_output(extra, j):
+    pass
+
+
+# ---------------------------------------------------------------------------
+# the one step loop
+# ---------------------------------------------------------------------------
+@_njit(cache=False)   # compiled into each (cached) caller with its kind of hooks (too many
+#                       arguments for numba to inline it)
+def _advance_member(m, landings, air_rates, out_index, ys, reached, y, h, restart, status, h_max, t_a,
+                    t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult, fmult, rtol,
+                    atol, gamma, ma, mc, mm, me, malpha, mgsum, mreuse, err_exp, mass, sat, sat_half,
+                    st_ptr, st_idx, st_val, jac_cols, jac_vals, jac_pos, perm, ptr, col, diag, l_pos,
+                    l_pivot, op_ptr, op_src, op_dst, n_fixed, counters, info, params, extra):
+    """Advance member m (``y[m]`` in place) through the window's landing times with Rosenbrock steps.
+
+    Arguments as ``advance_batch``.  ``params`` = (SAFETY, FACTOR_MIN, FACTOR_MAX,
+    MIN_STEP_ABSOLUTE, MIN_STEP_RELATIVE, FIRST_STEP_FRACTION, FALLBACK_FIRST_STEP,
+    FIXED_DIFFERENCE, PIVOT_TOLERANCE).  ``counters[m]`` (int64): steps, rejected,
+    RHS, Jacobian, LU evaluations, dense-LU fallbacks (added to).  After each
+    landing interval ``info[m]`` = (t reached, step proposal, index of the worst
+    species) and ``h[m]`` the proposal.  ``status[m]``: stays 0 when the window's
+    end is reached; 1 step size below the minimum (error test); 2 step size below
+    the minimum (non-finite values).
+
+    ``extra`` chooses the hooks ``_on_stage``, ``_on_step``, ``_on_output`` (what a kind
+    of run adds to the steps): ``()`` for a plain run (nothing), the tangent's work
+    (``tangent``: S on the same steps).
+    """
+    first_frac, fallback, piv_tol = params[5], params[6], params[8]
+    ym = y[m]
+    lm = lmult[m]
+    fm = fmult[m]
+    cnt = counters[m]
+    nv = ym.shape[0]
     nr = poly.shape[1] - n_fixed
     ns = ma.shape[0]
     nnz = col.shape[0]
@@ -579,200 +817,147 @@ def _advance_member(t, t_end, y, h, h_max, restart, t_a, t_b, poly, log_col, sza
     piv = np.empty(nv, dtype=np.int64)
     lu_cols = np.empty(nv, dtype=np.int64)
     stages = np.empty((ns, nv))
+    zs = np.empty(ns)
     dummy = np.empty(1)
 
-    _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult,
-                     fmult, k0, fx0, dk0, dfx0, True)
-    _kinetics(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos, jac_cols, jac_vals,
-              c, rate, d, f0c, dummy, True, False)
-    counters[2] += 1
-    if restart:   # first step estimate (Hairer & Wanner 1996, II.4)
-        d0 = 0.0
-        d1 = 0.0
-        for i in range(nv):
-            sc = atol[i] + rtol * abs(y[i])
-            d0 += (y[i] / sc) ** 2
-            d1 += (f0c[i] / sc) ** 2
-        d0 = math.sqrt(d0 / nv) if nv else 0.0
-        d1 = math.sqrt(d1 / nv) if nv else 0.0
-        est = first_frac * d0 / d1 if (d0 > 1e-5 and d1 > 1e-5) else fallback
-        if est < h:
-            h = est
-    if h > h_max:
-        h = h_max
-    worst = -1
-    rejected_last = False
-    while t < t_end:
-        h_proposed = h
-        if h > t_end - t:
-            h = t_end - t
-        clipped = h < h_proposed
-        if t_end - (t + h) < 1e-9 * max(abs(t_end), 1.0):
-            h = t_end - t
-        # Jacobian (in the sparse LU pattern) and d f/d t in one pass; f at the start with the
-        # air-density term
-        _kinetics_dt(y, k0, fx0, dk0, dfx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
-                     jac_cols, jac_vals, c, rate, d, tmp, jv, dfdt, False, True, True)
-        counters[3] += 1
-        for i in range(nv):
-            f0[i] = f0c[i] + r_air * y[i]
-        rejected_here = False
-        while True:
-            t_new = t_end if h == t_end - t else t + h
-            # W = I/(h gamma) - (J + r_air I)
-            mode = _factor_w(jv, 1.0 / (h * gamma) - r_air, ptr, col, diag, l_pos, l_pivot, op_ptr,
-                             op_src, op_dst, a, rowmax, w, piv, lu_cols, piv_tol)
-            counters[4] += 1
-            if mode == 2 and piv_tol >= 0.0:
-                counters[5] += 1
-            err_norm = math.inf
-            nonfinite = True
-            last_alpha = -1.0
-            if mode != 0:
-                for st in range(ns):
-                    if st == 0:
-                        for i in range(nv):
-                            fi[i] = f0[i]
-                    elif mreuse[st]:
-                        for i in range(nv):
-                            fi[i] = fprev[i]
-                    else:
-                        for i in range(nv):
-                            v = y[i]
-                            for q in range(st):
-                                if ma[st, q] != 0.0:
-                                    v += ma[st, q] * stages[q, i]
-                            yi[i] = v
-                        if malpha[st] != last_alpha:
-                            # at the step's end (alpha = 1) with slopes: the next step starts there
-                            t_stage = t_new if malpha[st] == 1.0 else t + malpha[st] * h
-                            _coefficients_at(t_stage, t_a, t_b, poly, log_col, sza_poly,
-                                             sgrid, lnj, phot_cols, horizon, lmult, fmult, ks, fxs,
-                                             dks, dfxs, malpha[st] == 1.0)
-                            last_alpha = malpha[st]
-                        _kinetics(yi, ks, fxs, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
-                                  jac_cols, jac_vals, c, rate, d, fi, dummy, True, False)
-                        counters[2] += 1
-                        for i in range(nv):
-                            fi[i] += r_air * yi[i]
-                    for i in range(nv):
-                        fprev[i] = fi[i]
-                        v = fi[i] + h * mgsum[st] * dfdt[i]
-                        for q in range(st):
-                            if mc[st, q] != 0.0:
-                                v += (mc[st, q] / h) * stages[q, i]
-                        tmp[i] = v
-                    _solve_w(mode, a, ptr, col, diag, perm, w, piv, tmp, xw)
-                    for i in range(nv):
-                        stages[st, i] = tmp[i]
-                finite = True
-                for i in range(nv):
-                    v = y[i]
-                    e = 0.0
-                    for st in range(ns):
-                        if mm[st] != 0.0:
-                            v += mm[st] * stages[st, i]
-                        if me[st] != 0.0:
-                            e += me[st] * stages[st, i]
-                    ynew[i] = v
-                    err[i] = e
-                    if not math.isfinite(v):
-                        finite = False
-                if finite:
-                    nonfinite = False
-                    acc = 0.0
-                    worst_ratio = -1.0
-                    neg = 0.0
-                    neg_i = -1
-                    for i in range(nv):
-                        sc = atol[i] + rtol * max(abs(y[i]), abs(ynew[i]))
-                        ratio = abs(err[i]) / sc
-                        acc += ratio * ratio
-                        if ratio > worst_ratio:
-                            worst_ratio = ratio
-                            worst = i
-                        if ynew[i] < 0.0 and -ynew[i] / sc > neg:
-                            neg = -ynew[i] / sc
-                            neg_i = i
-                    err_norm = math.sqrt(acc / nv) if nv else 0.0
-                    if not math.isfinite(err_norm):
-                        nonfinite = True
-                        err_norm = math.inf
-                    elif neg > 1.0 and neg > err_norm:
-                        err_norm = neg
-                        worst = neg_i
-                    elif neg > 1.0:
-                        worst = neg_i
-                else:
-                    for i in range(nv):
-                        if not math.isfinite(ynew[i]):
-                            worst = i
-                            break
-            if err_norm <= 1.0:
-                break
-            counters[1] += 1
-            if math.isfinite(err_norm) and err_norm > 0.0:
-                factor = safety * err_norm ** (-err_exp)
-            else:
-                factor = fmin
-            factor = min(fmax, max(fmin, factor))
-            factor = min(factor, 1.0)
-            h = h * factor
-            rejected_last = True
-            rejected_here = True
-            clipped = False
-            if h < max(hmin_abs, hmin_rel * abs(t)):
-                info[0] = t
-                info[1] = h
-                info[2] = worst
-                return 2 if nonfinite else 1
-        # accepted
-        counters[0] += 1
-        if r_air != 0.0:
-            # exp(r h) / R(r h): exact air-density factor for linear invariants (timeloop)
-            zz = r_air * h
-            rsum = 1.0
-            for st in range(ns):
-                v = zz
-                for q in range(st):
-                    v += zz * ma[st, q] * stages[q, 0] + mc[st, q] * stages[q, 0]
-                stages[st, 0] = v / (1.0 / gamma - zz)
-                rsum += mm[st] * stages[st, 0]
-            corr = math.exp(zz) / rsum
-            for i in range(nv):
-                ynew[i] *= corr
-        for i in range(nv):
-            y[i] = ynew[i] if ynew[i] > 0.0 else 0.0
-        if err_norm == 0.0:
-            factor = fmax
-        else:
-            factor = safety * err_norm ** (-err_exp)
-        factor = min(fmax, max(fmin, factor))
-        if rejected_last:
-            factor = min(factor, 1.0)
+    for interval in range(air_rates.shape[0]):
+        t = landings[interval]
+        t_end = landings[interval + 1]
+        r_air = air_rates[interval]
+        hh = h[m]
+        _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lm, fm,
+                         k0, fx0, dk0, dfx0, True)
+        _kinetics(ym, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos, jac_cols, jac_vals,
+                  c, rate, d, f0c, dummy, True, False)
+        cnt[2] += 1
+        if restart[m] != 0:
+            est = _first_step(ym, f0c, atol, rtol, first_frac, fallback)
+            if est < hh:
+                hh = est
+            restart[m] = 0
+        if hh > h_max:
+            hh = h_max
+        worst = -1
         rejected_last = False
-        h_next = h * factor
-        if clipped and not rejected_here:
-            h_next = max(h_next, h_proposed)
-        h = min(h_next, h_max)
-        t = t_new
-        if last_alpha == 1.0:       # k(t_new) and its slope from the last stage
-            for r in range(nr):
-                k0[r] = ks[r]
-                dk0[r] = dks[r]
-            for q in range(n_fixed):
-                fx0[q] = fxs[q]
-                dfx0[q] = dfxs[q]
-        else:
-            _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon,
-                             lmult, fmult, k0, fx0, dk0, dfx0, True)
-        _kinetics(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos, jac_cols,
-                  jac_vals, c, rate, d, f0c, dummy, True, False)
-        counters[2] += 1
-    info[0] = t
-    info[1] = h
-    info[2] = worst
-    return 0
+        while t < t_end:
+            h_proposed = hh
+            hh, clipped = _land(t, t_end, hh)
+            # Jacobian (in the sparse LU pattern) and d f/d t in one pass; f at the start with
+            # the air-density term
+            _kinetics_dt(ym, k0, fx0, dk0, dfx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
+                         jac_cols, jac_vals, c, rate, d, tmp, jv, dfdt, False, True, True)
+            cnt[3] += 1
+            for i in range(nv):
+                f0[i] = f0c[i] + r_air * ym[i]
+            rejected_here = False
+            while True:
+                t_new = t_end if hh == t_end - t else t + hh
+                # W = I/(h gamma) - (J + r_air I)
+                mode = _factor_w(jv, 1.0 / (hh * gamma) - r_air, ptr, col, diag, l_pos, l_pivot,
+                                 op_ptr, op_src, op_dst, a, rowmax, w, piv, lu_cols, piv_tol)
+                cnt[4] += 1
+                if mode == 2 and piv_tol >= 0.0:
+                    cnt[5] += 1
+                err_norm = math.inf
+                nonfinite = True
+                last_alpha = -1.0
+                if mode != 0:
+                    for st in range(ns):
+                        if st == 0:
+                            for i in range(nv):
+                                fi[i] = f0[i]
+                        elif mreuse[st]:
+                            for i in range(nv):
+                                fi[i] = fprev[i]
+                        else:
+                            for i in range(nv):
+                                v = ym[i]
+                                for q in range(st):
+                                    if ma[st, q] != 0.0:
+                                        v += ma[st, q] * stages[q, i]
+                                yi[i] = v
+                            if malpha[st] != last_alpha:
+                                # at the step's end (alpha = 1) with slopes: the next step starts there
+                                t_stage = t_new if malpha[st] == 1.0 else t + malpha[st] * hh
+                                _coefficients_at(t_stage, t_a, t_b, poly, log_col, sza_poly, sgrid,
+                                                 lnj, phot_cols, horizon, lm, fm, ks, fxs, dks, dfxs,
+                                                 malpha[st] == 1.0)
+                                last_alpha = malpha[st]
+                            _on_stage(extra, st, yi, ks, fxs)
+                            _kinetics(yi, ks, fxs, mass, sat, sat_half, st_ptr, st_idx, st_val,
+                                      jac_pos, jac_cols, jac_vals, c, rate, d, fi, dummy, True, False)
+                            cnt[2] += 1
+                            for i in range(nv):
+                                fi[i] += r_air * yi[i]
+                        for i in range(nv):
+                            fprev[i] = fi[i]
+                            v = fi[i] + hh * mgsum[st] * dfdt[i]
+                            for q in range(st):
+                                if mc[st, q] != 0.0:
+                                    v += (mc[st, q] / hh) * stages[q, i]
+                            tmp[i] = v
+                        _solve_w(mode, a, ptr, col, diag, perm, w, piv, tmp, xw)
+                        for i in range(nv):
+                            stages[st, i] = tmp[i]
+                    for i in range(nv):
+                        v = ym[i]
+                        e = 0.0
+                        for st in range(ns):
+                            if mm[st] != 0.0:
+                                v += mm[st] * stages[st, i]
+                            if me[st] != 0.0:
+                                e += me[st] * stages[st, i]
+                        ynew[i] = v
+                        err[i] = e
+                    err_norm, nonfinite, worst = _error_norm(ym, ynew, err, atol, rtol, worst)
+                if err_norm <= 1.0:
+                    break
+                cnt[1] += 1
+                hh = _rejected_step(hh, err_norm, err_exp, params)
+                rejected_last = True
+                rejected_here = True
+                clipped = False
+                if _below_minimum(hh, t, params):
+                    info[m, 0] = t
+                    info[m, 1] = hh
+                    info[m, 2] = worst
+                    h[m] = hh
+                    status[m] = 2 if nonfinite else 1
+                    return
+            # accepted
+            cnt[0] += 1
+            corr = _air_density_factor(r_air, hh, gamma, ma, mc, mm, zs)
+            if r_air != 0.0:
+                for i in range(nv):
+                    ynew[i] *= corr
+            _on_step(extra, ym, ynew, corr, hh, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv)
+            for i in range(nv):
+                ym[i] = ynew[i] if ynew[i] > 0.0 else 0.0
+            hh = _next_step(hh, err_norm, err_exp, params, rejected_last, clipped, rejected_here,
+                            h_proposed, h_max)
+            rejected_last = False
+            t = t_new
+            if last_alpha == 1.0:       # k(t_new) and its slope from the last stage
+                for r in range(nr):
+                    k0[r] = ks[r]
+                    dk0[r] = dks[r]
+                for q in range(n_fixed):
+                    fx0[q] = fxs[q]
+                    dfx0[q] = dfxs[q]
+            else:
+                _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon,
+                                 lm, fm, k0, fx0, dk0, dfx0, True)
+            _kinetics(ym, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos, jac_cols,
+                      jac_vals, c, rate, d, f0c, dummy, True, False)
+            cnt[2] += 1
+        info[m, 0] = t
+        info[m, 1] = hh
+        info[m, 2] = worst
+        h[m] = hh
+        j = out_index[interval]
+        if j >= 0:
+            _store_output(ys, m, j, ym, reached)
+            _on_output(extra, j)
 
 
 @_njit
@@ -795,22 +980,10 @@ def advance_batch(landings, air_rates, out_index, ys, reached, y, h, restart, st
     step-size control, so its result does not depend on the other members.
     """
     for m in range(y.shape[0]):
-        if status[m] != 0:
-            continue
-        for i in range(air_rates.shape[0]):
-            st = _advance_member(landings[i], landings[i + 1], y[m], h[m], h_max, restart[m] != 0,
-                                 t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon,
-                                 lmult[m], fmult[m], air_rates[i], rtol, atol, gamma, ma, mc, mm, me,
-                                 malpha, mgsum, mreuse, err_exp, mass, sat, sat_half, st_ptr, st_idx,
-                                 st_val, jac_cols, jac_vals, jac_pos, perm, ptr, col, diag, l_pos,
-                                 l_pivot, op_ptr, op_src, op_dst, n_fixed, counters[m], info[m], params)
-            h[m] = info[m, 1]
-            restart[m] = 0
-            if st != 0:
-                status[m] = st
-                break
-            j = out_index[i]
-            if j >= 0:
-                for q in range(y.shape[1]):
-                    ys[m, j, q] = y[m, q]
-                reached[m] = j + 1
+        if status[m] == 0:
+            _advance_member(m, landings, air_rates, out_index, ys, reached, y, h, restart, status, h_max,
+                            t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult,
+                            fmult, rtol, atol, gamma, ma, mc, mm, me, malpha, mgsum, mreuse, err_exp,
+                            mass, sat, sat_half, st_ptr, st_idx, st_val, jac_cols, jac_vals, jac_pos,
+                            perm, ptr, col, diag, l_pos, l_pivot, op_ptr, op_src, op_dst, n_fixed,
+                            counters, info, params, ())

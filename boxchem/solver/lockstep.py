@@ -6,7 +6,10 @@ running members of the call through the window *together*: one step size for
 all of them, accepted when the largest of the members' own weighted RMS error
 norms (``rosenbrock``'s norm, with the negative-value term of the per-member
 kernel) is <= 1, and the controller of ``rosenbrock`` driven by that largest
-norm.  Every work array is laid out (n_species, M), (n_reactions, M) or
+norm.  The rules of a step that do not depend on the layout (first-step
+estimate, landing on stops, each member's error norm, the controller, the
+smallest step, the air-density factor, the output copy) are the per-member
+loop's own compiled helpers (``compiled``).  Every work array is laid out (n_species, M), (n_reactions, M) or
 (n_nonzeros, M) with the member index innermost and contiguous, so the inner
 loops of the RHS, the Jacobian scatter and the fixed-pattern sparse LU
 (``sparselu``: the same elimination lists, run for all members at once) are
@@ -39,7 +42,9 @@ import math
 
 import numpy as np
 
-from .compiled import _coefficients_at, _dense_solve, _dense_w, _lu_factor, _njit
+from .compiled import (_air_density_factor, _below_minimum, _coefficients_at, _dense_solve, _dense_w,
+                       _error_norm, _first_step, _land, _lu_factor, _next_step, _njit, _rejected_step,
+                       _store_output)
 
 __all__ = ["advance_lockstep"]
 
@@ -286,8 +291,7 @@ def advance_lockstep(landings, air_rates, out_index, ys, reached, y, h, restart,
     (members, nv), ``h`` (members,): on return every running member holds the
     batch's step proposal).  See the module docstring for the step policy.
     """
-    safety, fmin, fmax, hmin_abs, hmin_rel, first_frac, fallback_h, piv_tol = (
-        params[0], params[1], params[2], params[3], params[4], params[5], params[6], params[8])
+    first_frac, fallback_h, piv_tol = params[5], params[6], params[8]
     n_all, nv = y.shape
     nr = poly.shape[1] - n_fixed
     ns = ma.shape[0]
@@ -379,15 +383,7 @@ def advance_lockstep(landings, air_rates, out_index, ys, reached, y, h, restart,
     if rst:   # first step estimate (Hairer & Wanner 1996, II.4): the smallest over the members
         best = math.inf
         for j in range(M):
-            d0 = 0.0
-            d1 = 0.0
-            for i in range(nv):
-                sc = atol[i] + rtol * abs(Y[i, j])
-                d0 += (Y[i, j] / sc) ** 2
-                d1 += (F0C[i, j] / sc) ** 2
-            d0 = math.sqrt(d0 / nv) if nv else 0.0
-            d1 = math.sqrt(d1 / nv) if nv else 0.0
-            est = first_frac * d0 / d1 if (d0 > 1e-5 and d1 > 1e-5) else fallback_h
+            est = _first_step(Y[:, j], F0C[:, j], atol, rtol, first_frac, fallback_h)
             # a member whose f is not finite gives no estimate (it fails on its own below)
             if est > 0.0 and math.isfinite(est) and est < best:
                 best = est
@@ -403,11 +399,7 @@ def advance_lockstep(landings, air_rates, out_index, ys, reached, y, h, restart,
             hc = h_max
         while t < t_end and n_alive > 0:
             h_proposed = hc
-            if hc > t_end - t:
-                hc = t_end - t
-            clipped = hc < h_proposed
-            if t_end - (t + hc) < 1e-9 * max(abs(t_end), 1.0):
-                hc = t_end - t
+            hc, clipped = _land(t, t_end, hc)
             _kinetics_lock(Y, K0, fx0, DK0, dfx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
                            jac_cols, jac_vals, C, R, D, mp, sp, tw, TMP, JV, DFDT, False, True, True)
             for j in range(M):
@@ -523,37 +515,8 @@ def advance_lockstep(landings, air_rates, out_index, ys, reached, y, h, restart,
                     norm[j] = math.inf
                     if mode[j] == 0:
                         continue
-                    finite = True
-                    for i in range(nv):
-                        if not math.isfinite(YN[i, j]):
-                            finite = False
-                            worst[j] = i
-                            break
-                    if not finite:
-                        continue
-                    acc = 0.0
-                    worst_ratio = -1.0
-                    neg = 0.0
-                    neg_i = -1
-                    for i in range(nv):
-                        sc = atol[i] + rtol * max(abs(Y[i, j]), abs(YN[i, j]))
-                        ratio = abs(ER[i, j]) / sc
-                        acc += ratio * ratio
-                        if ratio > worst_ratio:
-                            worst_ratio = ratio
-                            worst[j] = i
-                        if YN[i, j] < 0.0 and -YN[i, j] / sc > neg:
-                            neg = -YN[i, j] / sc
-                            neg_i = i
-                    e = math.sqrt(acc / nv) if nv else 0.0
-                    if not math.isfinite(e):
-                        continue
-                    nonfin[j] = 0
-                    if neg > 1.0 and neg > e:
-                        e = neg
-                        worst[j] = neg_i
-                    elif neg > 1.0:
-                        worst[j] = neg_i
+                    e, nonfinite, worst[j] = _error_norm(Y[:, j], YN[:, j], ER[:, j], atol, rtol, worst[j])
+                    nonfin[j] = 1 if nonfinite else 0
                     norm[j] = e
                 for j in range(M):
                     if alive[j] and not (norm[j] <= err_norm):
@@ -563,17 +526,11 @@ def advance_lockstep(landings, air_rates, out_index, ys, reached, y, h, restart,
                 for j in range(M):
                     if alive[j]:
                         counters[act[j], 1] += 1
-                if math.isfinite(err_norm) and err_norm > 0.0:
-                    factor = safety * err_norm ** (-err_exp)
-                else:
-                    factor = fmin
-                factor = min(fmax, max(fmin, factor))
-                factor = min(factor, 1.0)
-                hc = hc * factor
+                hc = _rejected_step(hc, err_norm, err_exp, params)
                 rejected_last = True
                 rejected_here = True
                 clipped = False
-                if hc < max(hmin_abs, hmin_rel * abs(t)):
+                if _below_minimum(hc, t, params):
                     # the members that still fail the test at the smallest step leave the batch ...
                     for j in range(M):
                         if alive[j] and not (norm[j] <= 1.0):
@@ -595,34 +552,14 @@ def advance_lockstep(landings, air_rates, out_index, ys, reached, y, h, restart,
             for j in range(M):
                 if alive[j]:
                     counters[act[j], 0] += 1
-            corr = 1.0
-            if r_air != 0.0:
-                # exp(r h) / R(r h): exact air-density factor for linear invariants (timeloop)
-                zz = r_air * hc
-                rsum = 1.0
-                for st in range(ns):
-                    v = zz
-                    for qs in range(st):
-                        v += zz * ma[st, qs] * zs[qs] + mc[st, qs] * zs[qs]
-                    zs[st] = v / (1.0 / gamma - zz)
-                    rsum += mm[st] * zs[st]
-                corr = math.exp(zz) / rsum
+            corr = _air_density_factor(r_air, hc, gamma, ma, mc, mm, zs)
             for i in range(nv):
                 for m in range(M):
                     v = YN[i, m] * corr if r_air != 0.0 else YN[i, m]
                     Y[i, m] = v if v > 0.0 else 0.0
-            if err_norm == 0.0:
-                factor = fmax
-            else:
-                factor = safety * err_norm ** (-err_exp)
-            factor = min(fmax, max(fmin, factor))
-            if rejected_last:
-                factor = min(factor, 1.0)
+            hc = _next_step(hc, err_norm, err_exp, params, rejected_last, clipped, rejected_here, h_proposed,
+                            h_max)
             rejected_last = False
-            h_next = hc * factor
-            if clipped and not rejected_here:
-                h_next = max(h_next, h_proposed)
-            hc = min(h_next, h_max)
             t = t_new
             if last_alpha == 1.0:       # k(t_new) and its slope from the last stage
                 for r in range(nr):
@@ -646,10 +583,7 @@ def advance_lockstep(landings, air_rates, out_index, ys, reached, y, h, restart,
         if jo >= 0:
             for j in range(M):
                 if alive[j]:
-                    m_ = act[j]
-                    for i in range(nv):
-                        ys[m_, jo, i] = Y[i, j]
-                    reached[m_] = jo + 1
+                    _store_output(ys, act[j], jo, Y[:, j], reached)
     for j in range(M):
         m_ = act[j]
         restart[m_] = 0

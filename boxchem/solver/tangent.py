@@ -52,18 +52,22 @@ Rules shared with the state:
   ``on_accept`` observes (the ozone column following the box) is taken as
   observed and not differentiated.
 
-The step loop is that of ``compiled._advance_member`` (same order of
-operations, so y is bitwise the same as a plain run's); it is repeated here
-rather than parametrised there to keep the base kernel lean.
+The steps are those of the one step loop, ``compiled._advance_member``, run
+with this module's hooks (``_TangentWork`` chooses them): ``_keep_stage`` keeps
+the state's stage points, ``_sensitivity_step`` advances S on each accepted step,
+``_sensitivity_output`` writes S at the output times.  y is therefore bitwise a
+plain run's (tests/test_tangent.py), and a change to the base step reaches the
+tangent by construction.
 """
 from __future__ import annotations
 
-import math
+from collections import namedtuple
 from dataclasses import dataclass
 
 import numpy as np
 
-from .compiled import _coefficients_at, _factor_w, _kinetics, _kinetics_dt, _njit, _solve_w
+from .compiled import (_OUTPUT_HOOKS, _STAGE_HOOKS, _STEP_HOOKS, _advance_member, _implements, _kinetics,
+                       _njit, _solve_w)
 
 __all__ = ["TangentParameters", "tangent_slots", "advance_tangent", "rate_tangents"]
 
@@ -381,279 +385,49 @@ def _tangent_step(y, sens, ystage, kstage, fxstage, stages, k0, fx0, dk0, dfx0, 
                     dsti[q] += m * kj[q]
 
 
-@_njit
-def _advance_member_tangent(t, t_end, y, sens, param_reaction, tan_ptr, tan_species, tan_dpos, h,
-                            h_max, restart, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols,
-                            horizon, lmult, fmult, r_air, rtol, atol, gamma, ma, mc, mm, me, malpha,
-                            mgsum, mreuse, err_exp, mass, sat, sat_half, st_ptr, st_idx, st_val,
-                            jac_cols, jac_vals, jac_pos, perm, ptr, col, diag, l_pos, l_pivot, op_ptr,
-                            op_src, op_dst, n_fixed, counters, info, params):
-    """``compiled._advance_member`` with S = dy/dp (``sens``, (nv, n_p), in place) on the same steps."""
-    safety, fmin, fmax, hmin_abs, hmin_rel, first_frac, fallback, fixed_diff, piv_tol = (
-        params[0], params[1], params[2], params[3], params[4], params[5], params[6], params[7],
-        params[8])
-    nv = y.shape[0]
-    nr = poly.shape[1] - n_fixed
-    ns = ma.shape[0]
-    nnz = col.shape[0]
-    n_p = sens.shape[1]
-    c = np.empty(nv + n_fixed + 1)
-    rate = np.empty(nr)
-    d = np.empty(nr * (mass.shape[1] + sat.shape[1]))
-    k0 = np.empty(nr)
-    fx0 = np.empty(n_fixed)
-    dk0 = np.empty(nr)
-    dfx0 = np.empty(n_fixed)
-    ks = np.empty(nr)
-    fxs = np.empty(n_fixed)
-    dks = np.empty(nr)
-    dfxs = np.empty(n_fixed)
-    f0c = np.empty(nv)
-    f0 = np.empty(nv)
-    fi = np.empty(nv)
-    fprev = np.empty(nv)
-    dfdt = np.empty(nv)
-    tmp = np.empty(nv)
-    yi = np.empty(nv)
-    ynew = np.empty(nv)
-    err = np.empty(nv)
-    xw = np.empty(nv)
-    jv = np.empty(nnz)
-    a = np.empty(nnz)
-    rowmax = np.empty(nv)
-    w = np.empty((nv, nv))
-    piv = np.empty(nv, dtype=np.int64)
-    lu_cols = np.empty(nv, dtype=np.int64)
-    stages = np.empty((ns, nv))
-    dummy = np.empty(1)
-    # tangent work
-    no_pos = np.empty(0, dtype=np.uint64)
-    ystage = np.empty((ns, nv))
-    kstage = np.empty((ns, nr))
-    fxstage = np.empty((ns, n_fixed))
-    ks_s = np.empty((nv, n_p))
-    sens_stage = np.empty((ns, nv, n_p))
-    g = np.empty((nr, n_p))
-    rhs = np.empty((nv, n_p))
-    xs = np.empty((nv, n_p))
-    snew = np.empty((nv, n_p))
+# the hooks of the one step loop (``compiled._advance_member``) that carry S along
+_TangentWork = namedtuple("_TangentWork", [
+    "sens", "sens_out", "out_rows", "param_reaction", "tan_ptr", "tan_species", "tan_dpos",
+    "ma", "mc", "mm", "mgsum", "mreuse", "ptr", "col", "diag", "perm", "mass", "sat", "sat_half",
+    "st_ptr", "st_idx", "st_val", "jac_cols", "jac_vals", "no_pos", "c", "ystage", "kstage",
+    "fxstage", "ks_s", "sens_stage", "g", "rhs", "xs", "xw", "snew"])
 
-    _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult,
-                     fmult, k0, fx0, dk0, dfx0, True)
-    _kinetics(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos, jac_cols, jac_vals,
-              c, rate, d, f0c, dummy, True, False)
-    counters[2] += 1
-    if restart:   # first step estimate (Hairer & Wanner 1996, II.4)
-        d0 = 0.0
-        d1 = 0.0
-        for i in range(nv):
-            sc = atol[i] + rtol * abs(y[i])
-            d0 += (y[i] / sc) ** 2
-            d1 += (f0c[i] / sc) ** 2
-        d0 = math.sqrt(d0 / nv) if nv else 0.0
-        d1 = math.sqrt(d1 / nv) if nv else 0.0
-        est = first_frac * d0 / d1 if (d0 > 1e-5 and d1 > 1e-5) else fallback
-        if est < h:
-            h = est
-    if h > h_max:
-        h = h_max
-    worst = -1
-    rejected_last = False
-    mode = 0
-    while t < t_end:
-        h_proposed = h
-        if h > t_end - t:
-            h = t_end - t
-        clipped = h < h_proposed
-        if t_end - (t + h) < 1e-9 * max(abs(t_end), 1.0):
-            h = t_end - t
-        _kinetics_dt(y, k0, fx0, dk0, dfx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
-                     jac_cols, jac_vals, c, rate, d, tmp, jv, dfdt, False, True, True)
-        counters[3] += 1
-        for i in range(nv):
-            f0[i] = f0c[i] + r_air * y[i]
-        rejected_here = False
-        while True:
-            t_new = t_end if h == t_end - t else t + h
-            mode = _factor_w(jv, 1.0 / (h * gamma) - r_air, ptr, col, diag, l_pos, l_pivot, op_ptr,
-                             op_src, op_dst, a, rowmax, w, piv, lu_cols, piv_tol)
-            counters[4] += 1
-            if mode == 2 and piv_tol >= 0.0:
-                counters[5] += 1
-            err_norm = math.inf
-            nonfinite = True
-            last_alpha = -1.0
-            if mode != 0:
-                for st in range(ns):
-                    if st == 0:
-                        for i in range(nv):
-                            fi[i] = f0[i]
-                            ystage[0, i] = y[i]
-                        for r in range(nr):
-                            kstage[0, r] = k0[r]
-                        for q in range(n_fixed):
-                            fxstage[0, q] = fx0[q]
-                    elif mreuse[st]:
-                        for i in range(nv):
-                            fi[i] = fprev[i]
-                            ystage[st, i] = ystage[st - 1, i]
-                        for r in range(nr):
-                            kstage[st, r] = kstage[st - 1, r]
-                        for q in range(n_fixed):
-                            fxstage[st, q] = fxstage[st - 1, q]
-                    else:
-                        for i in range(nv):
-                            v = y[i]
-                            for q in range(st):
-                                if ma[st, q] != 0.0:
-                                    v += ma[st, q] * stages[q, i]
-                            yi[i] = v
-                            ystage[st, i] = v
-                        if malpha[st] != last_alpha:
-                            t_stage = t_new if malpha[st] == 1.0 else t + malpha[st] * h
-                            _coefficients_at(t_stage, t_a, t_b, poly, log_col, sza_poly,
-                                             sgrid, lnj, phot_cols, horizon, lmult, fmult, ks, fxs,
-                                             dks, dfxs, malpha[st] == 1.0)
-                            last_alpha = malpha[st]
-                        for r in range(nr):
-                            kstage[st, r] = ks[r]
-                        for q in range(n_fixed):
-                            fxstage[st, q] = fxs[q]
-                        _kinetics(yi, ks, fxs, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos,
-                                  jac_cols, jac_vals, c, rate, d, fi, dummy, True, False)
-                        counters[2] += 1
-                        for i in range(nv):
-                            fi[i] += r_air * yi[i]
-                    for i in range(nv):
-                        fprev[i] = fi[i]
-                        v = fi[i] + h * mgsum[st] * dfdt[i]
-                        for q in range(st):
-                            if mc[st, q] != 0.0:
-                                v += (mc[st, q] / h) * stages[q, i]
-                        tmp[i] = v
-                    _solve_w(mode, a, ptr, col, diag, perm, w, piv, tmp, xw)
-                    for i in range(nv):
-                        stages[st, i] = tmp[i]
-                finite = True
-                for i in range(nv):
-                    v = y[i]
-                    e = 0.0
-                    for st in range(ns):
-                        if mm[st] != 0.0:
-                            v += mm[st] * stages[st, i]
-                        if me[st] != 0.0:
-                            e += me[st] * stages[st, i]
-                    ynew[i] = v
-                    err[i] = e
-                    if not math.isfinite(v):
-                        finite = False
-                if finite:
-                    nonfinite = False
-                    acc = 0.0
-                    worst_ratio = -1.0
-                    neg = 0.0
-                    neg_i = -1
-                    for i in range(nv):
-                        sc = atol[i] + rtol * max(abs(y[i]), abs(ynew[i]))
-                        ratio = abs(err[i]) / sc
-                        acc += ratio * ratio
-                        if ratio > worst_ratio:
-                            worst_ratio = ratio
-                            worst = i
-                        if ynew[i] < 0.0 and -ynew[i] / sc > neg:
-                            neg = -ynew[i] / sc
-                            neg_i = i
-                    err_norm = math.sqrt(acc / nv) if nv else 0.0
-                    if not math.isfinite(err_norm):
-                        nonfinite = True
-                        err_norm = math.inf
-                    elif neg > 1.0 and neg > err_norm:
-                        err_norm = neg
-                        worst = neg_i
-                    elif neg > 1.0:
-                        worst = neg_i
-                else:
-                    for i in range(nv):
-                        if not math.isfinite(ynew[i]):
-                            worst = i
-                            break
-            if err_norm <= 1.0:
-                break
-            counters[1] += 1
-            if math.isfinite(err_norm) and err_norm > 0.0:
-                factor = safety * err_norm ** (-err_exp)
-            else:
-                factor = fmin
-            factor = min(fmax, max(fmin, factor))
-            factor = min(factor, 1.0)
-            h = h * factor
-            rejected_last = True
-            rejected_here = True
-            clipped = False
-            if h < max(hmin_abs, hmin_rel * abs(t)):
-                info[0] = t
-                info[1] = h
-                info[2] = worst
-                return 2 if nonfinite else 1
-        # accepted: the sensitivities on the same step, with the same factorisation
-        _tangent_step(y, sens, ystage, kstage, fxstage, stages, k0, fx0, dk0, dfx0, h, r_air, ma, mc,
-                      mm, mgsum, mreuse, mode, a, ptr, col, diag, perm, w, piv, param_reaction,
-                      tan_ptr, tan_species, tan_dpos, mass, sat, sat_half, st_ptr, st_idx, st_val,
-                      no_pos, jac_cols, jac_vals, c, ks_s, sens_stage, g, rhs, xs, xw, snew)
-        counters[0] += 1
-        corr = 1.0
-        if r_air != 0.0:
-            zz = r_air * h
-            rsum = 1.0
-            for st in range(ns):
-                v = zz
-                for q in range(st):
-                    v += zz * ma[st, q] * stages[q, 0] + mc[st, q] * stages[q, 0]
-                stages[st, 0] = v / (1.0 / gamma - zz)
-                rsum += mm[st] * stages[st, 0]
-            corr = math.exp(zz) / rsum
-            for i in range(nv):
-                ynew[i] *= corr
-        for i in range(nv):
-            if ynew[i] > 0.0:
-                y[i] = ynew[i]
-                for q in range(n_p):
-                    sens[i, q] = snew[i, q] * corr
-            else:
-                y[i] = 0.0
-                # d max(y, 0)/dy: a clipped component carries no sensitivity
-                for q in range(n_p):
-                    sens[i, q] = 0.0 if ynew[i] < 0.0 else snew[i, q] * corr
-        if err_norm == 0.0:
-            factor = fmax
-        else:
-            factor = safety * err_norm ** (-err_exp)
-        factor = min(fmax, max(fmin, factor))
-        if rejected_last:
-            factor = min(factor, 1.0)
-        rejected_last = False
-        h_next = h * factor
-        if clipped and not rejected_here:
-            h_next = max(h_next, h_proposed)
-        h = min(h_next, h_max)
-        t = t_new
-        if last_alpha == 1.0:
-            for r in range(nr):
-                k0[r] = ks[r]
-                dk0[r] = dks[r]
-            for q in range(n_fixed):
-                fx0[q] = fxs[q]
-                dfx0[q] = dfxs[q]
-        else:
-            _coefficients_at(t, t_a, t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon,
-                             lmult, fmult, k0, fx0, dk0, dfx0, True)
-        _kinetics(y, k0, fx0, mass, sat, sat_half, st_ptr, st_idx, st_val, jac_pos, jac_cols,
-                  jac_vals, c, rate, d, f0c, dummy, True, False)
-        counters[2] += 1
-    info[0] = t
-    info[1] = h
-    info[2] = worst
-    return 0
+
+@_implements(_STAGE_HOOKS, _TangentWork)
+def _keep_stage(extra, st, yi, ks, fxs):
+    """``_on_stage``: keep the state's stage point and its k, fixed (S's stages are taken there)."""
+    ystage, kstage, fxstage = extra.ystage, extra.kstage, extra.fxstage
+    for i in range(yi.shape[0]):
+        ystage[st, i] = yi[i]
+    for r in range(ks.shape[0]):
+        kstage[st, r] = ks[r]
+    for q in range(fxs.shape[0]):
+        fxstage[st, q] = fxs[q]
+
+
+@_implements(_STEP_HOOKS, _TangentWork)
+def _sensitivity_step(extra, y, ynew, corr, h, r_air, stages, k0, fx0, dk0, dfx0, mode, a, w, piv):
+    """``_on_step``: S over the accepted step (same factorisation), times the air-density factor
+    ``corr``; the rows of the components clipped to zero are zeroed (d max(y, 0)/dy)."""
+    x = extra
+    _tangent_step(y, x.sens, x.ystage, x.kstage, x.fxstage, stages, k0, fx0, dk0, dfx0, h, r_air,
+                  x.ma, x.mc, x.mm, x.mgsum, x.mreuse, mode, a, x.ptr, x.col, x.diag, x.perm, w, piv,
+                  x.param_reaction, x.tan_ptr, x.tan_species, x.tan_dpos, x.mass, x.sat, x.sat_half,
+                  x.st_ptr, x.st_idx, x.st_val, x.no_pos, x.jac_cols, x.jac_vals, x.c, x.ks_s,
+                  x.sens_stage, x.g, x.rhs, x.xs, x.xw, x.snew)
+    sens, snew = x.sens, x.snew
+    for i in range(y.shape[0]):
+        clipped = ynew[i] < 0.0
+        for q in range(sens.shape[1]):
+            sens[i, q] = 0.0 if clipped else snew[i, q] * corr
+
+
+@_implements(_OUTPUT_HOOKS, _TangentWork)
+def _sensitivity_output(extra, j):
+    """``_on_output``: ``sens_out[j] = sens[out_rows].T``."""
+    for p in range(extra.sens.shape[1]):
+        for q in range(extra.out_rows.shape[0]):
+            extra.sens_out[j, p, q] = extra.sens[extra.out_rows[q], p]
 
 
 @_njit
@@ -667,28 +441,21 @@ def advance_tangent(landings, air_rates, out_index, ys, sens_out, out_rows, reac
     (nv, n_p); at output j, ``sens_out[j] = sens[out_rows].T`` (n_p, len(out_rows))."""
     if status[0] != 0:
         return
-    for i in range(air_rates.shape[0]):
-        st = _advance_member_tangent(landings[i], landings[i + 1], y[0], sens, param_reaction, tan_ptr,
-                                     tan_species, tan_dpos, h[0], h_max, restart[0] != 0, t_a, t_b,
-                                     poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult[0],
-                                     fmult[0], air_rates[i], rtol, atol, gamma, ma, mc, mm, me, malpha,
-                                     mgsum, mreuse, err_exp, mass, sat, sat_half, st_ptr, st_idx,
-                                     st_val, jac_cols, jac_vals, jac_pos, perm, ptr, col, diag, l_pos,
-                                     l_pivot, op_ptr, op_src, op_dst, n_fixed, counters[0], info[0],
-                                     params)
-        h[0] = info[0, 1]
-        restart[0] = 0
-        if st != 0:
-            status[0] = st
-            return
-        j = out_index[i]
-        if j >= 0:
-            for q in range(y.shape[1]):
-                ys[0, j, q] = y[0, q]
-            for p in range(sens.shape[1]):
-                for q in range(out_rows.shape[0]):
-                    sens_out[j, p, q] = sens[out_rows[q], p]
-            reached[0] = j + 1
+    nv, n_p = sens.shape
+    ns = ma.shape[0]
+    nr = poly.shape[1] - n_fixed
+    x = _TangentWork(sens, sens_out, out_rows, param_reaction, tan_ptr, tan_species, tan_dpos, ma, mc,
+                     mm, mgsum, mreuse, ptr, col, diag, perm, mass, sat, sat_half, st_ptr, st_idx,
+                     st_val, jac_cols, jac_vals, np.empty(0, dtype=np.uint64),
+                     np.empty(nv + n_fixed + 1), np.empty((ns, nv)), np.empty((ns, nr)),
+                     np.empty((ns, n_fixed)), np.empty((nv, n_p)), np.empty((ns, nv, n_p)),
+                     np.empty((nr, n_p)), np.empty((nv, n_p)), np.empty((nv, n_p)), np.empty(nv),
+                     np.empty((nv, n_p)))
+    _advance_member(0, landings, air_rates, out_index, ys, reached, y, h, restart, status, h_max, t_a,
+                    t_b, poly, log_col, sza_poly, sgrid, lnj, phot_cols, horizon, lmult, fmult, rtol,
+                    atol, gamma, ma, mc, mm, me, malpha, mgsum, mreuse, err_exp, mass, sat, sat_half,
+                    st_ptr, st_idx, st_val, jac_cols, jac_vals, jac_pos, perm, ptr, col, diag, l_pos,
+                    l_pivot, op_ptr, op_src, op_dst, n_fixed, counters, info, params, x)
 
 
 @_njit
