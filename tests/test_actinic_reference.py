@@ -36,12 +36,14 @@ STREAMS = 32
 EDGES = np.arange(300.0, 421.0, 20.0)
 
 
-def _disort_at_level(dtau, mu0, albedo, level):
+def _disort_at_level(dtau, mu0, albedo, level, w0=None):
     """DISORT (Stamnes et al. 1988) at the top of layer ``level``: (direct, total) actinic flux per unit F0.
 
-    ``dtau`` (n_bins, n_layers) vertical Rayleigh optical depths, top first."""
+    ``dtau`` (n_bins, n_layers) vertical extinction optical depths, top first; ``w0`` the
+    single-scattering albedos of the same shape (default 1: Rayleigh scattering only)."""
     torch.set_num_threads(1)
     n_bins, n_lay = dtau.shape
+    w0 = np.ones_like(dtau) if w0 is None else w0
     direct, total = np.empty(n_bins), np.empty(n_bins)
     f64 = torch.float64
     for i in range(n_bins):
@@ -52,7 +54,7 @@ def _disort_at_level(dtau, mu0, albedo, level):
         solver = pydisort.Disort(op)
         prop = torch.zeros((1, 1, n_lay, 2 + STREAMS), dtype=f64)
         prop[..., 0] = torch.tensor(dtau[i], dtype=f64)
-        prop[..., 1] = 1.0 - 1e-9                       # conservative scattering
+        prop[..., 1] = torch.tensor(np.minimum(w0[i], 1.0 - 1e-9), dtype=f64)   # DISORT wants w0 < 1
         prop[..., 2:] = pydisort.scattering_moments(STREAMS, "rayleigh")
         solver.forward(prop, umu0=torch.tensor([mu0], dtype=f64), phi0=torch.tensor([0.0], dtype=f64),
                        fbeam=torch.tensor([[1.0]], dtype=f64), albedo=torch.tensor([[albedo]], dtype=f64),
@@ -98,32 +100,6 @@ def test_albedo_effect_matches_disort():
     np.testing.assert_allclose((d3 + s3) - (d0 + s0), t3 - t0, rtol=0.03)
 
 
-def _disort_actinic_general(dtau, w0, mu0, albedo, level):
-    """DISORT (Stamnes et al. 1988) total actinic flux per unit F0 at the top of layer ``level``.
-
-    ``dtau``, ``w0`` (n_bins, n_layers): extinction optical depth and single-scattering albedo
-    (Rayleigh scattering, absorption by O3 and O2)."""
-    torch.set_num_threads(1)
-    f64 = torch.float64
-    n_bins, n_lay = dtau.shape
-    total = np.empty(n_bins)
-    for i in range(n_bins):
-        op = pydisort.DisortOptions().flags("usrtau,lamber,quiet,onlyfl")
-        op.ds().nlyr, op.ds().nstr, op.ds().nmom, op.ds().nphase = n_lay, STREAMS, STREAMS, STREAMS
-        op.nwave(1).ncol(1)
-        op.user_tau(np.array([float(dtau[i, :level].sum())]))
-        solver = pydisort.Disort(op)
-        prop = torch.zeros((1, 1, n_lay, 2 + STREAMS), dtype=f64)
-        prop[..., 0] = torch.tensor(dtau[i], dtype=f64)
-        prop[..., 1] = torch.tensor(np.minimum(w0[i], 1.0 - 1e-9), dtype=f64)
-        prop[..., 2:] = pydisort.scattering_moments(STREAMS, "rayleigh")
-        solver.forward(prop, umu0=torch.tensor([mu0], dtype=f64), phi0=torch.tensor([0.0], dtype=f64),
-                       fbeam=torch.tensor([[1.0]], dtype=f64), albedo=torch.tensor([[albedo]], dtype=f64),
-                       fluor=torch.zeros((1, 1), dtype=f64), fisot=torch.zeros((1, 1), dtype=f64))
-        total[i] = 4.0 * np.pi * solver.gather_flx()[0, 0, 0].numpy()[pydisort.kIUAVG]
-    return total
-
-
 @pytest.mark.parametrize("albedo", [0.0, 0.3])
 def test_j_no2_balloon_case_with_disort_flux(albedo):
     # J(NO2) at 24 km, SZA 30 deg, 300 DU, NO2 data at 220 K (the balloon case of docs/photolysis.md,
@@ -146,7 +122,7 @@ def test_j_no2_balloon_case_with_disort_flux(albedo):
     dtau = (tau_abs + tau_sca).T
     w0 = (tau_sca / (tau_abs + tau_sca)).T
     f0 = extraterrestrial_flux(edges)
-    reference = _disort_actinic_general(dtau, w0, float(np.cos(np.radians(30.0))), albedo, atm.box_level) * f0
+    reference = _disort_at_level(dtau, float(np.cos(np.radians(30.0))), albedo, atm.box_level, w0)[1] * f0
     model = flux_grid([30.0], 24_000.0, [300.0], albedo=albedo, wavelength_edges_nm=edges)[0, 0]
     sigma_phi = cross_section_data("NO2").bin_average(edges, 220.0) * quantum_yield_data("NO2").bin_average(edges, 220.0)
     dl = np.diff(edges)
