@@ -1,7 +1,7 @@
 """Figure for docs/photolysis.md: the model's actinic flux / DISORT's on the same layers.
 
-DISORT (Stamnes et al. 1988, Appl. Opt. 27, 2502; PyPI ``pydisort``) through the wrapper of
-tests/test_actinic_reference.py.  Pure Rayleigh atmosphere, box at 24 km, SZA 30 deg, albedo
+DISORT (Stamnes et al. 1988, Appl. Opt. 27, 2502; PyPI ``pydisort``, ``pip install '.[reference]'``)
+through the wrapper of tests/disort_cases.py.  Pure Rayleigh atmosphere, box at 24 km, SZA 30 deg, albedo
 0 and 0.3, 300-420 nm in 5 nm bins; two and four source-function iterations.
 Run: PYTHONPATH=. python scripts/actinic_reference_figure.py [out.png]
 """
@@ -14,20 +14,21 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
-import test_actinic_reference as ref  # noqa: E402
+import disort_cases as cases  # noqa: E402
 import boxchem.photolysis.actinic as actinic  # noqa: E402
 
 
 def main(out="docs/figures/actinic_vs_disort.png"):
-    ref.EDGES = np.arange(300.0, 421.0, 5.0)
-    centres = 0.5 * (ref.EDGES[1:] + ref.EDGES[:-1])
+    edges = np.arange(300.0, 421.0, 5.0)
+    centres = 0.5 * (edges[1:] + edges[:-1])
     fig, axes = plt.subplots(1, 2, figsize=(10, 4), sharey=True)
     saved = actinic.SOURCE_ITERATIONS
     for ax, part in zip(axes, ("total", "diffuse")):
         for iterations, style in ((2, "--"), (4, "-")):
             actinic.SOURCE_ITERATIONS = iterations
             for albedo, colour in ((0.0, "C0"), (0.3, "C1")):
-                d, s, rd, rt = ref._model_and_reference(24_000.0, 30.0, albedo)
+                d, s = cases.model_flux(24_000.0, 30.0, albedo, False, edges)
+                rd, rt = cases.disort_at_level(cases.case_inputs(24_000.0, 30.0, albedo, False, edges))
                 ratio = (d + s) / rt if part == "total" else s / (rt - rd)
                 ax.plot(centres, ratio, style, color=colour, label=f"albedo {albedo}, {iterations} iterations")
         ax.axhline(1.0, color="k", lw=0.5)
