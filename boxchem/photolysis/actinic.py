@@ -254,7 +254,7 @@ def _layer_sources(j, dtau, w0, gamma1, gamma2, lam, refl, trans, beam, slant):
 SOURCE_FUNCTION_STREAMS = 8
 #: directions per hemisphere and number of the source iterations at every level
 ITERATION_STREAMS = 3
-SOURCE_ITERATIONS = 2
+SOURCE_ITERATIONS = 4
 
 
 def _diffuse_at_box(dtau, tau_sca, beam, slant, sza, albedo, b):
