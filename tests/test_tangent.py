@@ -142,7 +142,8 @@ def test_tangent_run_takes_the_plain_runs_steps_bit_for_bit():
     # the tangent rides on the one step loop (compiled._advance_member): y, the step sequence
     # and every work counter are those of the plain run, to the bit (solver contract; common
     # practice, no source).  Two sunlit days of polar-spring before 1 October: sunrise/sunset
-    # breakpoints, surfaces, clipping and rejected steps all occur
+    # breakpoints, surfaces, clipping and rejected steps all occur.  The tangent differentiates
+    # the surfaces' exact per-window offsets, so its plain twin runs with those too
     from boxchem.runner import prepare
     from boxchem.scenario import load_scenario
     setup = prepare(load_scenario("polar-spring").with_overrides(
@@ -150,7 +151,7 @@ def test_tangent_run_takes_the_plain_runs_steps_bit_for_bit():
     kin, coef, sc = setup.kinetics, setup.coefficients, setup.scenario
     kw = dict(breakpoints_s=setup.breakpoints_s, rtol=sc.rtol, atol=sc.atol)
     tp = TangentParameters(reactions=tuple(range(0, kin.n_reactions, 20)), initial=(0,))
-    plain = integrate_batch(kin, coef, setup.y0[None], setup.output_times_s, **kw)
+    plain = integrate_batch(kin, coef, setup.y0[None], setup.output_times_s, surface_feedback="member_exact", **kw)
     tangent = integrate_batch(kin, coef, setup.y0[None], setup.output_times_s, tangent=tp, **kw)
     assert plain.status[0] == 0 and tangent.status[0] == 0
     assert plain.rejected_steps[0] > 0
