@@ -35,11 +35,14 @@ ROWS = {
     "nat_saturation": ("function", ("boxchem.environment.psc:nat_hno3_equilibrium_pressure",
                                     "boxchem.environment.condensation:nat_hno3_equilibrium_pressure")),
     "sts_solubility": ("function", ("boxchem.environment.sts:_henry",)),
+    # the STS droplet radius of the liquid gammas' reacto-diffusive factor
+    "sts_droplet_radius": ("function", ("boxchem.environment.psc:lognormal_surface_weighted_radius",)),
 }
 
 
 #: test files a row needs beyond benchmarks/factor2_check.py's default
-ROW_TESTS = {"nat_saturation": ("tests/test_condensation.py",), "sts_solubility": ("tests/test_sts.py",)}
+ROW_TESTS = {"nat_saturation": ("tests/test_condensation.py",), "sts_solubility": ("tests/test_sts.py",),
+             "sts_droplet_radius": ("tests/test_sts.py",)}
 
 
 def _factor_columns(ids_all, wanted, factor):
