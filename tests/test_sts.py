@@ -154,3 +154,20 @@ def test_liquid_gamma_follows_the_sts_droplet_radius():
     # react in a thin shell, f -> 1, and the radius hardly matters: 0.7 %)
     doubled = 1.0 / (1.0 + 1.0 / (gamma_b * _reacto_diffusive_f(2 * r / ell)))
     assert np.all(np.abs(doubled / expected - 1.0)[1:] > 0.02), (r / ell)
+
+
+def test_radius_from_must_name_a_known_source():
+    # input check (common practice, no source): a clear error naming the key and the valid values
+    from boxchem.errors import MechanismError
+    from boxchem.mechanism import parse_mechanism
+    text = ('extends "stratosphere"\n[changed reactions]\n'
+            'het_clono2_h2o_sa   ClONO2 + H2O -> HOCl + HNO3  uptake gamma_from=shi2001_clono2_h2o '
+            'on=sulfate radius_um=0.1 radius_from=sometimes\n')
+    with pytest.raises(MechanismError) as e:
+        parse_mechanism(text, "user.mech")
+    assert "radius_from='sometimes'" in str(e.value) and "'droplets'" in str(e.value)
+    fixed = parse_mechanism(text.replace("sometimes", "line"), "user.mech")
+    from boxchem.mechanism.ratelaws import RateEvaluator
+    ev = RateEvaluator(fixed)
+    j = [fixed.reactions[i].id for i in ev.uptake_index].index("het_clono2_h2o_sa")
+    assert not ev._uptake_follows_droplets[j]
