@@ -158,3 +158,22 @@ def test_rates_surface_needs_composition(capsys):
     assert rows["het_clono2_hcl_sa"]["gamma"] == "" and "--h2o" in rows["het_clono2_hcl_sa"]["note"]
     assert main(["rates", "stratosphere", "-T", "195", "-p", "50hPa", "--hcl", "2 furlongs"]) == 2
     assert "--hcl" in capsys.readouterr().err
+
+
+def test_rates_droplet_radius(capsys):
+    # the liquid gamma follows --droplet-radius as an STS rule's droplets set it in a run; the
+    # value is the parameterization's at that radius (Shi et al. 2001 via liquid_aerosol)
+    from boxchem.mechanism.liquid_aerosol import liquid_gammas
+    args = ["rates", "stratosphere", "-T", "200", "-p", "50hPa", "--h2o", "5ppmv", "--hcl", "1.5ppbv",
+            "--clono2", "0.5ppbv", "--format", "csv"]
+    rows = {}
+    for r in (None, "0.3um"):
+        assert main(args + (["--droplet-radius", r] if r else [])) == 0
+        line = [ln for ln in capsys.readouterr().out.splitlines() if ln.startswith("het_clono2_h2o_sa,")][0]
+        rows[r] = float(line.split(",")[6])
+    p = 5000.0
+    expected = liquid_gammas(200.0, 5e-6 * p, 1.5e-9 * p, 0.5e-9 * p, 0.3e-4)["shi2001_clono2_h2o"]
+    assert abs(rows["0.3um"] / expected - 1) < 1e-3
+    assert rows["0.3um"] > 1.05 * rows[None]
+    assert main(args + ["--droplet-radius", "-1"]) == 2
+    assert "--droplet-radius" in capsys.readouterr().err

@@ -152,3 +152,32 @@ def test_the_ensemble_command_batches_state_dependent_members(tmp_path, monkeypa
     import xarray as xr
     with xr.open_dataset(out) as ds:
         assert list(ds["member_status"].values) == [1, 1, 1, 1]
+
+
+def test_sts_members_carry_their_own_droplet_radius():
+    """polar-spring-sts: each member's liquid gammas use the radius of its own STS droplets
+    (StsEquilibriumRule.droplet_radius_cm from its own HNO3 and H2O), batched or alone."""
+    setup = runner.prepare(load_scenario("polar-spring-sts").with_overrides(**{"run.duration": "3 d"}))
+    sp = setup.kinetics.variable_species
+    air0 = float(setup.environment.at(0.0).air_density)
+    y0 = np.tile(setup.y0, (2, 1))
+    y0[1, sp.index("HNO3")] = 8e-9 * air0           # more HNO3: larger droplets
+    lm = np.zeros((2, setup.kinetics.n_reactions))
+    batch = _batch(setup, y0, lm)
+    alone = _batch(setup, y0[1:], lm[1:])
+    np.testing.assert_array_equal(batch.y[1], alone.y[0])
+    ids = [r.id for r in setup.mechanism.reactions]
+    col = ids.index("het_clono2_h2o_sa")
+    state = setup.environment.at(setup.output_times_s)
+    T, p, air = (np.asarray(v, dtype=float) for v in (state.temperature, state.pressure, state.air_density))
+    rule = setup.environment.sulfate_area
+    radii = []
+    for m in range(2):
+        x = {s: batch.y[m][:, sp.index(s)] / air for s in ("HNO3", "H2O", "HCl", "ClONO2", "HNO3_PSC")}
+        r = rule.droplet_radius_cm(T, p, x)
+        radii.append(r)
+        exact = setup.coefficients.evaluator.surface(
+            T, 0.0, rule(T, p, x), 0.0, partial_pressures={s: x[s] * p for s in ("H2O", "HCl", "ClONO2")},
+            droplet_radius_cm=r)
+        np.testing.assert_allclose(batch.member_k(m)[1:, col], exact[1:, col], rtol=1e-9, atol=0)
+    assert np.all(radii[1][1:] > radii[0][1:])       # the richer member's droplets are larger

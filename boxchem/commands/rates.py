@@ -25,7 +25,9 @@ depend on the sun: those rows carry no k here.  Surface rows show the
 reaction probability gamma and, where the area of their surface is given
 (--sulfate-area, --psc-area, --ice-area), k = gamma v S / 4 [s-1].  gamma of
 liquid-sulfate lines (uptake gamma_from=...) depends on the H2O, HCl and
-ClONO2 mole fractions (--h2o, --hcl, --clono2; docs/heterogeneous.md)."""
+ClONO2 mole fractions (--h2o, --hcl, --clono2; docs/heterogeneous.md) and on
+the droplet radius: radius_um= of the line, or --droplet-radius (what an STS
+rule's droplets give in a run) for the lines with radius_from=droplets."""
 
 CSV_COLUMNS = ("id", "equation", "law", "temperature", "pressure", "air_density", "gamma", "k", "units",
                "note")
@@ -51,11 +53,14 @@ def register(subparsers) -> None:
     for name in ("sulfate", "psc", "ice"):
         p.add_argument(f"--{name}-area", metavar="S", default=None,
                        help=f"{name} surface area density with a unit (e.g. \"0.5 um2 cm-3\")")
+    p.add_argument("--droplet-radius", metavar="R", default=None,
+                   help="liquid droplet radius in um (e.g. 0.3 or 0.3um) for uptake lines with "
+                        "radius_from=droplets, as an STS rule sets it in a run (default: each line's radius_um=)")
     p.add_argument("--format", choices=("text", "csv"), default="text", help="output format (default text)")
     p.set_defaults(func=run)
 
 
-def _rows(mechanism, temperatures, pressure, mole_fractions=None, areas=None):
+def _rows(mechanism, temperatures, pressure, mole_fractions=None, areas=None, droplet_radius_cm=None):
     from ..environment.atmosphere import air_number_density
     from ..mechanism.model import SURFACE_LAWS
     from ..mechanism.ratelaws import SURFACE_STATE_SPECIES, RateEvaluator
@@ -71,9 +76,9 @@ def _rows(mechanism, temperatures, pressure, mole_fractions=None, areas=None):
     have_state = not (evaluator.state_dependent_surface and missing)
     if have_state:
         pp = {s: np.full(T.shape, x.get(s, 0.0) * pressure) for s in SURFACE_STATE_SPECIES}
-        gamma = evaluator.surface_gamma(T, pp)
+        gamma = evaluator.surface_gamma(T, pp, droplet_radius_cm)
         ks = evaluator.surface(T, areas.get("psc", 0.0), areas.get("sulfate", 0.0), areas.get("ice", 0.0),
-                               partial_pressures=pp)
+                               partial_pressures=pp, droplet_radius_cm=droplet_radius_cm)
     column = {int(i): j for j, i in enumerate(evaluator.surface_index)}
     for r_i, r in enumerate(mechanism.reactions):
         for t_i in range(T.size):
@@ -131,10 +136,20 @@ def run(args) -> int:
         if not value >= 0:
             raise BoxchemError(f"--{name}-area: {text!r} is not a surface area density >= 0")
         areas[name] = value
+    radius_cm = None
+    if getattr(args, "droplet_radius", None) is not None:
+        text = args.droplet_radius.strip()
+        number = text[:-2].strip() if text.lower().endswith("um") else text
+        try:
+            radius_cm = float(number) * 1e-4
+        except ValueError:
+            radius_cm = float("nan")
+        if not (np.isfinite(radius_cm) and radius_cm > 0):
+            raise BoxchemError(f"--droplet-radius: {text!r} is not a droplet radius > 0 in um; valid: e.g. 0.3 or 0.3um")
     mechanism = load_mechanism(args.mechanism)
     for w in mechanism.warnings:
         print(w.format(), file=sys.stderr)
-    rows = list(_rows(mechanism, temperatures, pressure, mole_fractions, areas))
+    rows = list(_rows(mechanism, temperatures, pressure, mole_fractions, areas, radius_cm))
     try:
         _print(rows, pressure, args.format)
     except BrokenPipeError:

@@ -112,6 +112,17 @@ def lognormal_surface_area(volume_cm3_cm3, number_density_cm3, geometric_std):
     return (36.0 * math.pi * number_density_cm3) ** (1.0 / 3.0) * V ** (2.0 / 3.0) * math.exp(-s * s)
 
 
+def lognormal_surface_weighted_radius(volume_cm3_cm3, number_density_cm3, geometric_std):
+    """Surface-area-weighted mean radius [cm] of lognormal particles holding volume V [cm3 cm-3].
+
+    r_s = M3 / M2 = 3 V / S = r_g exp(2.5 ln^2 sigma), the ratio of the third to the second
+    moment of the lognormal distribution (Seinfeld and Pandis 2016, section 8.1); 0 where V = 0.
+    """
+    V = np.maximum(np.asarray(volume_cm3_cm3, dtype=float), 0.0)
+    S = lognormal_surface_area(V, number_density_cm3, geometric_std)
+    return np.where(S > 0.0, 3.0 * V / np.where(S > 0.0, S, 1.0), 0.0)
+
+
 def _check(name, value, ok, valid):
     if not (isinstance(value, (int, float)) and np.isfinite(value) and ok(value)):
         raise ScenarioError(f"{name}: expected {valid}, got {value!r}")

@@ -195,6 +195,13 @@ class StsEquilibriumRule:
         return sts_composition(temperature, pressure_Pa, mole_fractions.get("H2O", 0.0), hno3,
                                self.h2so4_mole_fraction)
 
+    def droplet_radius_cm(self, temperature, pressure_Pa, mole_fractions):
+        """Surface-area-weighted droplet radius [cm] of the rule's lognormal droplets (3 V / S,
+        psc.lognormal_surface_weighted_radius); 0 where there are no droplets."""
+        from .psc import lognormal_surface_weighted_radius
+        volume = self.composition(temperature, pressure_Pa, mole_fractions).volume
+        return lognormal_surface_weighted_radius(volume, self.number_density_cm3, self.geometric_std)
+
     def __call__(self, temperature, pressure_Pa, mole_fractions):
         from .psc import lognormal_surface_area
         volume = self.composition(temperature, pressure_Pa, mole_fractions).volume

@@ -42,11 +42,11 @@ LAW_KEYS: dict[str, dict[str, object]] = {
                    "optional": ("data", "l", "m", "n", "outside")},
     "surface": {"required": ("gamma", "on"), "defaults": {}},
     # gamma from a named parameterization (gamma_from=) or a table in T (gamma_table=)
-    "uptake": {"required": ("on",), "defaults": {"scale": 1.0, "radius_um": 0.1},
+    "uptake": {"required": ("on",), "defaults": {"scale": 1.0, "radius_um": 0.1, "radius_from": "droplets"},
                "optional": ("gamma_from", "gamma_table")},
 }
 #: keys whose values are text, not numbers
-STRING_KEYS = frozenset({"of", "data", "on", "outside", "gamma_from", "gamma_table"})
+STRING_KEYS = frozenset({"of", "data", "on", "outside", "gamma_from", "gamma_table", "radius_from"})
 #: keys every reaction may carry (stored on the Reaction, not in parameters)
 COMMON_KEYS = ("f298", "g", "ref")
 #: deepest chain of include lines (a file including a file including ...)

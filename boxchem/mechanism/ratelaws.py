@@ -230,6 +230,9 @@ class RateEvaluator:
                                            np.ones(self.uptake_index.size)])
         self._uptake_scale = _param(rx, self.uptake_index, "scale")
         self._uptake_radius_cm = _param(rx, self.uptake_index, "radius_um") * 1e-4
+        #: uptake lines whose droplet radius follows the sulfate rule's droplets (radius_from=droplets)
+        self._uptake_follows_droplets = np.array(
+            [rx[i].parameters.get("radius_from", "droplets") == "droplets" for i in self.uptake_index], dtype=bool)
         self._uptake_model = [rx[i].parameters.get("gamma_from") for i in self.uptake_index]
         self._uptake_table = [parse_gamma_table(rx[i].parameters["gamma_table"])
                               if rx[i].parameters.get("gamma_from") is None else None
@@ -276,13 +279,15 @@ class RateEvaluator:
             k[..., self._rev] = k[..., self._rev_of] / equilibrium_constant(T, self._rev_K, self._rev_B)
         return k
 
-    def surface_gamma(self, temperature, partial_pressures=None) -> np.ndarray:
+    def surface_gamma(self, temperature, partial_pressures=None, droplet_radius_cm=None) -> np.ndarray:
         """gamma [1] of every surface column (order of ``surface_index``), shape T.shape + (n,).
 
         temperature [K]; ``partial_pressures``: mapping of SURFACE_STATE_SPECIES
         to partial pressures [Pa] (broadcast with T), needed when a line has
         gamma_from= (``state_dependent_surface``; without them those columns
-        are NaN).  ``uptake`` lines carry their scale=.
+        are NaN).  ``uptake`` lines carry their scale=.  ``droplet_radius_cm`` [cm]
+        (broadcast with T; the sulfate rule's droplets, StsEquilibriumRule.droplet_radius_cm)
+        replaces radius_um= of the gamma_from= lines with radius_from=droplets where it is > 0.
         """
         T = np.asarray(temperature, dtype=float)
         pp = dict(partial_pressures or {})
@@ -297,22 +302,28 @@ class RateEvaluator:
                 g = np.nan
             elif model is not None:
                 r = float(self._uptake_radius_cm[j])
-                if r not in by_radius:
-                    by_radius[r] = liquid_gammas(T, pp["H2O"], pp["HCl"], pp["ClONO2"], r)
-                g = by_radius[r][model]
+                key = r
+                if droplet_radius_cm is not None and self._uptake_follows_droplets[j]:
+                    rd = np.asarray(droplet_radius_cm, dtype=float)
+                    r, key = np.where(rd > 0.0, rd, r), ("droplets", r)
+                if key not in by_radius:
+                    by_radius[key] = liquid_gammas(T, pp["H2O"], pp["HCl"], pp["ClONO2"], r)
+                g = by_radius[key][model]
             else:
                 g = gamma_from_table(T, *table)
             gamma[..., self._uptake_slice.start + j] = np.broadcast_to(g, shape) * self._uptake_scale[j]
         return gamma
 
-    def surface(self, temperature, psc_area, sulfate_area, ice_area=0.0, partial_pressures=None) -> np.ndarray:
+    def surface(self, temperature, psc_area, sulfate_area, ice_area=0.0, partial_pressures=None,
+                droplet_radius_cm=None) -> np.ndarray:
         """k [s-1] of every surface reaction, k = gamma v S / 4; other columns 0.
 
         temperature [K], psc_area (NAT/STS clouds), sulfate_area and ice_area
         (ice clouds) [cm2 cm-3] (broadcast; ice_area defaults to 0).
         ``on=all`` reactions see the sum of the three areas.  ``partial_pressures``
         (SURFACE_STATE_SPECIES -> Pa) as in :meth:`surface_gamma`; without them
-        the k of gamma_from= lines is NaN where their surface has area (0 where not).
+        the k of gamma_from= lines is NaN where their surface has area (0 where not);
+        ``droplet_radius_cm`` as in :meth:`surface_gamma`.
         """
         T = np.asarray(temperature, dtype=float)
         psc = np.asarray(psc_area, dtype=float)
@@ -326,7 +337,7 @@ class RateEvaluator:
             area = (np.broadcast_to(psc, shape)[..., None] * self._surf_psc
                     + np.broadcast_to(sulf, shape)[..., None] * self._surf_sulfate
                     + np.broadcast_to(ice, shape)[..., None] * self._surf_ice)
-            gamma = self.surface_gamma(np.broadcast_to(T, shape), pp)
+            gamma = self.surface_gamma(np.broadcast_to(T, shape), pp, droplet_radius_cm)
             ks = surface_uptake(np.broadcast_to(T, shape)[..., None], gamma, self._surf_mass, area)
             # no area: no uptake, whatever gamma; gamma_from= lines without the composition
             # stay NaN where they have area (surface_gamma), so a missing input never looks valid

@@ -216,6 +216,11 @@ def _check_uptake(r: Reaction, loc, err) -> None:
     if not (isinstance(radius, float) and math.isfinite(radius) and radius > 0):
         err(f"reaction {r.id!r}: radius_um={radius} is not a droplet radius > 0 [um]",
             _at(loc, "radius_um", suffix="="))
+    radius_from = r.parameters.get("radius_from", "droplets")
+    if radius_from not in ("droplets", "line"):
+        err(f"reaction {r.id!r}: radius_from={radius_from!r} is not valid; expected 'droplets' (the droplet "
+            "radius of the STS rule when the sulfate area comes from it, else radius_um) or 'line' "
+            "(always radius_um)", _at(loc, "radius_from", suffix="="))
 
 
 def _m_on_right(r: Reaction) -> bool:

@@ -133,8 +133,17 @@ class StateSurfaces:
         if self._needs_gamma_state:
             pp = {s: x[..., j] * p for j, s in enumerate(self.species)
                   if s in ("H2O", "HCl", "ClONO2")}
-        gamma = self.evaluator.surface_gamma(T, pp)
+        gamma = self.evaluator.surface_gamma(T, pp, self.droplet_radius(T, p, x))
         return gamma[..., self._surface_pos]
+
+    def droplet_radius(self, T, p, x):
+        """Droplet radius [cm] (...) of the sulfate rule at T, p and mole fractions x
+        (..., n_species) when it knows one (StsEquilibriumRule), else None (radius_um= holds)."""
+        rule = self.sulfate_rule
+        if rule is None or not hasattr(rule, "droplet_radius_cm") or not self._needs_gamma_state:
+            return None
+        return rule.droplet_radius_cm(T, p, {s: x[..., j] for j, s in enumerate(self.species)
+                                             if s in rule.needs})
 
     def _areas(self, T, p, x, psc, sulfate, ice) -> np.ndarray:
         """Surface area (..., n_columns) [cm2 cm-3] each column sees: the rules' areas from
@@ -162,7 +171,9 @@ class StateSurfaces:
         ev = self.evaluator
         T = np.asarray(T, dtype=float).ravel()
         p = np.broadcast_to(np.asarray(p, dtype=float), T.shape)
-        gamma = ev.surface_gamma(T, self.reference_partial_pressures(p) if self._needs_gamma_state else None)
+        radius = self.droplet_radius(T, p, np.broadcast_to(self._reference, T.shape + self._reference.shape))
+        gamma = ev.surface_gamma(T, self.reference_partial_pressures(p) if self._needs_gamma_state else None,
+                                 radius)
         area = (np.broadcast_to(np.asarray(psc, dtype=float), T.shape)[:, None] * ev._surf_psc
                 + np.broadcast_to(np.asarray(sulfate, dtype=float), T.shape)[:, None] * ev._surf_sulfate
                 + np.broadcast_to(np.asarray(ice, dtype=float), T.shape)[:, None] * ev._surf_ice)
