@@ -30,8 +30,6 @@ ROWS = {
     "nat_gammas": ("surface", ("het_clono2_hcl_psc", "het_clono2_h2o_psc", "het_hocl_hcl_psc",
                                "het_n2o5_h2o_psc", "het_n2o5_hcl_psc", "het_brono2_h2o_psc",
                                "het_brono2_hcl_psc", "het_hobr_hcl")),
-    "ice_gammas": ("surface", ("het_n2o5_h2o_ice", "het_clono2_h2o_ice", "het_brono2_h2o_ice",
-                               "het_clono2_hcl_ice", "het_hocl_hcl_ice", "het_hobr_hcl_ice")),
     "o3_cross_section": ("cross_section", ("O3",)),
     # thermodynamics of the particles (issue 11): p_eq(HNO3) over NAT, HNO3 solubility in STS
     "nat_saturation": ("function", ("boxchem.environment.psc:nat_hno3_equilibrium_pressure",
