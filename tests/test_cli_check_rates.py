@@ -160,6 +160,19 @@ def test_rates_surface_needs_composition(capsys):
     assert "--hcl" in capsys.readouterr().err
 
 
+def test_rates_fixed_gamma_k_without_the_composition(capsys):
+    # a surface line with a fixed gamma (N2O5 + H2O on sulfate) has its k from the area alone,
+    # even when the liquid-gamma lines still need --hcl: k = gamma v S / 4 (kinetic theory;
+    # common practice, no source)
+    assert main(["rates", "stratosphere", "-T", "195", "-p", "50hPa", "--h2o", "5ppmv",
+                 "--sulfate-area", "2 um2 cm-3", "--format", "csv"]) == 0
+    rows = {r["id"]: r for r in _csv(capsys.readouterr().out)}
+    assert "--hcl" in rows["het_clono2_hcl_sa"]["note"]
+    n2o5 = rows["het_n2o5_h2o_sa"]
+    v = math.sqrt(8 * 8.314462618 * 195.0 / (math.pi * 0.108)) * 100
+    assert math.isclose(float(n2o5["k"]), 0.25 * float(n2o5["gamma"]) * v * 2e-8, rel_tol=1e-3)
+
+
 def test_rates_droplet_radius(capsys):
     # the liquid gamma follows --droplet-radius as an STS rule's droplets set it in a run; the
     # value is the parameterization's at that radius (Shi et al. 2001 via liquid_aerosol)

@@ -91,8 +91,10 @@ def _rows(mechanism, temperatures, pressure, mole_fractions=None, areas=None, dr
                     note = f"gamma needs {' and '.join('--' + s.lower() for s in missing)}"
                 else:
                     if gamma is None:   # lines that do not read the composition: any pressures do
-                        gamma = evaluator.surface_gamma(T, {s: np.zeros(T.shape) for s in SURFACE_STATE_SPECIES})
-                        ks = None
+                        zero = {s: np.zeros(T.shape) for s in SURFACE_STATE_SPECIES}
+                        gamma = evaluator.surface_gamma(T, zero)
+                        ks = evaluator.surface(T, areas.get("psc", 0.0), areas.get("sulfate", 0.0),
+                                               areas.get("ice", 0.0), partial_pressures=zero)
                     g_text = f"{gamma[t_i, column[r_i]]:.4e}"
                     if all(n in areas for n in needs) and ks is not None:
                         k_text, note = f"{ks[t_i, r_i]:.4e}", ""
