@@ -732,14 +732,13 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         sides = np.array([side(float(tt), False) for tt in out[1:next_out]])
         ks[1:next_out], fxs[1:next_out] = coefficients.at_times(sides, **table_options)
         coefficient_evaluations += 1
-    surface_k = None
+    surface_k = ozone_j = None
+    if surfaces is not None or ozone is not None:     # the members' own k at the output times
+        out_state = coefficients.environment.at(np.array([side(float(tt), False) for tt in out]))
     if surfaces is not None:
         from .statesurfaces import MemberSurfaceK
-        out_state = coefficients.environment.at(np.array([side(float(tt), False) for tt in out]))
         surface_k = MemberSurfaceK(surfaces, out_state, coefficients.multiplier)
-    ozone_j = None
     if ozone is not None:
-        out_state = coefficients.environment.at(np.array([side(float(tt), False) for tt in out]))
         ozone_j = ozone.output_j(out_state, coefficients.multiplier)
 
     message = np.empty(n_members, dtype=object)
