@@ -5,10 +5,14 @@ multiplies each key quantity by 2 and by 0.5 in turn (tests/perturb_plugin.py)
 and reports which of these tests fail; its output is in docs/heterogeneous.md.
 
 Where a reference value is recalled from memory rather than read from the
-source, the comment says so: the team's search tools did not return the text
-of the JPL 19-5 tables.  Tolerances are the evaluation's own uncertainty
-factor f(T) = f298 exp(|g (1/T - 1/298)|) where one is given, and never looser
-than a factor 1.5, so that a factor of 2 always fails.
+source, the comment says so: the search tool indexes each stored page by its
+beginning only, so the JPL evaluations (97-4, 00-3 and others are stored) and
+the IUPAC summary return their title pages and tables of contents, never a
+table row (searched 2026-12-02, about 50 phrasings).  Values found in the
+abstracts of laboratory measurements are used where they exist, with the
+uncertainty the abstract states.  Tolerances are the evaluation's own
+uncertainty factor f(T) = f298 exp(|g (1/T - 1/298)|) where one is given, and
+never looser than a factor 1.5, so that a factor of 2 always fails.
 """
 from __future__ import annotations
 
@@ -57,8 +61,9 @@ def _jpl_falloff(T, M, k0_300, n, kinf_300, m):
 @pytest.mark.parametrize("T", [200.0, 230.0, 298.0])
 def test_cl_o3_against_jpl(evaluator, mech, T):
     # JPL 19-5 Table 1A: Cl + O3, A = 2.3e-11, E/R = 200 K, f298 = 1.15, g = 100
-    # (recalled from memory: searches for the JPL 19-5 / IUPAC table rows returned only the
-    # documents' title pages; the IUPAC expression differs by < 15 % here, recalled)
+    # (recalled from memory: searches for the JPL 19-5 / 97-4 / IUPAC table rows returned only the
+    # documents' title pages; the IUPAC expression differs by < 15 % here, recalled).  The found
+    # measurement is checked in test_cl_o3_against_beach_2002_measurement below.
     ref = 2.3e-11 * math.exp(-200.0 / T)
     ratio = _k(evaluator, mech, "cl_o3", T) / ref
     assert 1 / _uncertainty(1.15, 100, T) < ratio < _uncertainty(1.15, 100, T)
@@ -80,14 +85,40 @@ def test_cl_o3_against_beach_2002_measurement(evaluator, mech, T):
 @pytest.mark.parametrize("T, p_hPa", [(190.0, 50.0), (200.0, 30.0), (220.0, 100.0)])
 def test_clo_clo_m_against_jpl(evaluator, mech, T, p_hPa):
     # JPL 19-5 Table 2: ClO + ClO + M -> Cl2O2 + M, k0 = 1.9e-32 (n = 3.6), kinf = 3.7e-12
-    # (m = 1.6), f298 = 1.15 (recalled from memory).  Searched (2026-12) for the JPL 19-5 / 00-3 /
-    # 97-4 table rows and the IUPAC datasheet: only title pages and primary measurements were
-    # returned (Cox and Hayman 1988, Nature 332, 796: low-pressure k = 6.0e-32 (T/300)^-2.1 at
-    # 268-338 K, a superseded measurement; von Hobe et al. 2007, ACP 7, 3055, abstract without values)
+    # (m = 1.6), f298 = 1.15 (recalled from memory).  Searched (2026-12-02) for the JPL 19-5 / 00-3 /
+    # 97-4 table rows and the IUPAC datasheet: only title pages.  Measurements found instead:
+    # Boakes et al. 2005 (see test_clo_clo_m_against_boakes_2005_at_298k); Cox and Hayman 1988,
+    # Nature 332, 796 (abstract): k_ter = (6.0 +0.37 -0.34)e-32 (T/300)^(-2.1 +- 0.7) at 268-338 K,
+    # 2-700 Torr, which Sander, Friedl and Yung 1989, Science 245, 1095 (abstract: "measured rate
+    # constants are less than one-half as great as the previously accepted values") superseded.
+    # Not found: Trolier et al. 1990, Nickolaisen et al. 1994, Bloss et al. 2001 (no abstract with
+    # values was returned).  The stratospheric-temperature check therefore stays recalled.
     M = air_number_density(p_hPa * 100.0, T)
     ref = _jpl_falloff(T, M, 1.9e-32, 3.6, 3.7e-12, 1.6)
     ratio = _k(evaluator, mech, "clo_clo_m", T, p_hPa * 100.0) / ref
     assert 1 / 1.3 < ratio < 1.3
+
+
+@pytest.mark.parametrize("p_torr", [50.0, 100.0, 300.0, 760.0])
+def test_clo_clo_m_against_boakes_2005_at_298k(evaluator, mech, p_torr):
+    # Found by search: Boakes, Hindy and Rowley 2005, "Kinetic studies of the ClO + ClO association
+    # reaction as a function of temperature and pressure", Phys. Chem. Chem. Phys. 7, 4102-4113,
+    # doi:10.1039/b510308h (abstract): flash photolysis / UV absorption, 206-298 K, 25-760 Torr;
+    # kinf = (3.37 +- 1.67)e-12 (T/300)^(-1.49 +- 1.81) cm3 s-1 (N2, Fc fixed at 0.6) and, in air,
+    # k0 = (2.62 +- 0.80)e-32 (T/300)^(-3.78 +- 0.98) cm6 s-1; errors 2 sigma.  At 298 K the
+    # temperature exponents drop out (their +-1 changes (298/300)^-n by < 1 %), so the model must lie
+    # between the falloff curves of (k0, kinf) at their -2 sigma and at their +2 sigma values.  The
+    # model (the recalled JPL 19-5 line) sits at 0.74-0.81 of Boakes's central curve, inside the band
+    # (0.63-0.68 ... 1.31-1.36); x2 (1.48-1.62) and x0.5 (0.37-0.41) fall outside.  Boakes et al. say
+    # their k is "more rapid than those reported in previous studies": at 206 K the model is 0.70 (25
+    # Torr) to 0.86 (760 Torr) of their air curve, at or just below their 2-sigma prefactor band
+    # there - a disagreement reported in docs/heterogeneous.md, not hidden by a wider test.
+    T = 298.0
+    p_pa = p_torr * 133.322
+    M = air_number_density(p_pa, T)
+    lo = _jpl_falloff(T, M, 2.62e-32 - 0.80e-32, 3.78, 3.37e-12 - 1.67e-12, 1.49)
+    hi = _jpl_falloff(T, M, 2.62e-32 + 0.80e-32, 3.78, 3.37e-12 + 1.67e-12, 1.49)
+    assert lo < _k(evaluator, mech, "clo_clo_m", T, p_pa) < hi
 
 
 @pytest.mark.parametrize("T", [190.0, 220.0, 298.0])
@@ -95,6 +126,14 @@ def test_clo_bro_against_jpl(evaluator, mech, T):
     # JPL 19-5 Table 1A, ClO + BrO channels (recalled from memory; searched 2026-12 for the JPL and
     # IUPAC rows without finding their text), f298 = 1.2, g = 100 each:
     # -> Br + OClO 9.5e-13 exp(550/T); -> Br + ClOO 2.3e-12 exp(260/T); -> BrCl + O2 4.1e-13 exp(290/T)
+    # Found by search, not usable as a factor-2 test: Ferracci and Rowley 2014, Phys. Chem. Chem.
+    # Phys., doi:10.1039/c3cp53440e (abstract): 246-314 K, k1 = (2.5 +- 2.2)e-12 exp((630 +- 240)/T),
+    # OClO channel (4.6 +- 3.0)e-12 exp((280 +- 180)/T), 2 sigma statistical only, "larger absolute
+    # values ... than those reported in previous studies".  At 298 K that is 2.1e-11 total and
+    # 1.2e-11 for OClO, 1.6x and 2.0x the model; its stated A uncertainty (88 %) allows a factor
+    # of 10, so it brackets nothing.  The disagreement is reported in docs/heterogeneous.md.  Not
+    # found: Friedl and Sander 1989, Sander and Friedl 1989, Turnipseed et al. 1991 abstracts with
+    # values (searched by title and by content).
     refs = {"clo_bro_a": 9.5e-13 * math.exp(550 / T), "clo_bro_b": 2.3e-12 * math.exp(260 / T),
             "clo_bro_c": 4.1e-13 * math.exp(290 / T)}
     f = _uncertainty(1.2, 100, T)
@@ -180,8 +219,10 @@ def test_j_no2_against_balloon_measurement(mech):
 
 # ---------------------------------------------------------------- gammas
 def test_nat_gammas_against_jpl(evaluator, mech):
-    # JPL 19-5 Table 5, NAT (recalled from memory; searched 2026-12 for the Table 5 rows and
-    # found only laboratory abstracts without the recommended values): ClONO2 + HCl 0.2, ClONO2 + H2O 0.004,
+    # JPL 19-5 Table 5, NAT (recalled from memory; searched 2026-12 for the Table 5 rows and the NAT
+    # measurements of Hanson and Ravishankara 1991-1993 and Abbatt and Molina 1992 (titles found in
+    # reference lists, no abstract with values); ClONO2 + H2O is also checked against the found
+    # measurement in test_nat_clono2_hydrolysis_within_measured_range): ClONO2 + HCl 0.2, ClONO2 + H2O 0.004,
     # HOCl + HCl 0.1, N2O5 + H2O 4e-4, N2O5 + HCl 3e-3; BrONO2 on "psc": the ice value 0.3
     ref = {"het_clono2_hcl_psc": 0.2, "het_clono2_h2o_psc": 0.004, "het_hocl_hcl_psc": 0.1,
            "het_n2o5_h2o_psc": 4e-4, "het_n2o5_hcl_psc": 3e-3, "het_brono2_h2o_psc": 0.3,
@@ -193,12 +234,30 @@ def test_nat_gammas_against_jpl(evaluator, mech):
         assert gamma[col[rid]] == pytest.approx(g, rel=0.2, abs=0), rid
 
 
+def test_nat_clono2_hydrolysis_within_measured_range(evaluator, mech):
+    # Found by search: "A kinetic and product study of the hydrolysis of ClONO2 on type Ia polar
+    # stratospheric cloud materials at 185 K", J. Phys. Chem. A 101, 8643-8652 (1997) (abstract;
+    # authors recalled: Barone, Zondlo and Tolbert): on NAT and NAD films at 185 K gamma "increased
+    # from 0.0004 to 0.007 as the water partial pressure was increased from 5e-6 to 1.4e-4 Torr",
+    # agreeing with the literature at 90 % relative humidity.  The model's NAT gamma has no humidity
+    # dependence, so it must lie inside the measured span: 0.004 does; x2 (0.008) does not (x0.5 is
+    # caught by test_nat_gammas_against_jpl).  The span is wide (a factor 17): this bounds the model,
+    # it does not pin it.
+    pp = {"H2O": 0.025, "HCl": 1e-5, "ClONO2": 5e-6}
+    gamma = evaluator.surface_gamma(np.array([185.0]), {k: np.array([v]) for k, v in pp.items()})[0]
+    col = {mech.reaction_ids[i]: j for j, i in enumerate(evaluator.surface_index)}
+    assert 0.0004 < gamma[col["het_clono2_h2o_psc"]] < 0.007
+
+
 @pytest.mark.parametrize("T", [192.0, 196.0, 200.0, 210.0])
 def test_sulfate_gammas_are_the_published_parameterizations(evaluator, mech, T):
     # the shipped sulfate lines use Shi et al. (2001) / Hanson (2003) as JPL 19-5 recommends, and
     # N2O5 + H2O = 0.1 (JPL 19-5 Table 5, recalled): model gamma vs the parameterization itself.
-    # Searched 2026-12 for the Shi et al. (2001) text: not found (the related Hanson 1998, J. Phys.
-    # Chem. A 102, 4794 abstract was, without tabulated gammas); the tabulated values stay recalled.
+    # Searched 2026-12 (again 2026-12-02, by title, authors and content) for the Shi et al. (2001)
+    # text and figures: not found (the related Hanson 1998, J. Phys. Chem. A 102, 4794 abstract was,
+    # without tabulated gammas; Hallquist et al. 2000, J. Phys. Chem. A 104, 3984 give N2O5 gamma =
+    # 0.033 +- 0.004 on 26-65 wt% acid at 263-298 K, not at stratospheric temperatures, so not a
+    # check of the cold 0.1); the tabulated values stay recalled.
     p = 5000.0
     pp = {"H2O": 5e-6 * p, "HCl": 1.5e-9 * p, "ClONO2": 0.5e-9 * p}
     ref = liquid_gammas(T, pp["H2O"], pp["HCl"], pp["ClONO2"], 1e-5)
@@ -281,7 +340,9 @@ def test_noon_dimer_to_clo_ratio_follows_j(activated_noon, mech):
 @pytest.mark.parametrize("T", [195.0, 220.0, 298.0])
 def test_h_o2_m_against_jpl(evaluator, mech, T):
     # JPL 19-5 Table 2: H + O2 + M -> HO2, k0 = 4.4e-32 (n = 1.3), kinf = 7.5e-11 (m = -0.2),
-    # f298 = 1.15 (recalled from memory; issue 11 measured the old line 1.5x above it at 195 K)
+    # f298 = 1.15 (recalled from memory; issue 11 measured the old line 1.5x above it at 195 K).
+    # Searched 2026-12-02: Michael et al. 2002, J. Phys. Chem. A 106, 5297 and Cobos, Hippler and
+    # Troe 1985, J. Phys. Chem. 89, 342 were found, their returned abstracts without the values.
     M = air_number_density(5000.0, T)
     ref = _jpl_falloff(T, M, 4.4e-32, 1.3, 7.5e-11, -0.2)
     assert _k(evaluator, mech, "h_o2_m", T) / ref == pytest.approx(1.0, rel=0.15, abs=0)
@@ -289,8 +350,24 @@ def test_h_o2_m_against_jpl(evaluator, mech, T):
 
 def test_cl2o2_quantum_yield(mech):
     # Cl2O2 + hv -> Cl + ClOO: quantum yield about 0.9 above 300 nm (JPL 19-5 Table 4 note,
-    # recalled from memory), not 1
+    # recalled from memory), not 1.  Searched 2026-12-02 for Moore et al. 1999 and Plenge et al.
+    # 2005: not found.  The product sigma x phi is checked against a found measurement below.
     assert float(mech.reaction("j_cl2o2").parameters["qy"]) == pytest.approx(0.9, rel=1e-9, abs=0)
+
+
+def test_cl2o2_photodissociation_cross_section_at_330_nm(mech):
+    # Found by search: "Photodissociation Cross Section of ClOOCl at 330 nm", J. Phys. Chem. A 114,
+    # 4791-4797 (2010) (abstract; molecular beam, mass-resolved, so free of the impurity problem of
+    # absorption spectra): the photodissociation cross section - absorption cross section times
+    # dissociation quantum yield - is (2.31 +- 0.11)e-19 cm2 at 200 K (and (2.47 +- 0.12)e-19 at
+    # 250 K).  The model's sigma(330 nm) x qy (the shipped table has no temperature dependence) is
+    # 2.50e-19 x 0.9 = 2.25e-19: inside the 200 K value's stated uncertainty; qy = 1 (2.50e-19) or
+    # qy = 0.8 (2.00e-19) would fail, and so would a factor 2 in either.  At 250 K the model is 9 %
+    # below the measurement, outside its +-0.12 - reported in docs/heterogeneous.md.
+    from boxchem.photolysis.crosssections import cross_section_data
+    sigma = float(np.asarray(cross_section_data("Cl2O2")(np.array([330.0]), 200.0)).ravel()[0])
+    qy = float(mech.reaction("j_cl2o2").parameters["qy"])
+    assert (2.31e-19 - 0.11e-19) <= sigma * qy <= (2.31e-19 + 0.11e-19)
 
 
 def test_falloff_form_is_referenced_to_300_k(evaluator, mech):
