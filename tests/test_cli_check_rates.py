@@ -148,7 +148,8 @@ def test_rates_surface_gamma_and_k(capsys):
     assert math.isclose(float(n2o5["k"]), 0.25 * float(n2o5["gamma"]) * v * 0.5e-8, rel_tol=1e-3)
     cold, warm = by[("het_clono2_hcl_sa", 195.0)], by[("het_clono2_hcl_sa", 222.0)]
     # liquid sulfate: ClONO2 + HCl is orders of magnitude slower at 222 K than at 195 K
-    # (Shi et al. 2001, JGR 106, 24259, their temperature dependence; recalled from memory)
+    # (Shi et al. 2001, JGR 106, 24259, their temperature dependence; recalled from memory - the
+    # paper's text and figures were searched for on 2026-12-02 and not found)
     assert float(cold["gamma"]) > 1e3 * float(warm["gamma"])
 
 

@@ -380,7 +380,9 @@ def test_termolecular_rates_against_jpl(mech, k_at, rid, k0, n, kinf, m):
 
 
 def test_clo_dimer_formation_at_polar_conditions(k_at):
-    # ClO + ClO + M at 195 K, 50 hPa: JPL 19-5 Table 2 parameters (recalled from memory)
+    # ClO + ClO + M at 195 K, 50 hPa: JPL 19-5 Table 2 parameters (recalled from memory; the table
+    # row was not found by search - the line is checked against the measurement of Boakes et al.
+    # 2005 found by search in tests/test_science_factor2.py)
     # give about 1.4e-13 cm3 s-1 (hand calculation: [M]=1.857e18, k0[M]=1.664e-13,
     # kinf=7.37e-12, x=0.0226, broadening 0.6^0.270=0.871)
     assert k_at["clo_clo_m"][1] == approx0(1.42e-13, rel=0.01)
@@ -455,5 +457,6 @@ def test_rates_command_lists_polar_coefficients():
     import csv
     rows = list(csv.DictReader(io.StringIO(out.getvalue())))
     k = {(r["id"], float(r["temperature"])): r["k"] for r in rows}
-    # Cl + O3 at 195 K: JPL 19-5 Table 1, 2.3e-11 exp(-200/T) (recalled from memory)
+    # Cl + O3 at 195 K: JPL 19-5 Table 1, 2.3e-11 exp(-200/T) (recalled from memory; the measurement
+    # of Beach et al. 2002, found by search, is checked in tests/test_science_factor2.py)
     assert float(k[("cl_o3", 195.0)]) == approx0(2.3e-11 * math.exp(-200 / 195), rel=1e-4)
