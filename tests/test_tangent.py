@@ -166,9 +166,9 @@ def test_tangent_agrees_with_central_differences_on_sunlit_polar_spring():
     # the last sunlit day before 1 October of polar-spring (PSCs, spectral J, surfaces that follow
     # the composition); the ten largest coefficients of three kinds of metric, the
     # time-resolved O3 and ClO and an initial value, within 2 % (the criterion;
-    # measured: 0.4 % at worst).  Over one day the feedback of the composition on the surfaces
-    # (not in the tangent) is small; over the season it is not (up to 7 %, DEVELOPERS.md), which
-    # is why method="auto" takes the differences for such scenarios
+    # measured: 0.4 % at worst).  The tangent differentiates the feedback of the composition on
+    # the surfaces and the phase equilibrium (solver/tangent_feedback.py); the season-long check
+    # of that is in tests/test_tangent_feedback.py
     import boxchem
     from boxchem.analysis.sensitivity import local_sensitivities, ranking
     scenario = boxchem.load_scenario("polar-spring").with_overrides(
