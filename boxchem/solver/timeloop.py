@@ -562,7 +562,13 @@ def integrate_batch(kinetics, coefficients, y0, output_times_s, *, log_multiplie
         on_accept(t0, y[0])
     ozone = coefficients.photolysis_rates.member_columns(segment_edges, y, coefficients.photolysis_columns) \
         if follows else None
-    ks[0], fxs[0] = coefficients(t0)
+    if surfaces is not None:
+        # the state-dependent columns at the reference composition, as at every later output
+        # time: each member's own are set from its state (BatchResult.member_k)
+        k0, fx0 = coefficients.at_times(np.array([t0]), state_reference=True)
+        ks[0], fxs[0] = k0[0], fx0[0]
+    else:
+        ks[0], fxs[0] = coefficients(t0)
     coefficient_evaluations = 1
     # state-dependent k must be evaluated right after the state is observed
     exact_per_output = on_accept is not None or not hasattr(coefficients, "at_times")
